@@ -1,0 +1,70 @@
+"""The `fitkit` command: a thin click layer over the library.
+
+Each subcommand lives in its own module and is imported only when it runs, so
+`fitkit --help` starts fast. Every FitkitError becomes one line on stderr and
+a documented exit status (see fitkit.exitcodes); nothing below this package
+prints or exits.
+"""
+
+from __future__ import annotations
+
+import importlib
+import sys
+
+import click
+
+from .. import exitcodes
+
+# command name -> (module, attribute, one-line help)
+COMMANDS: dict[str, tuple[str, str, str]] = {
+    "inspect": ("fitkit.cli.inspect_cmd", "inspect", "Show what fitkit reads and finds in a capture."),
+    "fit": ("fitkit.cli.fit_cmd", "fit", "Fit a step response: time constants, f0, Q with 95 % intervals."),
+    "forms": ("fitkit.cli.forms_cmd", "forms", "List the step-response forms fitkit can fit."),
+    "circuits": ("fitkit.cli.circuits_cmd", "circuits", "List the circuit topologies fitkit knows."),
+    "check": ("fitkit.cli.check_cmd", "check", "Check a board's capture against its design file."),
+    "batch": ("fitkit.cli.batch_cmd", "batch", "Fit or check a folder of captures."),
+}
+
+
+class LazyGroup(click.Group):
+    """A click group whose subcommands are imported on first use."""
+
+    def list_commands(self, ctx: click.Context) -> list[str]:
+        return [name for name, (mod, _, _) in COMMANDS.items() if _module_exists(mod)]
+
+    def get_command(self, ctx: click.Context, name: str) -> click.Command | None:
+        if name not in COMMANDS or not _module_exists(COMMANDS[name][0]):
+            return None
+        module, attr, _ = COMMANDS[name]
+        return getattr(importlib.import_module(module), attr)
+
+    def format_commands(self, ctx: click.Context, formatter: click.HelpFormatter) -> None:
+        rows = [(name, COMMANDS[name][2]) for name in self.list_commands(ctx)]
+        if rows:
+            with formatter.section("Commands"):
+                formatter.write_dl(rows)
+
+
+def _module_exists(module: str) -> bool:
+    import importlib.util
+    return importlib.util.find_spec(module) is not None
+
+
+@click.group(cls=LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(package_name="fitkit")
+def cli() -> None:
+    """fitkit: step-response fitting for bench and production-line captures.
+
+    Reads oscilloscope and data-logger CSV exports; finds the step, fits time
+    constants, natural frequency, Q and gain with honest 95 % intervals; turns
+    them into component values; checks a board against its design.
+
+    Exit statuses: 0 ok/pass, 1 fail, 2 usage error, 3 inconclusive,
+    4 unusable input, 5 fit failed, 70 internal error.
+    """
+
+
+def main(argv: list[str] | None = None) -> None:
+    """Entry point of the console script: run the CLI and map errors to exit statuses."""
+    from .errors_to_exit import run_with_error_handling
+    sys.exit(run_with_error_handling(cli, argv))

@@ -1,0 +1,129 @@
+"""What every behavioural step-response form provides.
+
+A form describes the response of a linear system to a step at time ``t0``::
+
+    y(t) = baseline + step * unit_step(t - t0; shape parameters)
+
+where ``unit_step`` is 0 before the edge and the form's normalised step
+response after it. ``baseline`` and ``step`` enter linearly, so the engine can
+solve them by linear least squares for any trial shape (variable projection).
+The shape parameters (time constants, f0, Q, ...) are positive and fitted in
+log space.
+
+For measured-input mode a form also gives its normalised transfer function
+``H(s)`` (numerator and denominator in descending powers of s) whose step
+response is ``unit_step``; the output is then
+``baseline + gain * lsim(H, input - input_baseline)``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable, Mapping, Sequence
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class ParamSpec:
+    """One parameter of a form.
+
+    name: trade name used in results and JSON ("tau", "f0", "Q", ...).
+    unit: SI unit ("s", "Hz", "V", "" for dimensionless).
+    kind: how the engine scales it: "time" (seconds; scaled by the first
+        time-constant guess), "frequency" (Hz), "ratio" (dimensionless > 0).
+    description: plain words for `fitkit forms`.
+    """
+
+    name: str
+    unit: str
+    kind: str
+    description: str
+
+
+#: The linear parameters every form has (and the edge time).
+LEVEL_PARAMS = (
+    ParamSpec("baseline", "V", "level", "output level before the edge"),
+    ParamSpec("step", "V", "level", "size of the output step (negative for a falling response)"),
+)
+EDGE_PARAM = ParamSpec("t0", "s", "edge", "time of the input edge")
+
+
+@dataclass(frozen=True)
+class Form:
+    """A behavioural step-response form.
+
+    Attributes
+    ----------
+    name: plain-words name ("first-order", "two-real-pole", ...).
+    summary: one line for `fitkit forms`.
+    shape: the nonlinear shape parameters, all positive.
+    unit_step: f(t_rel, **shape) -> normalised response, t_rel in seconds
+        (0 for t_rel < 0). Must be vectorised and numerically stable.
+    transfer_function: f(**shape) -> (num, den), descending powers of s,
+        whose step response is unit_step.
+    guess: f(t_rel, y_norm) -> list of starting shapes (dicts), from a
+        normalised response (0 before the edge, about 1 when settled for
+        low-pass forms) on a time axis relative to the edge, in seconds.
+    derived: f(**shape) -> {name: value} of derived trade quantities (SI units).
+    derived_units: unit of each derived quantity.
+    order: number of poles (used by model selection to prefer simpler forms).
+    """
+
+    name: str
+    summary: str
+    shape: tuple[ParamSpec, ...]
+    unit_step: Callable[..., np.ndarray]
+    transfer_function: Callable[..., tuple[np.ndarray, np.ndarray]]
+    guess: Callable[[np.ndarray, np.ndarray], list[dict[str, float]]]
+    derived: Callable[..., dict[str, float]]
+    derived_units: Mapping[str, str]
+    order: int
+
+    @property
+    def shape_names(self) -> tuple[str, ...]:
+        return tuple(p.name for p in self.shape)
+
+    def response(self, t: np.ndarray, *, baseline: float, step: float, t0: float,
+                 **shape: float) -> np.ndarray:
+        """y(t) in volts for time t in seconds: baseline + step * unit_step(t - t0)."""
+        t = np.asarray(t, dtype=float)
+        return baseline + step * self.unit_step(t - t0, **shape)
+
+
+def causal(t_rel: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Split a relative time axis: (mask of t_rel >= 0, t_rel clipped at 0)."""
+    t_rel = np.asarray(t_rel, dtype=float)
+    after = t_rel >= 0
+    return after, np.where(after, t_rel, 0.0)
+
+
+def log_grid(lo: float, hi: float, n: int) -> np.ndarray:
+    """n points spaced evenly in log between lo and hi (both > 0)."""
+    return np.geomspace(lo, hi, n)
+
+
+def rise_time_scale(t_rel: np.ndarray, y_norm: np.ndarray) -> float:
+    """A robust first guess of the response's time scale in seconds.
+
+    The time after the edge at which the normalised response first reaches
+    0.632 (the one-time-constant level of a first-order rise), from the
+    running median to resist noise; falls back to a fifth of the post-edge
+    window when the level is never reached.
+    """
+    after = t_rel > 0
+    t_after, y_after = t_rel[after], y_norm[after]
+    if t_after.size < 3:
+        return float(max(t_rel[-1], 1e-30))
+    k = max(1, t_after.size // 200)
+    if k > 1:
+        kernel = np.ones(k) / k
+        y_after = np.convolve(y_after, kernel, mode="same")
+    crossed = np.nonzero(y_after >= 0.632)[0]
+    if crossed.size:
+        return float(max(t_after[crossed[0]], t_after[0]))
+    return float(t_after[-1] / 5.0)
+
+
+Shape = Mapping[str, float]
+ShapeList = Sequence[Shape]

@@ -1,0 +1,185 @@
+"""Result records shared by fitting, circuits, check and report.
+
+These are the contract between the computing layers and the reporting layers:
+computation fills them, report/ renders them, nothing here computes or plots.
+All are frozen dataclasses with ``to_dict()`` returning plain JSON-ready types
+(floats, strings, lists, dicts; NaN and inf become None).
+
+The JSON shape of a fit (see README "JSON output") is::
+
+    {"file": ..., "model": NAME,
+     "parameters": {NAME: {"value": x, "stderr": s, "ci95": [lo, hi], "unit": u, ...}},
+     "derived": {NAME: {...same...}},
+     "selection": [...], "warnings": [...], ...}
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any, Mapping
+
+import numpy as np
+
+
+def json_number(x: Any) -> float | None:
+    """A float for JSON: NaN, inf and None become None."""
+    if x is None:
+        return None
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """One estimated quantity with its uncertainty.
+
+    Attributes
+    ----------
+    name: trade name ("tau", "f0", "Q", "C2", ...).
+    value: best estimate in SI units.
+    stderr: standard error (SI units), None when not available.
+    ci95: (low, high) 95 % confidence interval in SI units, None when the
+        quantity is not determined by the data.
+    unit: SI unit string ("s", "Hz", "V", "F", "" for dimensionless).
+    interval_method: plain words on how ci95 was obtained, e.g.
+        "covariance", "profile likelihood", "covariance widened x1.6 for
+        correlated residuals".
+    determined: False when the data do not determine this quantity; it must
+        then never be shown as if it were measured.
+    """
+
+    name: str
+    value: float
+    stderr: float | None = None
+    ci95: tuple[float, float] | None = None
+    unit: str = ""
+    interval_method: str = "covariance"
+    determined: bool = True
+
+    def contains(self, truth: float) -> bool:
+        """True when ``truth`` lies inside the 95 % interval."""
+        return self.ci95 is not None and self.ci95[0] <= truth <= self.ci95[1]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "value": json_number(self.value),
+            "stderr": json_number(self.stderr),
+            "ci95": None if self.ci95 is None else [json_number(self.ci95[0]), json_number(self.ci95[1])],
+            "unit": self.unit,
+            "interval_method": self.interval_method,
+            "determined": bool(self.determined),
+        }
+
+
+@dataclass(frozen=True)
+class CandidateScore:
+    """How one candidate form fared in model selection.
+
+    ``criterion`` is the information criterion value (lower is better) and
+    ``delta`` its difference from the chosen form's.
+    """
+
+    model: str
+    converged: bool
+    n_parameters: int
+    criterion: float
+    delta: float
+    rms_residual: float
+    note: str = ""
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"model": self.model, "converged": self.converged, "n_parameters": self.n_parameters,
+                "criterion": json_number(self.criterion), "delta": json_number(self.delta),
+                "rms_residual": json_number(self.rms_residual), "note": self.note}
+
+
+@dataclass(frozen=True)
+class FitDiagnostics:
+    """Residual diagnostics of a fit.
+
+    rms_residual and noise_rms are in the output channel's unit (V).
+    residual_lag1 is the lag-1 autocorrelation of the residuals.
+    ci_widening is the factor applied to covariance intervals to account for
+    correlated residuals (1.0 when none), described in ``correction``.
+    """
+
+    n_samples: int
+    rms_residual: float
+    noise_rms: float
+    residual_lag1: float
+    effective_samples: float
+    ci_widening: float
+    correction: str
+    structured_residual: bool = False
+    criterion_name: str = "AICc"
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"n_samples": self.n_samples, "rms_residual": json_number(self.rms_residual),
+                "noise_rms": json_number(self.noise_rms), "residual_lag1": json_number(self.residual_lag1),
+                "effective_samples": json_number(self.effective_samples),
+                "ci_widening": json_number(self.ci_widening), "correction": self.correction,
+                "structured_residual": self.structured_residual, "criterion": self.criterion_name}
+
+
+@dataclass(frozen=True)
+class FittedSegment:
+    """Data and fitted curve of one edge, for plots and residual checks.
+
+    time in seconds (absolute capture time), data and fitted in volts.
+    """
+
+    time: np.ndarray
+    data: np.ndarray
+    fitted: np.ndarray
+    edge_time: float
+    direction: int  # +1 rising, -1 falling
+
+    @property
+    def residual(self) -> np.ndarray:
+        return self.data - self.fitted
+
+
+@dataclass(frozen=True)
+class FitResult:
+    """Everything a fit found: the chosen form, parameters, derived quantities,
+    selection evidence, diagnostics and warnings.
+
+    ``components`` is filled when a circuit was given (part name -> Estimate).
+    """
+
+    file: str
+    model: str
+    parameters: Mapping[str, Estimate]
+    derived: Mapping[str, Estimate]
+    selection: tuple[CandidateScore, ...] = ()
+    selection_reason: str = ""
+    diagnostics: FitDiagnostics | None = None
+    segments: tuple[FittedSegment, ...] = ()
+    warnings: tuple[str, ...] = ()
+    components: Mapping[str, Estimate] = field(default_factory=dict)
+    extra: Mapping[str, Any] = field(default_factory=dict)
+
+    def quantity(self, name: str) -> Estimate:
+        """A parameter, derived quantity or component by name."""
+        for table in (self.parameters, self.derived, self.components):
+            if name in table:
+                return table[name]
+        raise KeyError(name)
+
+    def to_dict(self) -> dict[str, Any]:
+        d: dict[str, Any] = {
+            "file": self.file,
+            "model": self.model,
+            "parameters": {k: v.to_dict() for k, v in self.parameters.items()},
+            "derived": {k: v.to_dict() for k, v in self.derived.items()},
+            "selection": [c.to_dict() for c in self.selection],
+            "selection_reason": self.selection_reason,
+            "diagnostics": None if self.diagnostics is None else self.diagnostics.to_dict(),
+            "warnings": list(self.warnings),
+        }
+        if self.components:
+            d["components"] = {k: v.to_dict() for k, v in self.components.items()}
+        if self.extra:
+            d["extra"] = dict(self.extra)
+        return d
