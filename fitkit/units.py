@@ -127,7 +127,7 @@ def format_value(value: float | None, unit: str = "", digits: int = 4) -> str:
 
 
 def format_interval(lo: float | None, hi: float | None, unit: str = "", digits: int = 3) -> str:
-    """Format a confidence interval as "[lo, hi] unit" in engineering notation."""
+    """Format a confidence interval as "[lo unit, hi unit]" in engineering notation."""
     if lo is None or hi is None:
         return "n/a"
-    return f"[{format_value(lo, '', digits)}, {format_value(hi, '', digits)}]" + (f" {unit}" if unit else "")
+    return f"[{format_value(lo, unit, digits)}, {format_value(hi, unit, digits)}]"

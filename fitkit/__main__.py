@@ -1,0 +1,5 @@
+"""`python -m fitkit` runs the command line."""
+
+from .cli import main
+
+main()
