@@ -30,6 +30,7 @@ def write_bytes_atomic(path: str | os.PathLike, data: bytes, *, overwrite: bool 
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
+        os.chmod(tmp, 0o666 & ~_current_umask())  # mkstemp makes 0600; use the user's usual mode
         os.replace(tmp, target)
     except BaseException:
         try:
@@ -38,6 +39,12 @@ def write_bytes_atomic(path: str | os.PathLike, data: bytes, *, overwrite: bool 
             pass
         raise
     return target
+
+
+def _current_umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def write_text_atomic(path: str | os.PathLike, text: str, *, overwrite: bool = True) -> Path:

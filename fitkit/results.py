@@ -183,3 +183,21 @@ class FitResult:
         if self.extra:
             d["extra"] = dict(self.extra)
         return d
+
+    # -- views, handed off to fitkit.report (imported only when used) ---------------
+    def to_frame(self):
+        """The quantities as a pandas DataFrame, one row per quantity: kind, name,
+        value, stderr, ci95_low, ci95_high (SI units), unit, determined."""
+        from .report.csv_out import quantity_frame
+        return quantity_frame(self)
+
+    def plot(self, ax=None, path=None, **options):
+        """Plot the capture, fitted response and residuals; returns
+        (figure, (data_axes, residual_axes)). See fitkit.report.plots.plot_fit."""
+        from .report.plots import plot_fit
+        return plot_fit(self, path=path, ax=ax, **options)
+
+    def _repr_html_(self) -> str:
+        """Notebook view: the report's tables and figure (PNG) as an HTML fragment."""
+        from .report.html import render_html_fragment
+        return render_html_fragment(self, figure_format="png")

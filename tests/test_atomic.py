@@ -35,3 +35,12 @@ def test_failed_write_leaves_old_file(tmp_path, monkeypatch):
         write_bytes_atomic(target, b"new")
     assert target.read_bytes() == b"old"
     assert [p.name for p in tmp_path.iterdir()] == ["keep.bin"]
+
+
+def test_output_gets_the_usual_file_mode(tmp_path):
+    old = os.umask(0o022)
+    try:
+        target = write_text_atomic(tmp_path / "r.txt", "x")
+    finally:
+        os.umask(old)
+    assert (target.stat().st_mode & 0o777) == 0o644

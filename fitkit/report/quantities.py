@@ -1,0 +1,197 @@
+"""The quantities of a fit as rows, with plain-words labels, shared by every report.
+
+Text tables, CSV, HTML and the plot's parameter box all show the same rows:
+(kind, name, Estimate), where kind is "parameter", "derived" or "component".
+This module lists them in one order, names them in the trade's words and
+formats a value with its 95 % interval in engineering notation (quantiphy,
+through fitkit.units). It computes nothing about the fit itself.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass
+from typing import Iterator
+
+from quantiphy import Quantity
+
+from ..results import Estimate, FitResult
+from ..units import format_value
+
+#: Text shown instead of a number when the data do not determine a quantity.
+NOT_DETERMINED = "not determined"
+
+# Trade names used in results -> plain words. Unknown names get no label.
+LABELS: dict[str, str] = {
+    "baseline": "output level before the edge",
+    "step": "output step size",
+    "t0": "edge time",
+    "delay": "delay after the input edge",
+    "tau": "time constant",
+    "tau1": "slower time constant",
+    "tau2": "faster time constant",
+    "tau3": "third time constant",
+    "tau4": "fourth time constant",
+    "tau5": "fifth time constant",
+    "tz": "zero time constant",
+    "tau_dominant": "dominant time constant",
+    "f0": "natural frequency",
+    "omega0": "natural angular frequency",
+    "Q": "quality factor",
+    "zeta": "damping ratio",
+    "fd": "damped (ringing) frequency",
+    "damped_frequency": "damped (ringing) frequency",
+    "gain": "DC gain (output step / input step)",
+    "bandwidth_3db": "-3 dB bandwidth",
+    "rise_time": "10-90 % rise time",
+    "overshoot": "overshoot",
+    "peak_time": "time to first peak",
+    "settling_time_2pct": "settling time to 2 %",
+    "R": "resistance", "C": "capacitance", "L": "inductance",
+}
+
+_EDGE_SUFFIX = re.compile(r"^(.*?)_(\d+)$")
+
+
+def label_for(name: str) -> str:
+    """Plain-words meaning of a quantity name ("tau" -> "time constant").
+
+    Per-edge names from joint fits ("baseline_3") read "... (edge 3)"; part
+    names of a circuit ("R1", "C2") read by their first letter.
+    """
+    if name in LABELS:
+        return LABELS[name]
+    match = _EDGE_SUFFIX.match(name)
+    if match and match.group(1) in LABELS:
+        return f"{LABELS[match.group(1)]} (edge {match.group(2)})"
+    part = re.match(r"^([RCL])\d*\w*$", name)
+    if part:
+        return LABELS[part.group(1)]
+    return ""
+
+
+@dataclass(frozen=True)
+class QuantityRow:
+    """One line of a report: which table it belongs to, its name and estimate."""
+
+    kind: str          # "parameter", "derived" or "component"
+    name: str
+    estimate: Estimate
+
+    @property
+    def label(self) -> str:
+        return label_for(self.name)
+
+    @property
+    def shown_as_number(self) -> bool:
+        """True when the value may be printed: determined and finite."""
+        return is_reportable(self.estimate)
+
+
+def is_reportable(est: Estimate) -> bool:
+    """True when an estimate may be shown as a number (determined and finite)."""
+    return bool(est.determined) and est.value is not None and math.isfinite(float(est.value))
+
+
+def quantity_rows(result: FitResult, *, skip_repeated: bool = False) -> Iterator[QuantityRow]:
+    """Rows of a fit in report order: parameters, derived quantities, components.
+
+    With ``skip_repeated`` a derived quantity that repeats a parameter of the
+    same name (for example "tau" of a first-order fit) is left out, so a table
+    shows each quantity once.
+    """
+    for name, est in result.parameters.items():
+        yield QuantityRow("parameter", name, est)
+    for name, est in result.derived.items():
+        if skip_repeated and name in result.parameters:
+            continue
+        yield QuantityRow("derived", name, est)
+    for name, est in result.components.items():
+        yield QuantityRow("component", name, est)
+
+
+def format_quantity(value: float | None, unit: str = "", digits: int = 4) -> str:
+    """A value in engineering notation with its unit, as reports show it.
+
+    fitkit.units.format_value (quantiphy) with the micro sign written "µ" (as
+    on the plots' axes), and percentages kept as plain numbers ("58.8 %", not
+    with an SI prefix).
+    """
+    if unit == "%":
+        text = format_value(value, "", digits)
+        return text if text in ("n/a", "inf", "-inf") else f"{text} %"
+    with Quantity.prefs(map_sf=Quantity.map_sf_to_greek):
+        return format_value(value, unit, digits)
+
+
+def digits_for(est: Estimate, minimum: int = 4, maximum: int = 9) -> int:
+    """Significant digits that resolve an estimate's 95 % interval.
+
+    Enough digits that the interval's ends differ from the value in print:
+    two digits beyond the ratio of the value to the interval's half-width.
+    """
+    if est.ci95 is None or not is_reportable(est):
+        return minimum
+    lo, hi = est.ci95
+    if lo is None or hi is None or not (math.isfinite(lo) and math.isfinite(hi)):
+        return minimum
+    half = 0.5 * abs(hi - lo)
+    size = max(abs(float(est.value)), abs(lo), abs(hi))
+    if half <= 0 or size <= 0:
+        return minimum
+    needed = math.ceil(math.log10(size / half)) + 2
+    return int(min(max(needed, minimum), maximum))
+
+
+def value_text(est: Estimate) -> str:
+    """The value in engineering notation with its unit, or "not determined"."""
+    if not is_reportable(est):
+        return NOT_DETERMINED
+    return format_quantity(est.value, est.unit, digits_for(est))
+
+
+def interval_text(est: Estimate) -> str:
+    """The 95 % interval as "[lo, hi]" with units, "" when not determined or absent.
+
+    Each end is written by fitkit.units.format_value, so both carry their own
+    SI prefix and unit ("[9.981 us, 10.02 us]").
+    """
+    if not is_reportable(est) or est.ci95 is None:
+        return ""
+    lo, hi = est.ci95
+    if lo is None or hi is None:
+        return ""
+    digits = digits_for(est)
+    return f"[{format_quantity(lo, est.unit, digits)}, {format_quantity(hi, est.unit, digits)}]"
+
+
+def stderr_text(est: Estimate) -> str:
+    """The standard error in engineering notation, "" when absent or undetermined."""
+    if not is_reportable(est) or est.stderr is None or not math.isfinite(float(est.stderr)):
+        return ""
+    return format_quantity(est.stderr, est.unit, 2)
+
+
+def runner_up(result: FitResult):
+    """The best candidate form other than the chosen one, or None.
+
+    Candidates that converged come first; among them those without a note
+    (the engine notes why it set a candidate aside: a parameter not
+    determined, a value outside the form's range) before those with one; then
+    by ``delta``, the criterion difference from the chosen form.
+    """
+    others = [c for c in result.selection if c.model != result.model]
+    if not others:
+        return None
+
+    def key(c):
+        delta = c.delta if c.delta is not None and math.isfinite(c.delta) else math.inf
+        return (not c.converged, bool(c.note.strip()), delta)
+
+    return sorted(others, key=key)[0]
+
+
+def criterion_name(result: FitResult) -> str:
+    """Name of the information criterion used in selection ("AICc" by default)."""
+    return result.diagnostics.criterion_name if result.diagnostics is not None else "AICc"

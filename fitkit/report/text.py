@@ -1,0 +1,148 @@
+"""The terminal table of a fit, and a quiet one-line-per-quantity form for scripts.
+
+Layout (ours): a header naming the file, the chosen form, why it was chosen and
+the runner-up; then tables of parameters, derived quantities and components
+(name, value, 95 % interval, meaning); the candidate forms; diagnostics; and
+warnings last, where the eye ends. Values are in engineering notation with
+their units (fitkit.units, on quantiphy). A quantity the data do not
+determine reads "not determined", never a number.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Sequence
+
+from ..results import FitResult
+from .quantities import (NOT_DETERMINED, QuantityRow, criterion_name, format_quantity, interval_text,
+                         is_reportable, quantity_rows, runner_up, value_text)
+
+_SECTION_TITLES = {"parameter": "Fitted parameters", "derived": "Derived quantities",
+                   "component": "Component values"}
+_INDENT = "  "
+
+
+def render_fit_text(result: FitResult, quiet: bool = False) -> str:
+    """The fit as text for a terminal; ``quiet=True`` gives the script form.
+
+    The quiet form has one line per quantity, five fields separated by one
+    space: ``name value ci95_low ci95_high unit``, numbers in plain SI
+    (``repr``-exact to 10 significant digits), "-" for a missing interval or a
+    dimensionless unit, and the value field "undetermined" (with "-" bounds)
+    when the data do not determine the quantity. Derived quantities that
+    repeat a parameter's name are listed once.
+    """
+    if quiet:
+        return _quiet_lines(result)
+    blocks = [_header(result)]
+    for kind in ("parameter", "derived", "component"):
+        rows = [r for r in quantity_rows(result, skip_repeated=True) if r.kind == kind]
+        if rows:
+            blocks.append(_quantity_table(_SECTION_TITLES[kind], rows))
+    if result.selection:
+        blocks.append(_candidates_table(result))
+    if result.diagnostics is not None:
+        blocks.append(_diagnostics_block(result))
+    if result.warnings:
+        blocks.append("Warnings\n" + "\n".join(f"{_INDENT}! {w}" for w in result.warnings))
+    return "\n\n".join(blocks) + "\n"
+
+
+# -- quiet form ----------------------------------------------------------------
+
+def _plain(x: float | None) -> str:
+    if x is None or not math.isfinite(float(x)):
+        return "-"
+    return format(float(x), ".10g")
+
+
+def _quiet_lines(result: FitResult) -> str:
+    lines = []
+    for row in quantity_rows(result, skip_repeated=True):
+        est = row.estimate
+        unit = est.unit or "-"
+        if not is_reportable(est):
+            lines.append(f"{row.name} undetermined - - {unit}")
+            continue
+        lo, hi = est.ci95 if est.ci95 is not None else (None, None)
+        lines.append(f"{row.name} {_plain(est.value)} {_plain(lo)} {_plain(hi)} {unit}")
+    return "\n".join(lines) + ("\n" if lines else "")
+
+
+# -- full form -----------------------------------------------------------------
+
+def _align(rows: Sequence[Sequence[str]], indent: str = _INDENT) -> list[str]:
+    """Left-align columns; the last column is not padded."""
+    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
+    out = []
+    for r in rows:
+        cells = [c.ljust(w) for c, w in zip(r[:-1], widths[:-1])] + [r[-1]]
+        out.append((indent + "   ".join(cells)).rstrip())
+    return out
+
+
+def _header(result: FitResult) -> str:
+    lines = [("file", result.file or "(in memory)"), ("form", result.model or "(none)")]
+    if result.selection_reason:
+        lines.append(("why", result.selection_reason))
+    other = runner_up(result)
+    if other is not None:
+        lines.append(("runner-up", _candidate_phrase(other, criterion_name(result))))
+    verdict = result.extra.get("verdict") if result.extra else None
+    if verdict:
+        lines.append(("verdict", str(verdict.get("overall", verdict)) if isinstance(verdict, dict)
+                      else str(verdict)))
+    return "Step-response fit\n" + "\n".join(_align([[k, v] for k, v in lines]))
+
+
+def _candidate_phrase(cand, crit: str) -> str:
+    if not cand.converged:
+        return f"{cand.model} (did not converge)"
+    if cand.delta is None or not math.isfinite(cand.delta):
+        return cand.model
+    return f"{cand.model} ({crit} {cand.delta:+.1f} against the chosen form)"
+
+
+def _quantity_table(title: str, rows: Sequence[QuantityRow]) -> str:
+    table = [["name", "value", "95 % interval", "meaning"]]
+    for row in rows:
+        est = row.estimate
+        value = value_text(est)
+        interval = interval_text(est) if value != NOT_DETERMINED else ""
+        table.append([row.name, value, interval or "-", row.label])
+    return title + "\n" + "\n".join(_align(table))
+
+
+def _candidates_table(result: FitResult) -> str:
+    crit = criterion_name(result)
+    table = [["form", "parameters", f"delta {crit}", "RMS residual", "note"]]
+    for cand in result.selection:
+        chosen = " (chosen)" if cand.model == result.model else ""
+        delta = (f"{cand.delta:+.1f}" if cand.converged and cand.delta is not None
+                 and math.isfinite(cand.delta) else "-")
+        rms = format_quantity(cand.rms_residual, "V", 3) if cand.converged else "did not converge"
+        table.append([cand.model + chosen, str(cand.n_parameters), delta, rms, cand.note or ""])
+    return "Candidate forms\n" + "\n".join(_align(table))
+
+
+def _diagnostics_block(result: FitResult) -> str:
+    d = result.diagnostics
+    ratio = (d.rms_residual / d.noise_rms if d.noise_rms and math.isfinite(d.noise_rms)
+             and d.noise_rms > 0 else float("nan"))
+    rms = f"{format_quantity(d.rms_residual, 'V', 3)}"
+    if math.isfinite(ratio):
+        rms += f", noise estimate {format_quantity(d.noise_rms, 'V', 3)} (ratio {ratio:.2f})"
+    eff = (f" (effective {d.effective_samples:.0f})" if d.effective_samples is not None
+           and math.isfinite(d.effective_samples) else "")
+    widening = (f"x{d.ci_widening:.2f}" if d.ci_widening is not None
+                and math.isfinite(d.ci_widening) else "n/a")
+    rows = [
+        ["samples fitted", f"{d.n_samples}{eff}"],
+        ["residual RMS", rms],
+        ["residual lag-1 correlation", f"{d.residual_lag1:.2f}" if math.isfinite(d.residual_lag1) else "n/a"],
+        ["interval correction", d.correction or "none"],
+        ["interval widening", widening],
+        ["structured residual", "yes: the form may not describe this response" if d.structured_residual
+         else "no"],
+    ]
+    return "Diagnostics\n" + "\n".join(_align(rows))
