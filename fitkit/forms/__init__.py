@@ -1,16 +1,43 @@
 """Behavioural step-response forms, by plain-words name.
 
 ``FORMS`` maps each name to its :class:`~fitkit.forms.base.Form`;
-``get_form(name)`` looks one up with a helpful error.
+``get_form(name)`` looks one up with a helpful error. The forms, simplest
+first (one module each):
+
+* first-order         single real pole, low-pass rise            (first_order.py)
+* first-order-decay   single pole high-pass, decays back          (first_order_decay.py)
+* two-real-pole       overdamped pole pair, tau1 >= tau2          (two_real_pole.py)
+* critically-damped   double real pole, Q = 1/2                   (critically_damped.py)
+* underdamped         ringing second order, f0 and Q > 1/2        (underdamped.py)
+* second-order        f0 and Q free across every damping          (second_order.py)
+* three-, four-, five-real-pole   n real poles, RC ladders        (real_poles.py)
+* pole-zero           one real zero and two real poles            (pole_zero.py)
+
+Helpers: stable_math.py (expm1-based and divided-difference evaluation for
+close poles), metrics.py (numerical rise time, overshoot, settling time and
+-3 dB bandwidth), shape_measures.py (levels, overshoot and ringing read off
+data for the starting guesses), catalogue.py (plain descriptions for
+`fitkit forms`).
 """
 
 from __future__ import annotations
 
 from ..errors import OptionError
 from .base import Form, ParamSpec
+from .critically_damped import CRITICALLY_DAMPED
 from .first_order import FIRST_ORDER
+from .first_order_decay import FIRST_ORDER_DECAY
+from .pole_zero import POLE_ZERO
+from .real_poles import FIVE_REAL_POLE, FOUR_REAL_POLE, THREE_REAL_POLE, real_pole_form
+from .second_order import SECOND_ORDER
+from .two_real_pole import TWO_REAL_POLE
+from .underdamped import UNDERDAMPED
 
-FORMS: dict[str, Form] = {f.name: f for f in (FIRST_ORDER,)}
+#: Every form by name, simplest first.
+FORMS: dict[str, Form] = {f.name: f for f in (
+    FIRST_ORDER, FIRST_ORDER_DECAY, TWO_REAL_POLE, CRITICALLY_DAMPED, UNDERDAMPED, SECOND_ORDER,
+    THREE_REAL_POLE, FOUR_REAL_POLE, FIVE_REAL_POLE, POLE_ZERO,
+)}
 
 
 def get_form(name: str) -> Form:
@@ -22,4 +49,4 @@ def get_form(name: str) -> Form:
                           hint="run `fitkit forms` to list them") from None
 
 
-__all__ = ["Form", "ParamSpec", "FORMS", "get_form"]
+__all__ = ["Form", "ParamSpec", "FORMS", "get_form", "real_pole_form"]

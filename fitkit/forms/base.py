@@ -33,12 +33,18 @@ class ParamSpec:
     kind: how the engine scales it: "time" (seconds; scaled by the first
         time-constant guess), "frequency" (Hz), "ratio" (dimensionless > 0).
     description: plain words for `fitkit forms`.
+    lower, upper: optional bounds in SI units where the form is only
+        meaningful on one side of a value (Q > 1/2 for "underdamped");
+        None when any positive value is allowed. (Added with the second
+        batch of forms; optional, so older code ignores them safely.)
     """
 
     name: str
     unit: str
     kind: str
     description: str
+    lower: float | None = None
+    upper: float | None = None
 
 
 #: The linear parameters every form has (and the edge time).
@@ -68,6 +74,18 @@ class Form:
     derived: f(**shape) -> {name: value} of derived trade quantities (SI units).
     derived_units: unit of each derived quantity.
     order: number of poles (used by model selection to prefer simpler forms).
+
+    Optional attributes (added with the second batch of forms; defaults keep
+    the original behaviour):
+
+    final_value: value unit_step tends to as t -> inf: 1 for responses that
+        settle at the new level, 0 for "first-order-decay" (a high-pass that
+        jumps by ``step`` at the edge and decays back to ``baseline``).
+    auto_candidate: False for forms fitted only when asked by name (many
+        poles, a zero), which automatic model selection should skip.
+    canonical: f(shape) -> shape in canonical order (for example
+        tau1 >= tau2), for forms whose unit_step is symmetric in some
+        parameters; None when the shape is already canonical.
     """
 
     name: str
@@ -79,6 +97,13 @@ class Form:
     derived: Callable[..., dict[str, float]]
     derived_units: Mapping[str, str]
     order: int
+    final_value: float = 1.0
+    auto_candidate: bool = True
+    canonical: Callable[[Mapping[str, float]], dict[str, float]] | None = None
+
+    def canonical_shape(self, shape: Mapping[str, float]) -> dict[str, float]:
+        """The shape with symmetric parameters put in the form's canonical order."""
+        return dict(shape) if self.canonical is None else self.canonical(shape)
 
     @property
     def shape_names(self) -> tuple[str, ...]:

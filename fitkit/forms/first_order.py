@@ -2,7 +2,7 @@
 
 unit_step(t) = 1 - exp(-t / tau) for t >= 0, H(s) = 1 / (1 + s tau).
 Derived (textbook first-order results): 10-90 % rise time tau ln 9,
-2 % settling time tau ln 50, -3 dB bandwidth 1 / (2 pi tau).
+2 % settling time tau ln 50, -3 dB bandwidth 1 / (2 pi tau), no overshoot.
 """
 
 from __future__ import annotations
@@ -36,6 +36,7 @@ def derived(*, tau: float) -> dict[str, float]:
         "tau": tau,
         "bandwidth_3db": 1.0 / (2.0 * math.pi * tau),
         "rise_time": tau * math.log(9.0),
+        "overshoot": 0.0,
         "settling_time_2pct": tau * math.log(50.0),
     }
 
@@ -48,6 +49,7 @@ FIRST_ORDER = Form(
     transfer_function=transfer_function,
     guess=guess,
     derived=derived,
-    derived_units={"tau": "s", "bandwidth_3db": "Hz", "rise_time": "s", "settling_time_2pct": "s"},
+    derived_units={"tau": "s", "bandwidth_3db": "Hz", "rise_time": "s", "overshoot": "%",
+                   "settling_time_2pct": "s"},
     order=1,
 )

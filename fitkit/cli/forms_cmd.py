@@ -1,0 +1,54 @@
+"""`fitkit forms`: list the behavioural step-response forms fitkit can fit."""
+
+from __future__ import annotations
+
+import json
+
+import click
+
+
+def _with_unit(name: str, unit: str) -> str:
+    return f"{name} [{unit}]" if unit else name
+
+
+def forms_text(descriptions: list[dict], common: list[dict]) -> str:
+    """The forms as a plain-text listing (our own layout)."""
+    lines = ["Every form: y(t) = baseline + step * response(t - t0), with "
+             + ", ".join(_with_unit(p["name"], p["unit"]) for p in common) + ".", ""]
+    for d in descriptions:
+        poles = f"{d['poles']} pole" + ("s" if d["poles"] != 1 else "")
+        how = "tried by --model auto" if d["automatic"] else "fitted only when named with --model"
+        lines.append(f"{d['name']}  ({poles}; {how})")
+        lines.append(f"    {d['summary']}")
+        for p in d["parameters"]:
+            bound = ""
+            if "lower" in p:
+                bound += f", above {p['lower']:g}"
+            if "upper" in p:
+                bound += f", below {p['upper']:g}"
+            lines.append(f"    parameter  {_with_unit(p['name'], p['unit']):<12} {p['description']}{bound}")
+        derived = ", ".join(_with_unit(q["name"], q["unit"]) for q in d["derived"])
+        lines.append(f"    derived    {derived}")
+        lines.append("")
+    return "\n".join(lines).rstrip() + "\n"
+
+
+@click.command("forms")
+@click.argument("name", required=False)
+@click.option("--json", "as_json", is_flag=True, help="Print one JSON object instead of text.")
+def forms(name, as_json):
+    """List the step-response forms (or describe the one called NAME).
+
+    For each form: its name (what --model takes), a one-line summary, its
+    shape parameters with units, and the derived quantities reported with it.
+    """
+    from ..forms import FORMS, get_form
+    from ..forms.catalogue import common_parameters, describe_form
+
+    chosen = [get_form(name)] if name else list(FORMS.values())
+    descriptions = [describe_form(f) for f in chosen]
+    common = common_parameters()
+    if as_json:
+        click.echo(json.dumps({"common_parameters": common, "forms": descriptions}, indent=2))
+    else:
+        click.echo(forms_text(descriptions, common), nl=False)
