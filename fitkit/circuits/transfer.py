@@ -1,0 +1,204 @@
+"""The transfer function of a circuit and what follows from it.
+
+``transfer_function(circuit)`` runs the nodal analysis (mna.py) and returns a
+:class:`TransferFunction`: numerator and denominator in descending powers of
+s, normalised so the denominator's lowest-order non-zero coefficient is 1 (for
+a circuit with no pole at s = 0, den[-1] = 1 and num[-1] is the DC gain).
+From it: poles and zeros (rad/s), DC gain, the characteristic quantities an
+engineer reads (time constant, natural frequency f0 in Hz, Q) and the
+unit-step response in volts per volt of step.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Mapping
+
+import numpy as np
+from scipy import linalg, signal
+
+from ..errors import CircuitError
+from ..results import json_number
+from .description import Circuit
+from .mna import polynomials
+
+
+@dataclass(frozen=True)
+class TransferFunction:
+    """H(s) = num(s) / den(s), coefficients in descending powers of s (SI: s in rad/s).
+
+    Normalised so den's lowest-order non-zero coefficient is 1.
+    ``cancelled`` counts pole-zero pairs divided out (parts the measured node cannot see).
+    """
+
+    num: tuple[float, ...]
+    den: tuple[float, ...]
+    cancelled: int = 0
+
+    @property
+    def numerator(self) -> np.ndarray:
+        return np.asarray(self.num, dtype=float)
+
+    @property
+    def denominator(self) -> np.ndarray:
+        return np.asarray(self.den, dtype=float)
+
+    @property
+    def order(self) -> int:
+        """Number of poles."""
+        return len(self.den) - 1
+
+    @property
+    def poles(self) -> np.ndarray:
+        """Poles in rad/s (complex), sorted by magnitude."""
+        return _clean_roots(np.roots(self.denominator))
+
+    @property
+    def zeros(self) -> np.ndarray:
+        """Finite zeros in rad/s (complex), sorted by magnitude."""
+        return _clean_roots(np.roots(self.numerator) if len(self.num) > 1 else np.array([], dtype=complex))
+
+    @property
+    def dc_gain(self) -> float:
+        """H(0); +-inf when there is a pole at s = 0."""
+        if self.den[-1] == 0:
+            return math.copysign(math.inf, self.num[-1]) if self.num[-1] != 0 else float("nan")
+        return self.num[-1] / self.den[-1]
+
+    @property
+    def time_scale(self) -> float:
+        """A characteristic time in seconds: (den[0]/den[-1])^(1/order) (geometric mean time constant)."""
+        den = self.denominator
+        nz = np.nonzero(den)[0]
+        if self.order == 0 or nz.size < 2:
+            return 1.0
+        return (abs(den[nz[0]]) / abs(den[nz[-1]])) ** (1.0 / (nz[-1] - nz[0]))
+
+    def __call__(self, s: complex | np.ndarray) -> complex | np.ndarray:
+        """H evaluated at complex frequency s (rad/s)."""
+        return np.polyval(self.numerator, s) / np.polyval(self.denominator, s)
+
+    def frequency_response(self, f_hz: np.ndarray) -> np.ndarray:
+        """H(j 2 pi f) for frequencies in Hz."""
+        return self(2j * np.pi * np.asarray(f_hz, dtype=float))
+
+    def quantities(self) -> dict[str, float]:
+        """Characteristic quantities, SI units.
+
+        Always "dc_gain". First order: "tau" (s). Second order: "f0" (Hz),
+        "Q", "zeta", and "tau_slow", "tau_fast" (s) when the poles are real.
+        Higher order: "tau_slowest" (s) and, if the slowest poles are a complex
+        pair, its "f0" and "Q".
+        """
+        out: dict[str, float] = {"dc_gain": float(self.dc_gain)}
+        den = self.denominator
+        if self.order == 1 and den[-1] != 0:
+            out["tau"] = den[0] / den[1]
+        elif self.order == 2 and den[-1] != 0 and den[0] != 0:
+            a2, a1, a0 = den
+            w0 = math.sqrt(a0 / a2) if a0 / a2 > 0 else float("nan")
+            out["f0"] = w0 / (2 * math.pi)
+            out["Q"] = math.sqrt(a0 * a2) / a1 if a1 != 0 and a0 * a2 > 0 else math.inf
+            out["zeta"] = 1.0 / (2 * out["Q"]) if out["Q"] else math.inf
+            disc = a1 * a1 - 4 * a0 * a2
+            if disc >= -1e-12 * a1 * a1 and a1 > 0:
+                r = math.sqrt(max(disc, 0.0))
+                out["tau_slow"] = (a1 + r) / (2 * a0)
+                out["tau_fast"] = 2 * a2 / (a1 + r)
+        elif self.order > 2:
+            p = self.poles
+            p = p[np.abs(p) > 0]
+            if p.size:
+                slow = p[np.argmin(np.abs(p.real))]
+                out["tau_slowest"] = 1.0 / abs(slow.real) if slow.real != 0 else math.inf
+                if abs(slow.imag) > 1e-9 * abs(slow):
+                    out["f0"] = abs(slow) / (2 * math.pi)
+                    out["Q"] = abs(slow) / (2 * abs(slow.real)) if slow.real != 0 else math.inf
+        return {k: float(v) for k, v in out.items()}
+
+    def step_response(self, t: np.ndarray) -> np.ndarray:
+        """Unit-step response y(t) for t in seconds (0 before t = 0), volts per volt.
+
+        Exact for a step (zero-order hold of a constant input): the state is
+        propagated with the matrix exponential, in time scaled by
+        ``time_scale`` to keep the matrices well conditioned. Raises
+        CircuitError when the transfer function is improper (an impulse).
+        """
+        t = np.asarray(t, dtype=float)
+        num, den = self.numerator, self.denominator
+        if len(num) > len(den):
+            raise CircuitError("the step response contains an impulse (more zeros than poles)",
+                               hint="measure a node whose response is finite, or add the missing part")
+        y = np.zeros_like(t)
+        after = t >= 0
+        if self.order == 0:
+            y[after] = num[-1] / den[-1]
+            return y
+        T = self.time_scale
+        k = np.arange(len(den) - 1, -1, -1)
+        den_z = den / T ** k                       # polynomial in z = s T
+        num_z = num / T ** np.arange(len(num) - 1, -1, -1)
+        A, B, Cm, Dm = signal.tf2ss(num_z, den_z)
+        n = A.shape[0]
+        M = np.zeros((n + 1, n + 1))
+        M[:n, :n] = A
+        M[:n, n] = B[:, 0]
+        tau = t[after] / T
+        if tau.size == 0:
+            return y
+        states = _propagate(M, tau, n)
+        y[after] = states @ Cm[0] + Dm[0, 0]
+        return y
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"num": [json_number(c) for c in self.num], "den": [json_number(c) for c in self.den],
+                "poles": [[json_number(p.real), json_number(p.imag)] for p in self.poles],
+                "zeros": [[json_number(z.real), json_number(z.imag)] for z in self.zeros],
+                "dc_gain": json_number(self.dc_gain),
+                "quantities": {k: json_number(v) for k, v in self.quantities().items()},
+                "cancelled_pole_zero_pairs": self.cancelled}
+
+
+def _clean_roots(r: np.ndarray) -> np.ndarray:
+    """Roots sorted by magnitude; imaginary parts below 1e-6 of the magnitude (rounding
+    of repeated real roots) set to zero."""
+    r = np.asarray(r, dtype=complex)
+    r = np.where(np.abs(r.imag) <= 1e-6 * np.abs(r), r.real + 0j, r)
+    return r[np.lexsort((r.imag, np.abs(r)))]
+
+
+def _propagate(M: np.ndarray, tau: np.ndarray, n: int) -> np.ndarray:
+    """States x(tau) (rows) of x' = A x + B, x(0) = 0, with M = [[A, B], [0, 0]]."""
+    steps = np.diff(tau)
+    even = tau.size > 2 and np.allclose(steps, steps[0], rtol=1e-9, atol=0) and steps[0] > 0
+    if not even:
+        return np.array([linalg.expm(M * ti)[:n, n] for ti in tau])
+    step = linalg.expm(M * steps[0])
+    first = linalg.expm(M * tau[0])[:n, n]
+    # Augmented state [x; 1] evolves by powers of `step`; build them in blocks.
+    block = 256
+    powers = [np.eye(n + 1)]
+    for _ in range(block - 1):
+        powers.append(step @ powers[-1])
+    P = np.array(powers)                                  # (block, n+1, n+1)
+    jump = step @ powers[-1]                              # step^block
+    out = np.empty((tau.size, n))
+    v = np.append(first, 1.0)
+    for start in range(0, tau.size, block):
+        stop = min(start + block, tau.size)
+        out[start:stop] = (P[: stop - start] @ v)[:, :n]
+        v = jump @ v
+    return out
+
+
+def transfer_function(circuit: Circuit, values: Mapping[str, float] | None = None) -> TransferFunction:
+    """H(s) from the driven node's source to the measured node, by nodal analysis.
+
+    ``values`` (part name -> SI value) fills in or overrides part values;
+    unknown parts otherwise use their design values. The measurement chain,
+    if the circuit has one, is included. Raises CircuitError on an invalid
+    circuit or a part without a value.
+    """
+    num, den, _, cancelled = polynomials(circuit, values)
+    return TransferFunction(tuple(float(c) + 0.0 for c in num), tuple(float(c) + 0.0 for c in den), cancelled)
