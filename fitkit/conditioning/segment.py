@@ -8,8 +8,11 @@ time, not relative to the edge), levels in volts.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
+
+from ..results import json_number
 
 
 @dataclass(frozen=True)
@@ -34,6 +37,19 @@ class StepSegment:
     quantisation_step: output quantisation step (V), or None when not visibly quantised.
     averaged_edges: number of edges coherently averaged into this segment (1 = raw).
     flags: plain-language quality warnings for this segment.
+    returns_to_baseline: True when the output spikes or moves and then comes
+        back to its baseline (a high-pass or band-pass response); ``final`` then
+        equals ``baseline`` (or the measured settled level), and ``step`` is
+        about zero, so use ``step_size`` as the size of the step.
+    step_size: the signed step (V) that is 100 % for the model-free metrics:
+        ``final - baseline`` for a response that settles to a new level; for a
+        response that returns to its baseline, the input's step
+        ``input_after - input_before`` when there is an input channel, else the
+        peak excursion of the output. NaN when not measured.
+    step_source: where ``step_size`` comes from: "output levels", "input step"
+        or "output peak excursion".
+    settled: False when the output was still moving at the end of the window
+        (``final`` is then the mean of the last samples, not the settled level).
     """
 
     start: int
@@ -51,6 +67,10 @@ class StepSegment:
     quantisation_step: float | None = None
     averaged_edges: int = 1
     flags: tuple[str, ...] = field(default_factory=tuple)
+    returns_to_baseline: bool = False
+    step_size: float = float("nan")
+    step_source: str = "output levels"
+    settled: bool = True
 
     @property
     def step(self) -> float:
@@ -60,3 +80,26 @@ class StepSegment:
     @property
     def n_points(self) -> int:
         return int(self.time.size)
+
+    @property
+    def n_before_edge(self) -> int:
+        """Number of samples before the edge time."""
+        return int(np.searchsorted(self.time, self.edge_time, side="right"))
+
+    def to_dict(self) -> dict[str, Any]:
+        """Description of the segment as plain JSON-ready types (no sample arrays)."""
+        return {
+            "start": self.start, "stop": self.stop, "n_points": self.n_points,
+            "n_before_edge": self.n_before_edge,
+            "time_first": json_number(self.time[0]) if self.time.size else None,
+            "time_last": json_number(self.time[-1]) if self.time.size else None,
+            "edge_time": json_number(self.edge_time), "direction": self.direction,
+            "baseline": json_number(self.baseline), "final": json_number(self.final),
+            "step": json_number(self.step), "step_size": json_number(self.step_size),
+            "step_source": self.step_source, "returns_to_baseline": self.returns_to_baseline,
+            "settled": self.settled,
+            "input_before": json_number(self.input_before), "input_after": json_number(self.input_after),
+            "noise_rms": json_number(self.noise_rms),
+            "quantisation_step": json_number(self.quantisation_step),
+            "averaged_edges": self.averaged_edges, "flags": list(self.flags),
+        }

@@ -1,0 +1,109 @@
+"""Quality flags: plain-language warnings on whether a capture can say enough.
+
+Each check names what is wrong, why it matters for the fit, and what to
+change at the bench. The thresholds are common practice, no source:
+
+* not settled: the output was still moving at the end of the window after
+  the edge (see fitkit.conditioning.segments);
+* too few samples across the rise: fewer than MIN_TRANSITION_SAMPLES sample
+  intervals in the 10-90 % rise (or fall, or decay);
+* too little pre-edge baseline: fewer than MIN_BASELINE_SAMPLES samples
+  before the edge, or less time before the edge than half the rise time;
+* clipped: a run of at least MIN_CLIPPED_RUN samples sitting exactly at the
+  trace's largest or smallest value, in a trace whose noise would otherwise
+  make neighbouring samples differ (noise above half a quantisation step);
+* no edge: an error (not a flag) that says what was looked for and that
+  ``--edge-time`` forces an edge time.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..errors import ConditioningError
+from ..units import format_value
+from .metrics import StepMetrics
+from .segment import StepSegment
+
+MIN_TRANSITION_SAMPLES = 5
+MIN_BASELINE_SAMPLES = 10
+MIN_CLIPPED_RUN = 4
+
+
+def clipped_runs(values: np.ndarray, noise_rms: float, quantisation_step: float | None) -> np.ndarray:
+    """(start, stop) index pairs of runs of samples stuck at the trace's max or min.
+
+    Returns an array of shape (k, 2); empty when the trace is too quiet to tell
+    clipping from a clean settled level.
+    """
+    none = np.empty((0, 2), dtype=np.int64)
+    v = np.asarray(values, dtype=float)
+    if v.size < MIN_CLIPPED_RUN or not (noise_rms > 0):
+        return none
+    if quantisation_step is not None and noise_rms <= 0.5 * quantisation_step:
+        return none
+    runs = []
+    for extreme in (np.nanmax(v), np.nanmin(v)):
+        at = np.concatenate(([False], v == extreme, [False])).astype(np.int8)
+        change = np.flatnonzero(np.diff(at))
+        starts, stops = change[::2], change[1::2]
+        long_enough = (stops - starts) >= MIN_CLIPPED_RUN
+        runs.append(np.column_stack((starts[long_enough], stops[long_enough])))
+    return np.concatenate(runs).astype(np.int64) if runs else none
+
+
+def _at(seconds: float) -> str:
+    return format_value(seconds, "s")
+
+
+def segment_flags(segment: StepSegment, metrics: StepMetrics, *,
+                  clipped: dict[str, np.ndarray]) -> tuple[str, ...]:
+    """Plain-language quality warnings for one segment.
+
+    ``clipped`` maps a channel name to its clipped runs (from clipped_runs).
+    """
+    flags: list[str] = []
+    where = f"edge at {_at(segment.edge_time)}"
+    if not segment.settled:
+        flags.append(f"{where}: the window after the edge is too short for the response to settle "
+                     "(the final level is not reached), so time constants fitted to it will be poorly "
+                     "determined; capture more time after each edge (slower time base or lower "
+                     "square-wave frequency)")
+    transition = metrics.transition_time
+    kind = "rise" if metrics.rise_time is not None else "fall" if metrics.fall_time is not None else "decay"
+    dt = float(np.median(np.diff(segment.time))) if segment.time.size > 1 else float("nan")
+    if metrics.samples_across_transition is not None and metrics.samples_across_transition < MIN_TRANSITION_SAMPLES:
+        flags.append(f"{where}: only {metrics.samples_across_transition:.1f} samples across the "
+                     f"10-90 % {kind} ({_at(transition)} at {_at(dt)} per sample): the sample interval "
+                     "is too coarse for the fastest time constant; use a faster sample rate")
+    n_before = segment.n_before_edge
+    before = float(segment.edge_time - segment.time[0]) if segment.time.size else 0.0
+    short_in_time = transition is not None and before < 0.5 * transition
+    if n_before < MIN_BASELINE_SAMPLES or short_in_time:
+        remedy = ("move the trigger point so more of the record comes before the edge" if segment.start == 0
+                  else "a lower square-wave frequency or a faster sample rate gives each edge more "
+                       "settled samples before it")
+        flags.append(f"{where}: too little baseline before the edge ({n_before} samples, "
+                     f"{_at(before)}), so the starting level is poorly determined; {remedy}")
+    for name, runs in clipped.items():
+        if runs.size == 0:
+            continue
+        inside = runs[(runs[:, 1] > segment.start) & (runs[:, 0] < segment.stop)]
+        if inside.size:
+            count = int(np.sum(np.minimum(inside[:, 1], segment.stop) - np.maximum(inside[:, 0], segment.start)))
+            flags.append(f"{where}: {count} samples of channel {name!r} sit flat at the trace's extreme "
+                         "value and look clipped; change the vertical scale or offset so the whole "
+                         "trace stays on screen")
+    if segment.returns_to_baseline:
+        flags.append(f"{where}: the output returns to its baseline (a high-pass or band-pass "
+                     f"response); the step size is taken from the {segment.step_source}")
+    return tuple(flags)
+
+
+def no_edge_error(channel: str, looked_for: str, path: str | None) -> ConditioningError:
+    """The error for a capture in which no edge was found."""
+    return ConditioningError(
+        f"no edge found in channel {channel!r}: looked for {looked_for}, and the trace never "
+        "changes level clearly enough",
+        path=path or None,
+        hint="check that the capture holds a step, or pass --edge-time SECONDS to force the edge time")

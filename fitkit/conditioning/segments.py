@@ -1,0 +1,235 @@
+"""Cutting a capture into one window per edge, measuring its levels, and averaging.
+
+Window of edge k (sample indices of the capture, so samples keep their index):
+
+* it starts a quarter of the interval to the previous edge before the edge
+  (the last quarter of the previous half period, where the response to the
+  previous edge has had the most time to settle; common practice, no
+  source); the first edge's window reaches back as far as a quarter of the
+  interval to the second edge, or to the start of a single-step record;
+* it stops just before the next edge's onset (the last sample still at the
+  old level), or at the end of the record.
+
+Levels of a window (V):
+
+* baseline: mean of the output from the window start to the edge's onset;
+* final: mean of the last fifth of the samples after the edge;
+* settled: the response has stopped moving at the end of the window, that is
+  a straight line fitted to the post-edge samples from 60 % to 95 % of the
+  window (the last 5 % left out: without an input channel the next edge's
+  onset is only known to a few samples) changes by no more than the settling
+  band (of the step) across that span, or the change is not significant
+  (under 4 standard errors); common practice, no source;
+* noise: spread of the pre-edge samples about a straight line (robust MAD
+  spread, or the plain standard deviation for quantised traces) when there
+  are at least 32 of them, which also counts correlated noise; else the
+  channel's estimate; never below the quantisation floor q / sqrt(12).
+
+A response that comes back to its baseline (the output of a high-pass filter,
+the voltage across an inductor) is recognised when its final level lies
+within 30 % of its largest excursion from the baseline; its ``step_size`` is
+then the input's step, or the output's peak excursion without an input.
+
+Coherent averaging puts all edges of one direction on a common time axis
+relative to their sub-sample edge times (linear interpolation, np.interp) and
+averages them, which divides white noise by the square root of the number of
+edges.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+from typing import Sequence
+
+import numpy as np
+
+from .edges import Edge
+from .noise import robust_sigma
+from .segment import StepSegment
+
+#: Part of the interval to the previous edge that a window reaches back.
+PRE_EDGE_FRACTION = 0.25
+#: Part of the post-edge samples averaged for the final level.
+FINAL_FRACTION = 0.2
+#: Part of the post-edge samples tested for a remaining drift: from .. to (fractions of the window).
+TAIL_SPAN = (0.6, 0.95)
+#: A final level within this share of the peak excursion counts as "back at the baseline".
+RETURN_FRACTION = 0.3
+
+
+def window_bounds(time: np.ndarray, edges: Sequence[Edge]) -> list[tuple[int, int]]:
+    """(start, stop) sample indices of each edge's window (stop exclusive)."""
+    n = time.size
+    bounds = []
+    for k, edge in enumerate(edges):
+        if k == 0:
+            start = 0
+            if len(edges) > 1:
+                reach = edge.time - PRE_EDGE_FRACTION * (edges[1].time - edge.time)
+                start = min(int(np.searchsorted(time, reach)), edge.onset_index)
+        else:
+            previous = edges[k - 1]
+            reach = edge.time - PRE_EDGE_FRACTION * (edge.time - previous.time)
+            start = max(int(np.searchsorted(time, reach)), previous.index)
+            start = min(start, edge.onset_index)
+        stop = n if k == len(edges) - 1 else edges[k + 1].onset_index + 1
+        stop = max(stop, edge.index + 1)
+        bounds.append((start, stop))
+    return bounds
+
+
+def _tail_settled(t: np.ndarray, y: np.ndarray, tolerance: float) -> bool:
+    """False when a line through (t, y) changes by more than ``tolerance`` significantly."""
+    if y.size < 4:
+        return True
+    tc = t - t.mean()
+    sxx = float(np.dot(tc, tc))
+    if sxx <= 0:
+        return True
+    slope = float(np.dot(tc, y - y.mean()) / sxx)
+    resid = y - y.mean() - slope * tc
+    se = math.sqrt(float(np.dot(resid, resid)) / (y.size - 2) / sxx)
+    change = abs(slope) * float(t[-1] - t[0])
+    return not (change > tolerance and abs(slope) > 4 * se)
+
+
+def _baseline_noise(t: np.ndarray, y: np.ndarray, quantised: bool) -> float:
+    """Spread of the pre-edge samples about a straight line (V); NaN for under 32 samples."""
+    if y.size < 32:
+        return float("nan")
+    coef = np.polyfit(t - t[0], y, 1)
+    resid = y - np.polyval(coef, t - t[0])
+    return float(np.std(resid, ddof=2)) if quantised else robust_sigma(resid)
+
+
+def describe_window(time: np.ndarray, output: np.ndarray, input: np.ndarray | None,
+                    start: int, stop: int, edge: Edge, *, channel_noise: float,
+                    quantisation_step: float | None, settling_band: float,
+                    averaged_edges: int = 1) -> StepSegment:
+    """A StepSegment for one edge's window capture[start:stop], with its levels measured.
+
+    ``time``, ``output``, ``input`` are whole capture arrays (the segment holds
+    views into them); ``edge`` indices are capture indices. ``channel_noise`` (V)
+    is used when the pre-edge baseline is too short to measure the noise.
+    """
+    t, y = time[start:stop], output[start:stop]
+    u = None if input is None else input[start:stop]
+    pre_stop = max(1, edge.onset_index + 1 - start)  # samples [0, pre_stop) are before the edge
+    post_start = min(max(edge.index - start, pre_stop), t.size - 1)
+    baseline = float(np.mean(y[:pre_stop]))
+    post_t, post_y = t[post_start:], y[post_start:]
+    n_final = max(1, int(round(FINAL_FRACTION * post_y.size)))
+    final = float(np.mean(post_y[-n_final:]))
+
+    noise = _baseline_noise(t[:pre_stop], y[:pre_stop], quantisation_step is not None)
+    if not np.isfinite(noise):
+        noise = channel_noise
+    if quantisation_step is not None and not noise >= quantisation_step / math.sqrt(12.0):
+        noise = quantisation_step / math.sqrt(12.0)
+
+    input_before = input_after = None
+    if u is not None:
+        input_before = float(np.mean(u[:pre_stop]))
+        input_after = float(np.mean(u[post_start:][-n_final:]))
+
+    excursion = post_y - baseline
+    k = int(np.argmax(np.abs(excursion)))
+    peak_excursion = float(excursion[k])
+    returns = (abs(final - baseline) < RETURN_FRACTION * abs(peak_excursion)
+               and abs(peak_excursion) > 6 * (noise if np.isfinite(noise) else 0.0))
+    if returns:
+        if input_before is not None and input_after is not None and input_after != input_before:
+            step_size, source = input_after - input_before, "input step"
+        else:
+            step_size, source = peak_excursion, "output peak excursion"
+    else:
+        step_size, source = final - baseline, "output levels"
+
+    first, last = (int(round(f * post_y.size)) for f in TAIL_SPAN)
+    first, last = min(first, max(post_y.size - 4, 0)), max(last, min(first + 4, post_y.size))
+    settled = _tail_settled(post_t[first:last], post_y[first:last], settling_band * abs(step_size))
+    if returns and not settled:
+        final = baseline  # heading back to where it started
+    return StepSegment(start=start, stop=stop, time=t, output=y, input=u, edge_time=edge.time,
+                       direction=edge.direction, baseline=baseline, final=final,
+                       input_before=input_before, input_after=input_after, noise_rms=noise,
+                       quantisation_step=quantisation_step, averaged_edges=averaged_edges,
+                       returns_to_baseline=bool(returns), step_size=float(step_size),
+                       step_source=source, settled=bool(settled))
+
+
+def cut_segments(time: np.ndarray, output: np.ndarray, input: np.ndarray | None,
+                 edges: Sequence[Edge], *, channel_noise: float, quantisation_step: float | None,
+                 settling_band: float, bounds: Sequence[tuple[int, int]] | None = None
+                 ) -> tuple[StepSegment, ...]:
+    """One StepSegment per edge (see the module docstring for the windows).
+
+    ``bounds`` gives the (start, stop) of each window when already known.
+    """
+    if bounds is None:
+        bounds = window_bounds(time, edges)
+    return tuple(describe_window(time, output, input, start, stop, edge,
+                                 channel_noise=channel_noise, quantisation_step=quantisation_step,
+                                 settling_band=settling_band)
+                 for edge, (start, stop) in zip(edges, bounds))
+
+
+def average_segments(segments: Sequence[StepSegment], edges: Sequence[Edge], *,
+                     sample_interval: float, settling_band: float) -> tuple[StepSegment, ...]:
+    """Coherent averages of the segments, one per edge direction (rising first in time order).
+
+    Segments whose span before or after the edge is under 90 % of the
+    direction's median span (an edge cut short by the end of the record) are
+    left out. The others are interpolated onto a common axis of whole sample
+    intervals relative to their edge times, covering the span that all of
+    them share, and averaged. The averaged segment's ``time`` is that axis
+    shifted to the first averaged edge's time; ``start``/``stop`` are the first
+    averaged edge's window; ``noise_rms`` is the mean single-edge noise divided
+    by the square root of the number of edges.
+    """
+    result = []
+    for direction in (1, -1):
+        group = [(s, e) for s, e in zip(segments, edges) if s.direction == direction]
+        if not group:
+            continue
+        if len(group) == 1:
+            result.append(group[0][0])
+            continue
+        pre = np.array([s.edge_time - s.time[0] for s, _ in group])
+        post = np.array([s.time[-1] - s.edge_time for s, _ in group])
+        keep = (pre >= 0.9 * np.median(pre)) & (post >= 0.9 * np.median(post))
+        group = [g for g, k in zip(group, keep) if k]
+        first_rel = max(float(s.time[0] - s.edge_time) for s, _ in group)
+        last_rel = min(float(s.time[-1] - s.edge_time) for s, _ in group)
+        onset_rel = min(float(s.time[e.onset_index - s.start] - s.edge_time) for s, e in group)
+        k0 = math.ceil(first_rel / sample_interval - 1e-9)
+        k1 = math.floor(last_rel / sample_interval + 1e-9)
+        if k1 - k0 < 3:
+            result.extend(s for s, _ in group)
+            continue
+        grid = sample_interval * np.arange(k0, k1 + 1)
+        out_sum = np.zeros(grid.size)
+        in_sum = None if group[0][0].input is None else np.zeros(grid.size)
+        for seg, _ in group:
+            at = seg.edge_time + grid
+            out_sum += np.interp(at, seg.time, seg.output)
+            if in_sum is not None and seg.input is not None:
+                in_sum += np.interp(at, seg.time, seg.input)
+        n = len(group)
+        first_seg, first_edge = group[0]
+        t_avg = first_seg.edge_time + grid
+        onset_index = int(np.searchsorted(grid, onset_rel, side="right")) - 1
+        index = int(np.searchsorted(grid, 0.0, side="right"))
+        pseudo = Edge(index=index, time=first_seg.edge_time, direction=direction,
+                      onset_index=max(onset_index, 0), level_before=first_edge.level_before,
+                      level_after=first_edge.level_after)
+        noise = float(np.nanmean([s.noise_rms for s, _ in group])) / math.sqrt(n)
+        avg = describe_window(t_avg, out_sum / n, None if in_sum is None else in_sum / n,
+                              0, grid.size, pseudo, channel_noise=noise,
+                              quantisation_step=None, settling_band=settling_band,
+                              averaged_edges=n)
+        result.append(replace(avg, start=first_seg.start, stop=first_seg.stop,
+                              noise_rms=noise))
+    result.sort(key=lambda s: s.edge_time)
+    return tuple(result)
