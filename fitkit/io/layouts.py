@@ -1,0 +1,400 @@
+"""What the columns of a text capture mean: names, units, the time axis.
+
+Given the shape decided by :mod:`fitkit.io.sniff`, this module decides which
+column is time (or that there is none, or that it holds a sample index or
+wall-clock stamps), the name and unit of every channel, where the sample
+interval and first-sample time come from, and whether raw ADC counts must be
+converted to volts. The result is a ReadPlan: everything the bulk reader needs,
+with each decision written down in plain words.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+
+from ..errors import CaptureError, OptionError
+from ..units import BASE_UNITS, unit_scale
+from . import metadata as md
+from .sniff import TextSample, TextShape, is_comment
+
+TIME_NAMES = {"time", "t", "zeit", "temps", "tiempo", "seconds", "sec", "timestamp", "time stamp",
+              "elapsed time", "relative time", "x axis", "horizontal"}
+INDEX_WORDS = {"sequence", "index", "idx", "sample", "samples", "no", "no.", "n", "#", "point",
+               "points", "sample number", "sample no", "sample index", "number"}
+COUNT_WORDS = {"counts", "count", "adc", "codes", "code", "lsb", "raw", "adc counts", "digits"}
+_SI_BASES = set(BASE_UNITS.values())
+_NAME_UNIT = re.compile(r"^(.*?)\s*[\(\[]\s*([^\)\]]*?)\s*[\)\]]\s*$")
+_NAME_SLASH = re.compile(r"^(.*?)\s*/\s*([A-Za-zµμΩ]+)$")
+
+
+def _clean_unit(unit: str) -> str:
+    u = unit.strip().strip("()[]").strip()
+    if u.lower() in ("volt", "volts", "v"):
+        return "V"
+    if u.lower() in ("sec", "secs", "second", "seconds") or u == "S":
+        return "s"
+    return u.replace("μ", "µ")
+
+
+def looks_like_unit(cell: str) -> bool:
+    """True for a cell of a units row: '(ms)', '[V]', 'mV', 'Volt', 'Sequence', 'counts'."""
+    c = cell.strip()
+    if not c:
+        return True
+    bare = _clean_unit(c)
+    if bare.lower() in INDEX_WORDS | COUNT_WORDS or bare in ("%", "dB", "dBV"):
+        return True
+    factor, si = unit_scale(bare)
+    return si in _SI_BASES
+
+
+def split_name_unit(name: str) -> tuple[str, str]:
+    """('Time', 's') from 'Time (s)', 'Time [s]' or 'Time/s'; the unit is '' when none is written."""
+    m = _NAME_UNIT.match(name)
+    if m and m.group(1):
+        return m.group(1).strip(), _clean_unit(m.group(2))
+    m = _NAME_SLASH.match(name)
+    if m and m.group(1) and looks_like_unit(m.group(2)):
+        return m.group(1).strip(), _clean_unit(m.group(2))
+    return name.strip(), ""
+
+
+def time_factor(unit: str) -> float | None:
+    """Seconds per unit of a time column ('ms' -> 1e-3), None if not a time unit."""
+    u = _clean_unit(unit)
+    if not u:
+        return None
+    factor, si = unit_scale(u)
+    return factor if si == "s" else None
+
+
+@dataclass(frozen=True)
+class ChannelPlan:
+    """How to turn one file column into a channel."""
+
+    column: int
+    name: str
+    source_unit: str
+    factor: float
+    unit: str
+    counts: tuple[float, float, float] | None = None  # (volts per count, count offset, volt offset)
+
+
+@dataclass(frozen=True)
+class ReadPlan:
+    """Everything the bulk reader needs, and why.
+
+    time_source: "column" (time column, scaled by time_factor), "index"
+    (sample-index column times the interval), or "interval" (origin + k * interval).
+    time_quantum: ("sig", n) when time stamps are printed with n significant
+    digits, ("fixed", n) with n decimals, or None.
+    """
+
+    time_column: int | None
+    index_column: int | None
+    channels: tuple[ChannelPlan, ...]
+    time_source: str
+    time_factor: float
+    interval: float | None
+    origin: float
+    origin_given: bool
+    metadata: dict[str, str]
+    layout: str
+    decisions: tuple[str, ...]
+    expected_length: int | None
+    time_quantum: tuple[str, int] | None
+    time_name: str = "time"
+    extra_warnings: tuple[str, ...] = field(default=())
+
+    @property
+    def columns(self) -> list[int]:
+        cols = [c.column for c in self.channels]
+        for extra in (self.time_column, self.index_column):
+            if extra is not None:
+                cols.append(extra)
+        return sorted(set(cols))
+
+
+def plan_read(sample: TextSample, shape: TextShape, *, sample_interval: float | None = None,
+              time_origin: float | None = None, time_column: str | int | None = None,
+              time_unit: str | None = None, value_unit: str | None = None,
+              vertical_scale: float | None = None, vertical_offset: float | None = None) -> ReadPlan:
+    """Decide the meaning of each column of a sniffed text capture (see module doc)."""
+    path = sample.path
+    decisions = list(shape.decisions)
+    warnings: list[str] = []
+
+    comment_lines = [ln for ln in shape.metadata_lines if is_comment(ln.text)]
+    block_lines = [ln for ln in shape.metadata_lines if not is_comment(ln.text)]
+    meta = md.parse_metadata_lines([ln.text for ln in shape.metadata_lines], shape.delimiter)
+    side = md.side_metadata(shape.side_cells)
+    meta.update({k: v for k, v in side.items() if k not in meta})
+    names, units = _names_and_units(shape, meta)
+
+    if sample_interval is not None:
+        if not sample_interval > 0:
+            raise OptionError(f"--sample-interval must be positive, got {sample_interval!r}")
+        interval, interval_src = float(sample_interval), "given"
+    else:
+        found = md.sample_interval(meta)
+        interval, interval_src = (found[0], f"from {found[1]!r}") if found else (None, None)
+
+    time_col, index_col, time_source = _choose_time_axis(shape, names, units, meta, interval,
+                                                         time_column, decisions, path)
+    tfactor = 1.0
+    if time_col is not None:
+        t_unit = time_unit or units.get(time_col) or meta.get("Horizontal Units", "")
+        f = time_factor(t_unit) if t_unit else None
+        if t_unit and f is None:
+            raise CaptureError(f"time column unit {t_unit!r} is not a time unit", path=path,
+                               hint="give the unit with --time-unit (s, ms, us, ns)")
+        if f is None:
+            decisions.append("time unit: not written in the file; taken as seconds")
+        else:
+            tfactor = f
+            decisions.append(f"time unit: {_clean_unit(t_unit)}" + (" (given)" if time_unit else ""))
+    if interval is not None and time_source != "column":
+        decisions.append(f"sample interval: {interval:.6g} s ({interval_src})")
+    if sample_interval is not None and time_source == "column":
+        warnings.append("--sample-interval ignored: the file has a time column "
+                        "(add --time-column none to build the axis from the interval instead)")
+
+    channel_cols = [j for j in shape.numeric_columns if j not in (time_col, index_col)]
+    if not channel_cols:
+        raise CaptureError("no data channels besides the time column", path=path,
+                           hint="check --time-column, or that the file holds a signal column")
+    if vertical_offset is not None and vertical_scale is None:
+        warnings.append("--vertical-offset ignored without --vertical-scale")
+    plans = _channel_plans(shape, channel_cols, names, units, meta, value_unit, vertical_scale,
+                           vertical_offset, decisions)
+
+    origin, origin_given = 0.0, False
+    if time_origin is not None:
+        origin, origin_given = float(time_origin), True
+        decisions.append(f"time origin: first sample at {origin:.6g} s (given)")
+    elif time_source != "column":
+        found = md.time_origin(meta, interval, md.record_length(meta) or 0)
+        if found:
+            origin = found[0]
+            decisions.append(f"time origin: {found[1]}")
+
+    converted = any(p.counts is not None for p in plans)
+    layout = _layout_words(shape, comment_lines, block_lines, bool(side), time_source,
+                           bool(shape.datetime_columns), converted)
+    quantum = _time_quantum(shape, time_col) if time_col is not None else None
+    time_name = names.get(time_col, "time") if time_col is not None else "time"
+    return ReadPlan(time_col, index_col, tuple(plans), time_source, tfactor, interval, origin,
+                    origin_given, meta, layout, tuple(decisions), md.record_length(meta), quantum,
+                    time_name, tuple(warnings))
+
+
+def _names_and_units(shape: TextShape, meta: dict[str, str]) -> tuple[dict[int, str], dict[int, str]]:
+    """Column names and units (as written) from the header rows; settings
+    printed in extra columns of a names row and units row go into ``meta``."""
+    cols = list(shape.numeric_columns)
+    names: dict[int, str] = {}
+    units: dict[int, str] = {}
+    if not shape.header_rows:
+        return names, units
+    row = shape.header_rows[0]
+    for j in cols + list(shape.datetime_columns):
+        if j < len(row) and row[j]:
+            names[j], units[j] = split_name_unit(row[j])
+    if len(shape.header_rows) == 2:
+        urow = shape.header_rows[1]
+        for j in cols:
+            if j < len(urow) and urow[j]:
+                units[j] = _clean_unit(urow[j])
+        for j, key in enumerate(row):  # e.g. start time and increment beside the channels
+            if j not in cols and key and j < len(urow) and urow[j]:
+                meta.setdefault(key, urow[j])
+    return names, units
+
+
+def _choose_time_axis(shape: TextShape, names: dict[int, str], units: dict[int, str],
+                      meta: dict[str, str], interval: float | None, time_column: str | int | None,
+                      decisions: list[str], path: str) -> tuple[int | None, int | None, str]:
+    """(time column, sample-index column, time source) with the reason in ``decisions``.
+
+    Order: the --time-column option; a column named as time; a sample-index
+    column; wall-clock stamps; a first column that increases steadily; else
+    the sample interval. Raises CaptureError when the axis needs an interval
+    and there is none.
+    """
+    cols = list(shape.numeric_columns)
+    time_col = index_col = None
+    time_source = "column"
+    if time_column is not None:
+        key = str(time_column).strip()
+        if key.lower() in ("none", "0", ""):
+            time_source = "interval"
+            decisions.append("time: no time column (given)")
+        else:
+            time_col = _column_by_key(key, cols, names, path)
+            decisions.append(f"time: column {_col_label(time_col, names)} (given)")
+    else:
+        index_col = next((j for j in cols if units.get(j, "").lower() in INDEX_WORDS
+                          or names.get(j, "").lower() in INDEX_WORDS), None)
+        for j in cols:
+            base = names.get(j, "").lower()
+            if j != index_col and (base in TIME_NAMES or base.startswith("time")
+                                   or (base == "x" and time_factor(units.get(j, "")))):
+                time_col = j
+                break
+        if time_col is not None:
+            decisions.append(f"time: column {_col_label(time_col, names)} (its name says time)")
+        elif index_col is not None:
+            time_source = "index"
+            decisions.append(f"time: sample-index column {_col_label(index_col, names)} "
+                             "times the sample interval")
+        elif shape.datetime_columns:
+            time_source = "interval"
+            stamp = shape.data_cells[0][shape.datetime_columns[0]] if shape.data_cells else ""
+            meta.setdefault("first time stamp", stamp)
+            decisions.append("time: wall-clock stamps found; time axis built from the sample interval "
+                             f"(first stamp {stamp!r} kept in the metadata)")
+        elif len(cols) >= 2 and _increasing(shape, cols[0], shape.decimal, interval):
+            time_col = cols[0]
+            decisions.append(f"time: first column {_col_label(time_col, names)} taken as time "
+                             "(it increases steadily" + (" at the stated sample interval" if interval else "")
+                             + "; override with --time-column)")
+        else:
+            time_source = "interval"
+            if interval is not None:
+                decisions.append("time: no time column; axis built from the sample interval")
+    if time_source in ("interval", "index") and interval is None:
+        why = "wall-clock stamps are not a usable time axis" if shape.datetime_columns else "no time column"
+        raise CaptureError(f"{why} and no sample interval in the file", path=path,
+                           hint="give it with --sample-interval (for example --sample-interval 1u)")
+    return time_col, index_col, time_source
+
+
+def _channel_plans(shape: TextShape, channel_cols: list[int], names: dict[int, str],
+                   units: dict[int, str], meta: dict[str, str], value_unit: str | None,
+                   vertical_scale: float | None, vertical_offset: float | None,
+                   decisions: list[str]) -> list[ChannelPlan]:
+    """Name, unit and scaling of each channel column (raw counts converted to volts
+    with --vertical-scale, or with the file's metadata when the column holds integers
+    and no other unit)."""
+    single = len(channel_cols) == 1
+    source_name = meta.get("Source") if single else None
+    vertical_units = meta.get("Vertical Units") if single else None
+    plans: list[ChannelPlan] = []
+    for k, j in enumerate(channel_cols, start=1):
+        name = names.get(j) or source_name or f"ch{k}"
+        src_unit = _clean_unit(value_unit or units.get(j) or vertical_units or "")
+        counts = None
+        if vertical_scale is not None:
+            counts = (float(vertical_scale), 0.0, float(vertical_offset or 0.0))
+            decisions.append(f"channel {name!r}: values x {vertical_scale:g} V + "
+                             f"{vertical_offset or 0:g} V (given)")
+        elif src_unit.lower() in COUNT_WORDS or (not src_unit and _integers(shape, j)):
+            conv = md.counts_conversion(meta, name)
+            if conv:
+                counts = conv[:3]
+                decisions.append(f"channel {name!r}: {conv[3]}")
+        if counts is not None:
+            plans.append(ChannelPlan(j, name, src_unit or "counts", 1.0, "V", counts))
+            continue
+        factor, si = unit_scale(src_unit) if src_unit else (1.0, "")
+        plans.append(ChannelPlan(j, name, src_unit, factor, si))
+        if si:
+            decisions.append(f"channel {name!r}: unit {src_unit}" + (f" scaled to {si}" if factor != 1.0 else ""))
+    no_unit = [p.name for p in plans if not p.unit]
+    if no_unit:
+        decisions.append(f"no unit written for {', '.join(no_unit)}: values kept as they are "
+                         "(give --value-unit V if they are volts)")
+    return plans
+
+
+def _col_label(j: int, names: dict[int, str]) -> str:
+    return repr(names[j]) if j in names else f"{j + 1}"
+
+
+def _column_by_key(key: str, cols: list[int], names: dict[int, str], path: str) -> int:
+    if key.isdigit():
+        k = int(key)
+        if 1 <= k <= len(cols):
+            return cols[k - 1]
+    for j in cols:
+        if names.get(j, "").lower() == key.lower():
+            return j
+    listed = ", ".join(names.get(j, f"column {i}") for i, j in enumerate(cols, start=1))
+    raise CaptureError(f"no column {key!r} for the time axis; numeric columns: {listed}", path=path,
+                       hint="give --time-column a name or a 1-based position among these, or 'none'")
+
+
+def _numbers(shape: TextShape, j: int, decimal: str) -> list[float]:
+    out = []
+    for cells in shape.data_cells:
+        if j < len(cells):
+            try:
+                out.append(float(cells[j].replace(",", ".") if decimal == "," else cells[j]))
+            except ValueError:
+                pass
+    return out
+
+
+def _increasing(shape: TextShape, j: int, decimal: str, interval: float | None) -> bool:
+    """Column j increases strictly in the sample (and steps by ``interval``, when one is known)."""
+    v = _numbers(shape, j, decimal)
+    if len(v) < 3 or not all(b > a for a, b in zip(v, v[1:])):
+        return False
+    if interval is None:
+        return True
+    step = (v[-1] - v[0]) / (len(v) - 1)
+    return abs(step - interval) <= 0.01 * interval
+
+
+def _integers(shape: TextShape, j: int) -> bool:
+    cells = [c[j] for c in shape.data_cells if j < len(c)]
+    return bool(cells) and all(re.fullmatch(r"[+-]?\d+", c) for c in cells)
+
+
+def _time_quantum(shape: TextShape, j: int) -> tuple[str, int] | None:
+    """How the time stamps are printed: ('sig', digits) or ('fixed', decimals)."""
+    sig, fixed = [], []
+    for cells in shape.data_cells:
+        if j >= len(cells):
+            continue
+        c = cells[j].lstrip("+-")
+        m = re.fullmatch(r"(\d*)[.,]?(\d*)[eE][+-]?\d+", c)
+        if not re.search(r"[1-9]", m.group(1) + m.group(2) if m else c):
+            continue  # a zero says nothing about the precision
+        if m:
+            sig.append(len((m.group(1) + m.group(2)).lstrip("0")))
+            continue
+        m = re.fullmatch(r"\d*[.,](\d+)", c)
+        fixed.append(len(m.group(1)) if m else 0)
+    if sig and not fixed:
+        return ("sig", min(sig))
+    if fixed and not sig:
+        return ("fixed", min(fixed))
+    return None
+
+
+def _layout_words(shape: TextShape, comments, block, side: bool, time_source: str,
+                  stamps: bool, counts: bool) -> str:
+    parts = []
+    if comments:
+        parts.append("commented metadata")
+    if block:
+        parts.append("metadata block")
+    if side:
+        parts.append("metadata columns beside the data")
+    parts.append({0: "no header row", 1: "header row", 2: "names row and units row"}[len(shape.header_rows)])
+    if stamps:
+        parts.append("wall-clock time column, time axis from the sample interval")
+    elif time_source == "column":
+        parts.append("time column")
+    elif time_source == "index":
+        parts.append("sample-index column, time axis from start and increment")
+    else:
+        parts.append("no time column, time axis from the sample interval")
+    if counts:
+        parts.append("raw ADC counts converted to volts")
+    return ", ".join(parts)
+
+
+__all__ = ["ReadPlan", "ChannelPlan", "plan_read", "split_name_unit", "looks_like_unit", "time_factor"]
