@@ -8,7 +8,8 @@ change at the bench. The thresholds are common practice, no source:
 * too few samples across the rise: fewer than MIN_TRANSITION_SAMPLES sample
   intervals in the 10-90 % rise (or fall, or decay);
 * too little pre-edge baseline: fewer than MIN_BASELINE_SAMPLES samples
-  before the edge, or less time before the edge than half the rise time;
+  before the edge, or less than MIN_BASELINE_FRACTION of the segment's
+  window (a scope's pre-trigger is usually set to about 10 %);
 * clipped: a run of at least MIN_CLIPPED_RUN samples sitting exactly at the
   trace's largest or smallest value, in a trace whose noise would otherwise
   make neighbouring samples differ (noise above half a quantisation step);
@@ -27,6 +28,7 @@ from .segment import StepSegment
 
 MIN_TRANSITION_SAMPLES = 5
 MIN_BASELINE_SAMPLES = 10
+MIN_BASELINE_FRACTION = 0.02
 MIN_CLIPPED_RUN = 4
 
 
@@ -78,7 +80,8 @@ def segment_flags(segment: StepSegment, metrics: StepMetrics, *,
                      "is too coarse for the fastest time constant; use a faster sample rate")
     n_before = segment.n_before_edge
     before = float(segment.edge_time - segment.time[0]) if segment.time.size else 0.0
-    short_in_time = transition is not None and before < 0.5 * transition
+    window = float(segment.time[-1] - segment.time[0]) if segment.time.size > 1 else 0.0
+    short_in_time = before < MIN_BASELINE_FRACTION * window
     if n_before < MIN_BASELINE_SAMPLES or short_in_time:
         remedy = ("move the trigger point so more of the record comes before the edge" if segment.start == 0
                   else "a lower square-wave frequency or a faster sample rate gives each edge more "
