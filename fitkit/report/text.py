@@ -38,7 +38,8 @@ def render_fit_text(result: FitResult, quiet: bool = False) -> str:
     for kind in ("parameter", "derived", "component"):
         rows = [r for r in quantity_rows(result, skip_repeated=True) if r.kind == kind]
         if rows:
-            blocks.append(_quantity_table(_SECTION_TITLES[kind], rows))
+            preferred = (result.extra or {}).get("preferred") if kind == "component" else None
+            blocks.append(_quantity_table(_SECTION_TITLES[kind], rows, preferred))
     if result.selection:
         blocks.append(_candidates_table(result))
     if result.diagnostics is not None:
@@ -103,13 +104,20 @@ def _candidate_phrase(cand, crit: str) -> str:
     return f"{cand.model} ({crit} {cand.delta:+.1f} against the chosen form)"
 
 
-def _quantity_table(title: str, rows: Sequence[QuantityRow]) -> str:
-    table = [["name", "value", "95 % interval", "meaning"]]
+def _quantity_table(title: str, rows: Sequence[QuantityRow], preferred: dict | None = None) -> str:
+    """The table of one kind of quantity; ``preferred`` (components only: part ->
+    {"E24": value, "E24_deviation": x, ...}, see fitkit.partfit) adds a nearest-E24 column."""
+    table = [["name", "value", "95 % interval"] + (["nearest E24"] if preferred else []) + ["meaning"]]
     for row in rows:
         est = row.estimate
         value = value_text(est)
         interval = interval_text(est) if value != NOT_DETERMINED else ""
-        table.append([row.name, value, interval or "-", row.label])
+        cells = [row.name, value, interval or "-"]
+        if preferred:
+            p = preferred.get(row.name) if value != NOT_DETERMINED else None
+            cells.append(f"{format_quantity(p['E24'], est.unit, 3)} ({100 * p['E24_deviation']:+.1f} %)"
+                         if p and "E24" in p else "-")
+        table.append(cells + [row.label])
     return title + "\n" + "\n".join(_align(table))
 
 

@@ -1,0 +1,14 @@
+"""The board check: does this board match its design, and which part is off?
+
+* design.py     the design file: nominal circuit, tolerances, fixture, acceptance limits
+* envelope.py   the tolerance envelope (Monte Carlo, uniform within tolerance, plus corners)
+* response.py   the yardstick: how well fixed part values explain a capture (RSS, AICc)
+* diagnosis.py  fault hypotheses: each part alone, swaps, pairs; ranked by AICc; fault patterns
+* verdicts.py   per-quantity, per-part and overall verdicts from 95 % intervals
+* api.py        check_capture(capture, design, ...) -> CheckResult
+"""
+
+from .api import CheckResult, check_capture
+from .design import Design, PartSpec, load_design, loads_design
+
+__all__ = ["check_capture", "CheckResult", "load_design", "loads_design", "Design", "PartSpec"]

@@ -1,0 +1,253 @@
+"""check_capture: does this board match its design, and which part is off?
+
+Steps (each in its own module):
+
+1. conditioning: find the edges and cut the step segments;
+2. behavioural fit (fitkit.fitting.fit_segments) with the form the design's
+   order calls for: tau, f0, Q (and the DC gain when the input is measured)
+   with 95 % intervals;
+3. tolerance envelope (envelope.py): the responses and quantity ranges the
+   design allows; the capture compared with it;
+4. fault hypotheses (diagnosis.py): each part alone, swaps, ranked by AICc;
+5. verdicts (verdicts.py): per quantity, per part, overall, and what would
+   resolve an inconclusive check.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..capture import Capture
+from ..circuits import transfer_function
+from ..conditioning import analyse_steps
+from ..errors import FitkitError
+from ..results import Estimate, FitResult
+from .design import Design, load_design, resolve_limits
+from .diagnosis import Diagnosis, diagnose
+from .envelope import Envelope, EnvelopeComparison, compare, tolerance_envelope
+from .response import analysed_circuit, uses_measured_input
+from .verdicts import (PartVerdict, QuantityVerdict, judge_parts, judge_quantities, overall_verdict,
+                       resolve_hints, tolerance_widening)
+
+#: Points on which the envelope is evaluated.
+ENVELOPE_POINTS = 600
+#: Relative spread of the DC gain over the tolerances below which the gain is not judged.
+GAIN_MIN_SPREAD = 0.01
+#: Vertical gain accuracy of a scope channel, relative (typical 1-2 %; common practice, no source).
+SCOPE_GAIN_ACCURACY = 0.02
+
+
+@dataclass(frozen=True)
+class CheckResult:
+    """Everything the board check found.
+
+    verdict: "pass", "fail" or "inconclusive".
+    summary: one line for logs and batch tables.
+    components: per-part verdicts (PartVerdict), design order.
+    quantities: per-quantity verdicts (QuantityVerdict).
+    suspects: ranked fault hypotheses (diagnosis.Suspect), best first; empty
+        when the diagnosis could not run.
+    envelope: the tolerance envelope; envelope_comparison: the capture against it.
+    resolve: what would resolve an inconclusive verdict.
+    warnings: plain-language warnings (conditioning, fit, diagnosis).
+    fit: the behavioural FitResult.
+    diagnosis: the full Diagnosis (None when it could not run).
+    envelope_volts: (time s, low V, high V) of the first segment's envelope, for plots.
+    """
+
+    file: str
+    design: Design
+    verdict: str
+    summary: str
+    components: tuple[PartVerdict, ...]
+    quantities: tuple[QuantityVerdict, ...]
+    suspects: tuple
+    envelope: Envelope
+    envelope_comparison: EnvelopeComparison | None
+    resolve: tuple[str, ...]
+    warnings: tuple[str, ...]
+    fit: FitResult
+    diagnosis: Diagnosis | None
+    measured_input: bool
+    envelope_volts: tuple[np.ndarray, np.ndarray, np.ndarray] | None = field(default=None, repr=False)
+
+    def to_dict(self) -> dict[str, Any]:
+        env = self.envelope.to_dict()
+        if self.envelope_comparison is not None:
+            env["capture"] = self.envelope_comparison.to_dict()
+        return {
+            "file": self.file, "design": self.design.name, "design_file": self.design.path,
+            "verdict": self.verdict, "summary": self.summary,
+            "model_driven_by": "measured input" if self.measured_input else "ideal step (no input channel)",
+            "components": {c.part: c.to_dict() for c in self.components},
+            "quantities": {q.name: q.to_dict() for q in self.quantities},
+            "suspects": [s.to_dict() for s in self.suspects],
+            "diagnosis": [] if self.diagnosis is None else list(self.diagnosis.messages),
+            "envelope": env, "resolve": list(self.resolve), "warnings": list(self.warnings),
+            "fit": self.fit.to_dict(),
+        }
+
+    def plot(self, path=None, ax=None):
+        """The capture and fit with the tolerance envelope behind and the suspects named
+        (fitkit.report.check_plots.plot_check)."""
+        from ..report.check_plots import plot_check
+        return plot_check(self, path=path, ax=ax)
+
+
+def behavioural_form(design: Design, measured_input: bool) -> str:
+    """The step-response form matching the design's order and kind."""
+    tf = transfer_function(analysed_circuit(design.circuit, measured_input))
+    zeros_at_origin = len(tf.num) > 1 and tf.num[-1] == 0
+    if tf.order == 1:
+        return "first-order-decay" if zeros_at_origin or abs(tf.dc_gain) < 1e-9 else "first-order"
+    if tf.order == 2 and len(tf.num) == 1:
+        return "second-order"
+    return "auto"
+
+
+def check_capture(capture: Capture, design: Design | str | Path, *, input: str | int | None = None,
+                  output: str | int | None = None, average: bool = False, envelope_trials: int = 200,
+                  seed: int = 0, edge_time: float | None = None, part_fitter: str = "quick") -> CheckResult:
+    """Check one capture against a design (a Design or a design file path).
+
+    part_fitter: "quick" (default) or "partfit" for the single-part fits (diagnosis.py).
+    Raises FitkitError (DesignError, CaptureError, ConditioningError, FitError)
+    when the inputs cannot be used; a board that fails is a result, not an error.
+    """
+    from ..fitting import fit_segments
+
+    if not isinstance(design, Design):
+        design = load_design(design)
+    file = capture.provenance.path
+    analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average)
+    segments = analysis.segments
+    measured = uses_measured_input(segments)
+    warnings = list(analysis.flags)
+    # The behavioural fit is driven by an ideal step (the generator's), so its
+    # tau / f0 / Q are those of the circuit with the whole fixture; the gain is
+    # judged model-free from the levels when the input is measured.
+    form = behavioural_form(design, False)
+    fit = fit_segments(segments, form, file=file, measured_input=False)
+    warnings += list(fit.warnings)
+    estimates = {k: v for k, v in {**fit.derived, **fit.parameters}.items() if k in ("tau", "f0", "Q")}
+    if measured:
+        estimates["gain"] = _level_gain(segments)
+
+    seg = segments[0]
+    after = seg.time[seg.time >= seg.edge_time] - seg.edge_time
+    span = float(after.max()) if after.size else 1.0
+    t_env = np.linspace(0.0, span, ENVELOPE_POINTS)
+    envelope = tolerance_envelope(design, t_env, trials=envelope_trials, seed=seed, measured_input=False)
+    limits = _default_limits(envelope, measured)
+    design_limits = resolve_limits(design, envelope.nominal_quantities)
+    limits.update(design_limits)
+    quantities = judge_quantities(estimates, limits, list(design_limits), envelope.nominal_quantities)
+
+    comparison, env_volts = _compare(envelope, segments, measured)
+
+    diagnosis = None
+    try:
+        diagnosis = diagnose(design, segments, file=file, measured_input=measured, part_fitter=part_fitter)
+    except FitkitError as exc:
+        warnings.append(f"fault diagnosis did not run: {exc.message}")
+    widening = tolerance_widening(design, gain_known=measured)
+    if diagnosis is not None:
+        components = judge_parts(design, diagnosis.estimates, diagnosis.leaders, diagnosis.undetermined, widening)
+        warnings += [m for m in diagnosis.messages if m.startswith("no single part")]
+    else:
+        components = judge_parts(design, {}, (), tuple(design.parts), widening)
+    verdict = overall_verdict(quantities, components)
+    if comparison is not None and comparison.fraction_outside > 0.2 and verdict == "pass":
+        warnings.append(f"{100 * comparison.fraction_outside:.0f} % of the samples lie outside the tolerance "
+                        "envelope by more than 3 noise sigma although every quantity is within its limits")
+    tied = [s.part for s in (diagnosis.suspects if diagnosis else ()) if s.tied]
+    resolve = ()
+    if verdict == "inconclusive":
+        tf = transfer_function(analysed_circuit(design.circuit, measured))
+        poles = np.abs(tf.poles.real)
+        poles = poles[poles > 0]
+        resolve = resolve_hints(quantities, components, tied=tied if len(tied) > 1 else (),
+                                sample_interval=analysis.sample_interval,
+                                fastest_time=float(1 / poles.max()) if poles.size else None,
+                                record_length=span, slowest_time=float(1 / poles.min()) if poles.size else None,
+                                edges=len(segments))
+    summary = _summary(verdict, quantities, diagnosis, design)
+    return CheckResult(file, design, verdict, summary, components, quantities,
+                       diagnosis.suspects if diagnosis else (), envelope, comparison, tuple(resolve),
+                       tuple(dict.fromkeys(warnings)), fit, diagnosis, measured, env_volts)
+
+
+def _level_gain(segments) -> Estimate:
+    """DC gain from the settled levels: (final - baseline) / (input step), averaged over
+    the segments; the interval holds the noise of the levels and SCOPE_GAIN_ACCURACY."""
+    ratios, rel = [], []
+    for s in segments:
+        step_in = s.input_after - s.input_before
+        ratios.append((s.final - s.baseline) / step_in)
+        rel.append(3 * s.noise_rms / max(abs(s.final - s.baseline), 1e-30))
+    g = float(np.mean(ratios))
+    half = abs(g) * (SCOPE_GAIN_ACCURACY + float(np.mean(rel)))
+    return Estimate("gain", g, half / 1.96, (g - half, g + half), "", "settled levels; scope gain accuracy", True)
+
+
+def _default_limits(envelope: Envelope, measured: bool) -> dict[str, tuple[float, float]]:
+    """The envelope's ranges as limits. The DC gain is judged only when the input is
+    measured and the tolerances move it by more than GAIN_MIN_SPREAD (a passive
+    filter's gain is set by the probe, not the parts); its range is then widened
+    (the scope's vertical gain error is in the measured gain's interval instead)."""
+    limits = dict(envelope.ranges)
+    g = limits.pop("gain", None)
+    if measured and g is not None:
+        mid = 0.5 * (g[0] + g[1])
+        if mid != 0 and abs(g[1] - g[0]) / abs(mid) > GAIN_MIN_SPREAD:
+            limits["gain"] = g
+    return limits
+
+
+def _compare(envelope: Envelope, segments, measured: bool):
+    results = []
+    env_volts = None
+    gain = envelope.nominal_quantities.get("gain", 1.0)
+    for seg in segments:
+        if measured:
+            step = seg.input_after - seg.input_before
+        else:
+            step = seg.step_size / gain if math.isfinite(gain) and abs(gain) > 1e-9 else seg.step_size
+        if not math.isfinite(step) or step == 0:
+            continue
+        results.append(compare(envelope, seg.time - seg.edge_time, seg.output, baseline=seg.baseline, step=step,
+                               noise_rms=seg.noise_rms))
+        if env_volts is None:
+            lo = seg.baseline + step * envelope.low
+            hi = seg.baseline + step * envelope.high
+            env_volts = (seg.edge_time + envelope.time, np.minimum(lo, hi), np.maximum(lo, hi))
+    if not results:
+        return None, None
+    n = sum(r.n_samples for r in results)
+    frac = sum(r.fraction_outside * r.n_samples for r in results) / n if n else float("nan")
+    return EnvelopeComparison(frac, max(r.max_excursion for r in results), results[0].margin, n), env_volts
+
+
+def _fmt(v: float, unit: str) -> str:
+    from ..units import format_value
+    return format_value(v, unit)
+
+
+def _summary(verdict: str, quantities, diagnosis: Diagnosis | None, design: Design) -> str:
+    bits = [verdict]
+    off = [q for q in quantities if q.verdict != "within"]
+    if off:
+        bits.append(", ".join(f"{q.name} {_fmt(q.value, q.unit) if q.value is not None else '?'} "
+                              f"{q.verdict} [{_fmt(q.low, q.unit)}, {_fmt(q.high, q.unit)}]" for q in off))
+    elif quantities:
+        bits.append("behaviour within limits (" + ", ".join(q.name for q in quantities) + ")")
+    if diagnosis is not None and verdict != "pass" and diagnosis.suspects:
+        lead = [s for s in diagnosis.suspects if s.tied]
+        text = " or ".join(s.part + (f" {_fmt(s.value, s.unit)}" if s.value is not None else "") for s in lead)
+        bits.append(f"suspect {text}: {lead[0].pattern}")
+    return "; ".join(bits)

@@ -1,0 +1,262 @@
+"""`fitkit fit FILE [OUT_FILE]`: fit a step response and print it with 95 % intervals."""
+
+from __future__ import annotations
+
+import json
+
+import click
+
+from ..units import format_interval, format_value, parse_value
+from .capture_options import CaptureOptions, capture_options
+
+#: Plain-words labels for the quantities in the text table.
+LABELS = {
+    "tau": "time constant", "tau1": "slow time constant", "tau2": "fast time constant",
+    "tau3": "third time constant", "f0": "natural frequency", "omega0": "natural angular frequency",
+    "Q": "quality factor", "zeta": "damping ratio", "baseline": "baseline", "step": "step",
+    "gain": "DC gain", "t0": "edge time", "bandwidth_3db": "-3 dB bandwidth", "rise_time": "rise time 10-90 %",
+    "overshoot": "overshoot", "settling_time_2pct": "settling time 2 %", "damped_frequency": "ringing frequency",
+    "peak_time": "peak time", "cutoff_3db": "-3 dB corner", "decay_time": "decay time 90-10 %",
+}
+
+
+def _row(est) -> str:
+    label = f"{est.name} ({LABELS[est.name]})" if est.name in LABELS else est.name
+    if not est.determined:
+        return f"  {label:<40} {'not determined':<14} the data do not fix this quantity"
+    unit = "" if est.unit == "%" else est.unit
+    value = format_value(est.value, unit) + (" %" if est.unit == "%" else "")
+    interval = "held fixed" if est.interval_method == "held fixed" else (
+        format_interval(est.ci95[0], est.ci95[1], unit, digits=4) + (" %" if est.unit == "%" else "")
+        if est.ci95 else "n/a")
+    return f"  {label:<40} {value:<14} {interval:<30} {est.interval_method}"
+
+
+def render_text(result) -> str:
+    """The fit as a readable table of our own layout (all numbers in engineering notation)."""
+    d = result.diagnostics
+    lines = [f"step-response fit of {result.file or '(in memory)'}",
+             f"  form:   {result.model} - {result.extra.get('form_summary', '')}",
+             f"  chosen: {result.selection_reason}",
+             f"  mode:   {result.extra.get('mode', '')}, {len(result.extra.get('edges', []))} edge(s) fitted jointly",
+             "", "parameters (value, 95 % interval, how the interval was found)"]
+    lines += [_row(e) for e in result.parameters.values()]
+    shown = set(result.parameters)
+    derived = [e for e in result.derived.values() if e.name not in shown]
+    if derived:
+        lines += ["", "derived quantities"] + [_row(e) for e in derived]
+    if len(result.selection) > 1:
+        lines += ["", f"forms compared ({d.criterion_name if d else 'criterion'}; lower is better)"]
+        for c in result.selection:
+            crit = "did not converge" if not c.converged else f"{c.delta:+9.1f}"
+            lines.append(f"  {c.model:<20} {c.n_parameters:>2} parameters  {crit:<16} {c.note}")
+    if d is not None:
+        lines += ["", "residuals",
+                  f"  {d.n_samples} points fitted; rms residual {format_value(d.rms_residual, 'V')}"
+                  f" against a noise estimate of {format_value(d.noise_rms, 'V')}",
+                  f"  lag-1 autocorrelation {d.residual_lag1:.2f}; about {d.effective_samples:.0f} "
+                  f"independent samples",
+                  f"  correlated-noise correction: {d.correction}"]
+    lines += ["", "warnings:" + ("" if result.warnings else " none")]
+    lines += [f"  - {w}" for w in result.warnings]
+    return "\n".join(lines)
+
+
+# -- component values: --circuit / --topology (see fitkit.partfit) -------------------
+
+def circuit_options(f):
+    """The options that turn `fitkit fit` into a solve for component values."""
+    from ..circuits.description import PROBE_PRESETS
+    opts = [
+        click.option("--circuit", "circuit_file", metavar="FILE.toml", default=None,
+                     help="Circuit file (see docs/circuit-format.md): solve its unknown parts."),
+        click.option("--topology", metavar="NAME", default=None,
+                     help="A library circuit (see `fitkit circuits`) instead of a file."),
+        click.option("--known", multiple=True, metavar="R1=10k,R2=10k",
+                     help="Known part values; with --topology, parts not listed are unknown."),
+        click.option("--unknown", "unknown_parts", multiple=True, metavar="C1,C2",
+                     help="Parts to solve (default: those not given with --known, or marked ? in the file)."),
+        click.option("--design-values", multiple=True, metavar="C1=100n,...",
+                     help="Design values of unknown parts, to rank several solutions."),
+        click.option("--probe", type=click.Choice(sorted(PROBE_PRESETS)), default=None,
+                     help="Include this probe's loading at the measured node in the circuit."),
+        click.option("--source-resistance", metavar="OHMS", default=None, is_flag=False, flag_value="50",
+                     help="Include the generator's source resistance (50 Ohm when no value is given)."),
+    ]
+    for opt in reversed(opts):
+        f = opt(f)
+    return f
+
+
+def _pairs(items, option: str) -> dict[str, str]:
+    from ..errors import OptionError
+    out: dict[str, str] = {}
+    for item in items:
+        for piece in (x.strip() for x in item.split(",")):
+            if not piece:
+                continue
+            if "=" not in piece:
+                raise OptionError(f"{option} {piece!r} is not NAME=VALUE", hint=f"write e.g. {option} R1=10k")
+            name, value = (x.strip() for x in piece.split("=", 1))
+            out[name] = value
+    return out
+
+
+class CircuitArgs:
+    """The circuit options of one `fitkit fit` call, turned into a Circuit and a fit."""
+
+    def __init__(self, circuit_file, topology, known, unknown_parts, design_values, probe, source_resistance):
+        self.circuit_file, self.topology = circuit_file, topology
+        self.known = _pairs(known, "--known")
+        self.unknown = [n.strip() for item in unknown_parts for n in item.split(",") if n.strip()]
+        self.design = _pairs(design_values, "--design-values")
+        self.probe, self.source_resistance = probe, source_resistance
+
+    @classmethod
+    def pop(cls, kwargs: dict) -> "CircuitArgs":
+        return cls(*(kwargs.pop(k) for k in ("circuit_file", "topology", "known", "unknown_parts",
+                                              "design_values", "probe", "source_resistance")))
+
+    @property
+    def wanted(self) -> bool:
+        from ..errors import OptionError
+        if self.circuit_file and self.topology:
+            raise OptionError("--circuit and --topology were both given", hint="give one of them")
+        if not (self.circuit_file or self.topology):
+            extra = [o for o, v in (("--known", self.known), ("--unknown", self.unknown),
+                                    ("--design-values", self.design), ("--probe", self.probe),
+                                    ("--source-resistance", self.source_resistance)) if v]
+            if extra:
+                raise OptionError(f"{extra[0]} needs a circuit", hint="add --circuit FILE.toml or --topology NAME")
+            return False
+        return True
+
+    def circuit(self):
+        from dataclasses import replace
+        from ..circuits import load_circuit, probe_chain, topology
+        from ..circuits.topologies import apply_part_settings, get_topology
+        from ..errors import OptionError
+        if self.topology:
+            names = get_topology(self.topology).part_names
+            base = topology(self.topology)
+            unknown = self.unknown or [p.name for p in base.parts
+                                       if p.kind != "amplifier" and p.name not in self.known]
+            for n in base.parts:
+                if n.kind != "amplifier" and n.name not in self.known and n.name not in unknown:
+                    raise OptionError(f"part {n.name} of {self.topology} is neither known nor unknown",
+                                      hint=f"give its value with --known {n.name}=VALUE or list it in --unknown")
+            for n in list(self.known) + unknown:
+                if n not in names:
+                    raise OptionError(f"{self.topology} has no part {n!r}", hint="its parts are " + ", ".join(names))
+            settings = dict(self.known, **{n: "?" for n in unknown})
+            circuit = topology(self.topology, **settings)
+        else:
+            circuit = load_circuit(self.circuit_file)
+            if self.known:
+                circuit = apply_part_settings(circuit, self.known)
+            unknown = self.unknown or [n for n in circuit.unknowns if n not in self.known]
+            circuit = circuit.with_unknowns(unknown)
+        chain = circuit.chain
+        source = None
+        if self.source_resistance is not None:
+            source = parse_value(self.source_resistance, "Ohm")
+            chain = replace(chain, source_resistance=source)
+        if self.probe:
+            chain = probe_chain(self.probe, chain.source_resistance)
+        return circuit.with_chain(chain)
+
+    def fit(self, capture, *, model: str, **kwargs):
+        from ..errors import OptionError
+        from ..partfit import fit_circuit
+        if model != "auto":
+            raise OptionError("--model cannot be combined with --circuit or --topology",
+                              hint="the circuit decides the response's form; drop --model")
+        circuit = self.circuit()
+        design = {}
+        for n, v in self.design.items():
+            design[n] = parse_value(v, circuit.part(n).unit or None)
+        return fit_circuit(capture, circuit, design_values=design or None, **kwargs)
+
+
+def components_text(result) -> str:
+    """The components block: each part with its 95 % interval, nearest E24 / E96 value and
+    how well it is determined; other solutions; the measurement chain's effect."""
+    extra = result.extra or {}
+    lines = ["component values (value, 95 % interval, nearest preferred value, how well determined)"]
+    for name, est in result.components.items():
+        if not est.determined:
+            lines.append(f"  {name:<8} {'not determined':<14} {est.interval_method}")
+            continue
+        pref = extra.get("preferred", {}).get(name, {})
+        near = "  ".join(f"{s} {format_value(pref[s], est.unit, 3)} ({100 * pref[s + '_deviation']:+.1f} %)"
+                         for s in ("E24", "E96") if s in pref)
+        status = extra.get("determination", {}).get(name, {}).get("status", "")
+        interval = format_interval(est.ci95[0], est.ci95[1], est.unit, digits=3) if est.ci95 else "n/a"
+        lines.append(f"  {name:<8} {format_value(est.value, est.unit):<14} {interval:<28} {near}   {status}")
+    solutions = extra.get("solutions") or []
+    if len(solutions) > 1:
+        lines += ["", f"other solutions that fit equally well ({len(solutions)} in all; first = reported above)"]
+        for sol in solutions[1:]:
+            vals = ", ".join(f"{n} = {format_value(v, result.components[n].unit)}"
+                             for n, v in sol["values"].items() if v is not None)
+            lines.append(f"  {vals}")
+    ident = extra.get("identifiability") or {}
+    if ident.get("undetermined"):
+        lines += ["", "identifiability"] + [f"  {m}" for m in ident.get("messages", [])]
+    if extra.get("routes_agree") is not None:
+        form = (extra.get("behavioural_route") or {}).get("form", "behavioural")
+        word = "agree" if extra["routes_agree"] else "DISAGREE"
+        lines += ["", f"two routes: the {form} fit mapped to parts and the direct fit {word} "
+                      "within their 95 % intervals"]
+    chain = extra.get("chain_effect")
+    if chain:
+        lines += ["", "measurement chain"] + [f"  {m}" for m in chain.get("messages", [])]
+    return "\n".join(lines)
+
+
+def with_components(text: str, result) -> str:
+    """The fit's text with the components block placed before its warnings (when it has components)."""
+    if not result.components:
+        return text
+    block = components_text(result)
+    head, sep, tail = text.partition("\nwarnings:")
+    return f"{head.rstrip()}\n\n{block}\n{sep}{tail}" if sep else f"{text}\n\n{block}"
+
+
+@click.command("fit")
+@click.argument("file", type=click.Path(dir_okay=False))
+@click.argument("out_file", required=False, type=click.Path(dir_okay=False))
+@capture_options
+@click.option("--model", default="auto", show_default=True, metavar="auto|NAME",
+              help="Form to fit (see `fitkit forms`), or auto to choose among the usual ones.")
+@click.option("--edge-time", metavar="SECONDS", default=None,
+              help="Fit only the edge at this time (e.g. 12.5u).")
+@click.option("--average", is_flag=True, help="Average the edges coherently before fitting.")
+@click.option("--intervals", type=click.Choice(["auto", "covariance", "profile"]), default="auto",
+              show_default=True, help="How 95 % intervals of the shape parameters are found.")
+@click.option("--json", "as_json", is_flag=True, help="Print the result as one JSON object.")
+@circuit_options
+def fit(file: str, out_file: str | None, model: str, edge_time: str | None, average: bool,
+        intervals: str, as_json: bool, **kwargs) -> None:
+    """Fit the step response in FILE: time constants, f0, Q and gain with 95 % intervals.
+
+    With OUT_FILE, FILE holds the input (drive) and OUT_FILE the output.
+    When an input channel is present the model is driven by the measured input.
+    """
+    from ..fitting import fit_capture
+
+    options = CaptureOptions.pop(kwargs)
+    capture = options.load(file, out_file)
+    inp, out = options.roles(capture)
+    t_edge = None if edge_time is None else parse_value(edge_time, "s")
+    circuit_args = CircuitArgs.pop(kwargs)
+    if circuit_args.wanted:
+        result = circuit_args.fit(capture, model=model, input=inp, output=out, edge_time=t_edge,
+                                  average=average, intervals=intervals)
+    else:
+        result = fit_capture(capture, model=model, input=inp, output=out, edge_time=t_edge,
+                             average=average, intervals=intervals)
+    if as_json:
+        click.echo(json.dumps(result.to_dict(), allow_nan=False))
+    else:
+        click.echo(with_components(render_text(result), result))

@@ -1,0 +1,221 @@
+"""The fitting entry points: fit_capture (from a Capture) and fit_segments.
+
+Both return a :class:`fitkit.results.FitResult` holding the chosen form, its
+parameters and derived quantities with 95 % intervals, the selection
+evidence, residual diagnostics and plain-words warnings.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Iterable, Mapping, Sequence
+
+import numpy as np
+
+from ..capture import Capture
+from ..conditioning.segment import StepSegment
+from ..errors import FitError
+from ..forms import FORMS, get_form
+from ..forms.base import Form
+from ..results import Estimate, FitDiagnostics, FitResult, FittedSegment
+from .engine import FormFit, fit_form
+from .estimates import derived_estimates, level_estimates, shape_estimates
+from .selection import (CRITERION, FALLBACK_CANDIDATES, Candidate, admissibility, choose,
+                        default_candidates, needs_fallback)
+
+#: RMS residual above this multiple of the expected noise means the form does not describe the data.
+STRUCTURE_RATIO = 1.5
+
+
+def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
+                 candidates: Iterable[str | Form] | None = None, intervals: str = "auto",
+                 correlation: str = "auto", measured_input: bool | None = None,
+                 start: Mapping[str, float] | None = None, fixed: Mapping[str, float] | None = None,
+                 file: str = "", warnings: Iterable[str] = (), derived: bool = True) -> FitResult:
+    """Fit step segments with a named form, or choose among candidates ("auto").
+
+    intervals: "auto" (covariance on the log scale, profile likelihood where
+        the sum of squares is asymmetric), "covariance" or "profile".
+    correlation: "auto", "on" or "off" for the correlated-residual correction.
+    measured_input: drive the form with the measured input (default: when
+        every segment has an input channel).
+    start, fixed: physical values by trade name (see engine.fit_form).
+    derived: False skips the derived quantities (faster, for Monte Carlo studies).
+    Raises FitError when the chosen form does not converge or nothing is determined.
+    """
+    segments = tuple(segments)
+    if not segments:
+        raise FitError("no step segments to fit", path=file or None,
+                       hint="check that the capture holds at least one edge")
+    if intervals not in ("auto", "covariance", "profile"):
+        raise FitError(f"unknown interval method {intervals!r}", hint="use auto, covariance or profile")
+    dt = _sample_interval(segments)
+    kwargs = dict(measured_input=measured_input, start=start, fixed=fixed, correlation=correlation)
+    if form != "auto":
+        chosen_form = form if isinstance(form, Form) else get_form(form)
+        ff = fit_form(segments, chosen_form, **kwargs)
+        if not ff.converged:
+            raise FitError(f"the {chosen_form.name} fit did not converge ({ff.fit.message})", path=file or None,
+                           hint="try --model auto or another form")
+        shape, notes = shape_estimates(ff, intervals)
+        ok, why = admissibility(chosen_form, shape, dt)
+        if not ok and "outside this form's range" in why:
+            raise FitError(f"the {chosen_form.name} form does not describe this response: {why}",
+                           path=file or None, hint="try --model auto or another form")
+        extra_warn = list(notes)
+        if not ok:
+            extra_warn.append(f"{chosen_form.name}: {why}")
+        cand = Candidate(chosen_form, ff, shape, ok, why)
+        _, scores, _, _ = choose([cand]) if ok else (None, (), "", [])
+        reason = f"{chosen_form.name} was asked for"
+        return _build(cand, scores, reason, extra_warn + list(warnings), file, segments, derived)
+    forms = [f if isinstance(f, Form) else get_form(f) for f in candidates] if candidates \
+        else default_candidates(_returns_to_baseline(segments))
+    cands: list[Candidate] = []
+    queue = list(forms)
+    while queue:
+        f = queue.pop(0)
+        try:
+            ff = fit_form(segments, f, **kwargs)
+        except FitError as err:
+            cands.append(Candidate(f, None, {}, False, err.message))
+            continue
+        if not ff.converged:
+            cands.append(Candidate(f, ff, {}, False, "did not converge"))
+            continue
+        shape, _ = shape_estimates(ff, "covariance")
+        ok, why = admissibility(f, shape, dt)
+        cands.append(Candidate(f, ff, shape, ok, why))
+        if not queue and candidates is None and needs_fallback(cands):
+            tried = {c.form.name for c in cands}
+            queue = [FORMS[n] for n in FALLBACK_CANDIDATES if n in FORMS and n not in tried]
+    chosen, scores, reason, sel_warn = choose(cands)
+    shape, notes = shape_estimates(chosen.fit, intervals)
+    chosen = Candidate(chosen.form, chosen.fit, shape, True, "")
+    return _build(chosen, scores, reason, sel_warn + notes + list(warnings), file, segments, derived)
+
+
+def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = None,
+                output: str | None = None, edge_time: float | None = None, average: bool = False,
+                candidates: Iterable[str] | None = None, intervals: str = "auto") -> FitResult:
+    """Find the steps in a capture (fitkit.conditioning.analyse_steps) and fit them.
+
+    model: a form name or "auto" (model selection among ``candidates``).
+    input, output: channel names/positions (default: conditioning's choice).
+    edge_time: seconds, to fit only the edge nearest this time.
+    average: coherently average the edges before fitting.
+    """
+    from ..conditioning import analyse_steps  # written alongside; imported when used
+
+    analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average)
+    warnings = list(capture.warnings) + list(getattr(analysis, "flags", ()))
+    for seg in analysis.segments:
+        warnings.extend(f for f in seg.flags if f not in warnings)
+    path = capture.provenance.path
+    try:
+        return fit_segments(analysis.segments, model, candidates=candidates, intervals=intervals,
+                            file=path, warnings=warnings)
+    except FitError as err:
+        if err.path is None and path:
+            raise FitError(err.message, path=path, hint=err.hint) from None
+        raise
+
+
+# -- assembling the result ------------------------------------------------------
+
+def _build(cand: Candidate, scores: tuple, reason: str, warnings: list[str], file: str,
+           segments: Sequence[StepSegment], with_derived: bool = True) -> FitResult:
+    ff = cand.fit
+    assert ff is not None
+    shape = cand.shape
+    if not any(e.determined for e in shape.values()) and shape:
+        raise FitError(f"the {ff.form.name} fit converged but none of its parameters is determined by the data",
+                       path=file or None, hint="capture more of the response or reduce the noise")
+    params = dict(shape)
+    params.update(level_estimates(ff, 0))
+    derived = derived_estimates(ff) if with_derived else {}
+    _add_gain(ff, params, derived)
+    for name, est in list(params.items()) + list(derived.items()):
+        if not est.determined:
+            warnings.append(f"{name} is not determined by the data (interval unbounded); not a measurement")
+    diagnostics, diag_warn = _diagnostics(ff, segments)
+    fitted = _fitted_segments(ff)
+    edges = [{k: v.to_dict() for k, v in level_estimates(ff, i).items()} for i in range(len(segments))]
+    seen: list[str] = []
+    for w in warnings + diag_warn:
+        if w not in seen:
+            seen.append(w)
+    extra = {"form_summary": ff.form.summary, "edges": edges,
+             "mode": "measured input" if ff.joint.measured_input else "ideal step",
+             "bin_size": max(d.bin_size for d in ff.joint.data)}
+    return FitResult(file=file, model=ff.form.name, parameters=params, derived=derived, selection=scores,
+                     selection_reason=reason, diagnostics=diagnostics, segments=fitted,
+                     warnings=tuple(seen), extra=extra)
+
+
+def _add_gain(ff: FormFit, params: dict[str, Estimate], derived: dict[str, Estimate]) -> None:
+    """DC gain (output step / input step) and, in measured-input mode, the output step."""
+    seg = ff.joint.segments[0]
+    if seg.input_before is None or seg.input_after is None:
+        return
+    in_step = seg.input_after - seg.input_before
+    if in_step == 0:
+        return
+    if "gain" in params:  # measured-input mode: the step follows from the gain
+        g = params["gain"]
+        ci = None if g.ci95 is None else tuple(sorted((g.ci95[0] * in_step, g.ci95[1] * in_step)))
+        derived["step"] = Estimate("step", g.value * in_step, None if g.stderr is None else g.stderr * abs(in_step),
+                                   ci, "V", g.interval_method, g.determined)
+    elif "step" in params:
+        s = params["step"]
+        ci = None if s.ci95 is None else tuple(sorted((s.ci95[0] / in_step, s.ci95[1] / in_step)))
+        derived["gain"] = Estimate("gain", s.value / in_step, None if s.stderr is None else s.stderr / abs(in_step),
+                                   ci, "", s.interval_method, s.determined)
+
+
+def _diagnostics(ff: FormFit, segments: Sequence[StepSegment]) -> tuple[FitDiagnostics, list[str]]:
+    fit, sc, corr = ff.fit, ff.joint.scaling, ff.correction
+    rms = math.sqrt(fit.rss / max(fit.n, 1)) * sc.volt_unit
+    noises = [s.noise_rms for s in segments if math.isfinite(s.noise_rms) and s.noise_rms > 0]
+    noise = float(np.median(noises)) if noises else math.nan
+    # the residuals are weighted by sqrt(samples per point): rms is per sample
+    expected = noise
+    shape_idx = [i for i, n in enumerate(fit.names) if n.startswith("log_")]
+    widening = float(max((corr.widening[i] for i in shape_idx), default=1.0))
+    structured = bool(math.isfinite(expected) and rms > STRUCTURE_RATIO * expected)
+    warnings = []
+    if structured:
+        warnings.append(f"residuals ({rms:.3g} V rms) are {rms / expected:.1f} times the noise "
+                        f"({expected:.3g} V rms): the {ff.form.name} form does not fully describe the response")
+    elif corr.applied and abs(corr.lag1) > 0.9 and not math.isfinite(expected):
+        warnings.append("residuals are strongly correlated; the form may not fully describe the response")
+    correction = corr.description
+    if corr.applied:
+        correction += f"; intervals widened up to x{widening:.2f}"
+    diag = FitDiagnostics(n_samples=fit.n, rms_residual=rms, noise_rms=noise, residual_lag1=corr.lag1,
+                          effective_samples=fit.n / corr.variance_ratio, ci_widening=widening,
+                          correction=correction, structured_residual=structured, criterion_name=CRITERION)
+    return diag, warnings
+
+
+def _fitted_segments(ff: FormFit) -> tuple[FittedSegment, ...]:
+    sc = ff.joint.scaling
+    out = []
+    for seg, d, piece in zip(ff.joint.segments, ff.joint.data, ff.joint.split(ff.fit.fitted)):
+        time = seg.edge_time + d.t_point * sc.time_unit
+        data = sc.volt_origin + d.y * sc.volt_unit
+        out.append(FittedSegment(time=time, data=data, fitted=sc.volt_origin + piece * sc.volt_unit,
+                                 edge_time=seg.edge_time, direction=seg.direction))
+    return tuple(out)
+
+
+def _sample_interval(segments: Sequence[StepSegment]) -> float:
+    d = np.diff(np.asarray(segments[0].time, dtype=float))
+    return float(np.median(d)) if d.size else math.nan
+
+
+def _returns_to_baseline(segments: Sequence[StepSegment]) -> bool:
+    """True when the response decays back to its pre-edge level (high-pass shape)."""
+    seg = segments[0]
+    excursion = float(np.max(np.abs(np.asarray(seg.output) - seg.baseline))) if seg.output.size else 0.0
+    return excursion > 0 and abs(seg.final - seg.baseline) < 0.2 * excursion

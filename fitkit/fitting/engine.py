@@ -1,0 +1,263 @@
+"""Fit one form to one or more edges: starts, the nonlinear fit, the correction.
+
+``fit_form`` is the engine's single entry for a known form. It scales the
+data (:mod:`.scaling`), builds the joint model (:mod:`.joint_model`), finds
+starting values from the data (:mod:`.starts`), runs the least-squares core
+(:mod:`.core`) from the best few starts, keeps the lowest sum of squares,
+and measures the residual autocorrelation (:mod:`.uncertainty`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+from typing import Mapping, Sequence
+
+import numpy as np
+
+from ..conditioning.segment import StepSegment
+from ..errors import FitError
+from ..forms.base import Form, rise_time_scale
+from .core import ModelFit, fit_model
+from .joint_model import MAX_POINTS_PER_SEGMENT, JointModel
+from .scaling import Scaling, reference_step
+from .starts import best_starts, projected_levels
+from .uncertainty import Correction, correlated_residual_correction, t_quantile
+
+#: How many of the best grid starts are refined by the nonlinear fit.
+STARTS_REFINED = 2
+#: Relative tolerance of the engine's fits (the NIST checks use the core's tighter default).
+ENGINE_TOLERANCE = 1e-10
+#: Model evaluations allowed per free parameter; a form whose extra poles run
+#: away (not supported by the data) stops here and is reported as not converged.
+EVALUATIONS_PER_PARAMETER = 150
+
+
+@dataclass(frozen=True)
+class FormFit:
+    """A converged (or failed) fit of one form, in the engine's internal units.
+
+    fit.values holds internal values (log shapes, scaled levels); use
+    :mod:`.estimates` to turn them into physical estimates.
+    """
+
+    form: Form
+    joint: JointModel
+    fit: ModelFit
+    correction: Correction
+    tq: float
+
+    @property
+    def converged(self) -> bool:
+        return self.fit.converged
+
+    @property
+    def n_parameters(self) -> int:
+        return len(self.fit.names)
+
+    def aicc(self, variance_inflation: float = 1.0) -> float:
+        """Corrected Akaike criterion for Gaussian errors of unknown variance.
+
+        AIC = n ln(RSS/n) + 2k with k = p + 1 (the noise variance counts), and the
+        small-sample term 2k(k+1)/(n-k-1) (Hurvich & Tsai, Biometrika 76 (1989)
+        297-307). ``variance_inflation`` divides the likelihood part so that
+        correlated residuals (fewer effective samples) do not make noise look
+        like evidence.
+        """
+        n, k = self.fit.n, self.n_parameters + 1
+        if n - k - 1 <= 0 or not (self.fit.rss > 0):
+            return math.inf
+        return n * math.log(self.fit.rss / n) / variance_inflation + 2 * k + 2 * k * (k + 1) / (n - k - 1)
+
+
+def make_scaling(segments: Sequence[StepSegment], form: Form, measured_input: bool) -> Scaling:
+    """Scaled units from the segments: the first time-scale guess and the largest step."""
+    seg = max(segments, key=lambda s: abs(reference_step(s, form)))
+    t_rel = np.asarray(seg.time, dtype=float) - seg.edge_time
+    step = reference_step(seg, form)
+    y_norm = (np.asarray(seg.output, dtype=float) - seg.baseline) / step
+    span = float(np.ptp(seg.time)) if seg.time.size else 0.0
+    if getattr(form, "final_value", 1.0) == 0.0:  # a decay: time to fall to 1/e is the scale
+        y_norm = 1.0 - np.where(t_rel >= 0, y_norm, 0.0)
+    t_unit = rise_time_scale(t_rel, y_norm)
+    if not (math.isfinite(t_unit) and t_unit > 0):
+        t_unit = span / 5.0 if span > 0 else 1.0
+    v_unit = abs(step)
+    if not (math.isfinite(v_unit) and v_unit > 0):
+        v_unit = float(np.ptp(seg.output)) or 1.0
+    in_unit = 1.0
+    if measured_input and seg.input_before is not None and seg.input_after is not None:
+        in_unit = abs(seg.input_after - seg.input_before) or 1.0
+    return Scaling(time_unit=t_unit, volt_origin=float(segments[0].baseline), volt_unit=v_unit,
+                   input_unit=in_unit)
+
+
+def to_internal(joint: JointModel, physical: Mapping[str, float]) -> dict[str, float]:
+    """Physical values by trade name ("tau", "baseline", "step", "t0", "gain") to internal ones.
+
+    Level names apply to every edge; per-edge values may be given as "baseline_2" etc.
+    """
+    sc = joint.scaling
+    out: dict[str, float] = {}
+    specs = {p.name: p for p in joint.form.shape}
+    for name, value in physical.items():
+        base, _, idx = name.partition("_")
+        edges = [int(idx)] if idx.isdigit() else range(len(joint.segments))
+        if name in specs:
+            out["log_" + name] = sc.shape_to_log_scaled(specs[name], float(value))
+        elif name == "gain":
+            out["gain"] = float(value) * sc.input_unit / sc.volt_unit
+        elif base in ("baseline", "step", "t0"):
+            for i in edges:
+                if base == "baseline":
+                    out[f"baseline_{i}"] = (float(value) - sc.volt_origin) / sc.volt_unit
+                elif base == "step":
+                    out[f"step_{i}"] = float(value) / sc.volt_unit
+                else:
+                    out[f"t0_{i}"] = (float(value) - joint.segments[i].edge_time) / sc.time_unit
+        else:
+            raise FitError(f"form {joint.form.name!r} has no parameter {name!r}")
+    return out
+
+
+def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: bool | None = None,
+             free_t0: bool | None = None, start: Mapping[str, float] | None = None,
+             fixed: Mapping[str, float] | None = None, correlation: str = "auto",
+             max_points: int = MAX_POINTS_PER_SEGMENT) -> FormFit:
+    """Fit ``form`` jointly to ``segments`` (shared shape, per-edge levels).
+
+    measured_input: drive the transfer function with the measured input
+        (default: when every segment has an input channel).
+    free_t0: fit each edge's time (default: when there is no input channel and
+        the form does not jump at the edge).
+    start: optional physical starting values (the NIST tests use this);
+        missing ones come from the data.
+    fixed: physical values held fixed, e.g. {"baseline": 0.0, "t0": 0.0}.
+    correlation: "auto", "on" or "off" for the correlated-residual correction.
+    """
+    if not segments:
+        raise FitError("no step segments to fit", hint="check that the capture holds at least one edge")
+    has_input = all(s.input is not None and s.input_before is not None for s in segments)
+    measured_input = has_input if measured_input is None else measured_input
+    if free_t0 is None:
+        # A response that jumps at the edge (final value 0, e.g. first-order-decay)
+        # fixes its edge only to within a sample, where t0 and step trade off
+        # exactly: the edge then stays at the conditioning's jump time.
+        free_t0 = not has_input and getattr(form, "final_value", 1.0) != 0.0
+    scaling = make_scaling(segments, form, measured_input)
+    joint = JointModel(form, segments, scaling, measured_input=measured_input, free_t0=free_t0,
+                       max_points=max_points)
+    fixed_int = to_internal(joint, fixed or {})
+    starts = best_starts(joint, keep=STARTS_REFINED)
+    if start:
+        # A given start is tried as given, and with its levels solved linearly
+        # for its shape (variable projection), which rescues poor level starts.
+        given = dict(starts[0]) if starts else {}
+        given.update(to_internal(joint, start))
+        shape = {p.name: math.exp(given["log_" + p.name]) for p in form.shape}
+        delay = given.get("t0_0", fixed_int.get("t0_0", 0.0))
+        projected = dict(given)
+        projected.update(projected_levels(joint, shape, delay)[1])
+        projected.update(fixed_int)
+        starts = [given, projected]
+    if not starts:
+        raise FitError(f"no usable starting values for form {form.name!r}",
+                       hint="the trace may be flat or the edge not captured")
+    best: ModelFit | None = None
+    for s in starts:
+        params = {k: s.get(k, 0.0) for k in joint.names if k not in fixed_int}
+        if not params:
+            continue
+        fit = fit_model(joint.evaluate, params, None, joint.y, weights=joint.weights, fixed=fixed_int,
+                        tol=ENGINE_TOLERANCE,
+                        max_nfev=EVALUATIONS_PER_PARAMETER * (len(params) + 1))
+        if best is None or _better(fit, best):
+            best = fit
+    assert best is not None
+    if best.singular:
+        # A start on a symmetry line (e.g. tau1 = tau2) gives identical Jacobian
+        # columns and the fit cannot leave it: nudge the shape apart and refit.
+        nudged = {k: best.values[k] + (0.1 * (-1) ** i if k.startswith("log_") else 0.0)
+                  for i, k in enumerate(best.names)}
+        fit = fit_model(joint.evaluate, nudged, None, joint.y, weights=joint.weights, fixed=fixed_int,
+                        tol=ENGINE_TOLERANCE,
+                        max_nfev=EVALUATIONS_PER_PARAMETER * (len(nudged) + 1))
+        if fit.converged and (not fit.singular or fit.rss < best.rss):
+            best = fit
+    trimmed = _trim_overlaps(joint, best)
+    if trimmed is not None:  # an edge window ran into the next edge's response: refit without it
+        joint = JointModel(form, trimmed, scaling, measured_input=measured_input, free_t0=free_t0,
+                           max_points=max_points)
+        refit = fit_model(joint.evaluate, {k: best.values[k] for k in best.names}, None, joint.y,
+                          weights=joint.weights,
+                          fixed=fixed_int, tol=ENGINE_TOLERANCE,
+                          max_nfev=EVALUATIONS_PER_PARAMETER * (len(best.names) + 1))
+        best = refit if refit.converged or not best.converged else best
+    best = _canonical(joint, best)
+    w = joint.weights
+    pieces = joint.split(w * best.residual)
+    correction = correlated_residual_correction(best.jacobian * w[:, None], pieces, list(joint.bounds),
+                                                best.covariance, best.s2, correlation)
+    dof = correction.dof if correction.applied and correction.dof is not None else best.dof
+    return FormFit(form, joint, best, correction, t_quantile(int(round(dof))))
+
+
+def _trim_overlaps(joint: JointModel, fit: ModelFit) -> list[StepSegment] | None:
+    """Segments cut short where they reach the next edge's fitted time, or None if none does.
+
+    Without an input channel the conditioning places edges at the output's own
+    mid-level crossing, later than the real edge, so a window may include the
+    start of the next edge's response. The fitted t0 of the next edge tells
+    where to stop.
+    """
+    if not joint.free_t0 or len(joint.segments) < 2:
+        return None
+    sc = joint.scaling
+    segs = list(joint.segments)
+    starts = [s.edge_time + fit.values.get(f"t0_{i}", 0.0) * sc.time_unit for i, s in enumerate(segs)]
+    changed = False
+    for i in range(len(segs) - 1):
+        seg, limit = segs[i], starts[i + 1]
+        if seg.time[-1] >= limit > seg.edge_time:
+            keep = int(np.searchsorted(seg.time, limit, side="left"))
+            if keep >= 8:
+                segs[i] = replace(seg, stop=seg.start + keep, time=seg.time[:keep], output=seg.output[:keep],
+                                  input=None if seg.input is None else seg.input[:keep])
+                changed = True
+    return segs if changed else None
+
+
+def _canonical(joint: JointModel, fit: ModelFit) -> ModelFit:
+    """Put symmetric shape parameters in the form's canonical order (e.g. tau1 >= tau2).
+
+    Swaps the values, covariance rows/columns and Jacobian columns of the
+    parameters the form's ``canonical`` permutes.
+    """
+    form = joint.form
+    if getattr(form, "canonical", None) is None:
+        return fit
+    shape = {p.name: math.exp(fit.values["log_" + p.name]) for p in form.shape}
+    canon = form.canonical_shape(shape)
+    if all(canon[k] == shape[k] for k in shape):
+        return fit
+    mapping = {}  # new name -> old name holding that value
+    for new, v in canon.items():
+        old = min(shape, key=lambda k: abs(shape[k] - v) + (1e300 if k in mapping.values() else 0))
+        mapping[new] = old
+    source = {"log_" + new: "log_" + old for new, old in mapping.items()}
+    names = list(fit.names)
+    order = [names.index(source.get(n, n)) if source.get(n, n) in names else i
+             for i, n in enumerate(names)]
+    values = dict(fit.values)
+    for new, old in mapping.items():
+        values["log_" + new] = fit.values["log_" + old]
+    perm = np.array(order)
+    return replace(fit, values=values, covariance=fit.covariance[np.ix_(perm, perm)],
+                   jacobian=fit.jacobian[:, perm],
+                   stderr={n: fit.stderr[names[k]] for n, k in zip(names, order)})
+
+
+def _better(a: ModelFit, b: ModelFit) -> bool:
+    if a.converged != b.converged:
+        return a.converged
+    return a.rss < b.rss

@@ -1,0 +1,74 @@
+"""Scaled units inside the fit: parameters of order one.
+
+Time is measured from each edge in units of the first time-constant guess,
+volts from the first segment's baseline in units of its step. A form's shape
+parameters are fitted as the natural log of their scaled value, so they stay
+positive and a factor-of-two error is the same distance whether tau is 1 ns or
+10 s. (Working in scaled units is the design note's rule; see
+/work/shared/design.md "Numerics that matter".)
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..conditioning.segment import StepSegment
+from ..forms.base import Form, ParamSpec
+
+
+def reference_step(seg: StepSegment, form: Form | None = None) -> float:
+    """The signed size (V) of a segment's response, the 100 % of its normalised shape.
+
+    ``final - baseline`` for a response that settles to a new level; for one
+    that returns to its baseline (or a form whose step response ends at 0),
+    the conditioning's ``step_size`` or else the peak excursion of the output.
+    Never zero (falls back to the output's range, then 1).
+    """
+    decays = getattr(seg, "returns_to_baseline", False) or (
+        form is not None and getattr(form, "final_value", 1.0) == 0.0)
+    step = float(seg.step)
+    if decays or not (math.isfinite(step) and step != 0.0):
+        size = float(getattr(seg, "step_size", math.nan))
+        if decays or not math.isfinite(size) or size == 0.0:
+            dev = np.asarray(seg.output, dtype=float) - seg.baseline
+            after = np.asarray(seg.time) >= seg.edge_time
+            dev = dev[after] if np.any(after) else dev
+            size = float(dev[np.argmax(np.abs(dev))]) if dev.size else math.nan
+        step = size
+    if not (math.isfinite(step) and step != 0.0):
+        step = float(np.ptp(seg.output)) if seg.output.size else 1.0
+    return step if step != 0.0 else 1.0
+
+
+@dataclass(frozen=True)
+class Scaling:
+    """Units of the fit.
+
+    time_unit: seconds per scaled time unit (> 0).
+    volt_origin: volts at scaled 0 (the first segment's baseline).
+    volt_unit: volts per scaled volt unit (> 0; the first segment's |step|).
+    input_unit: volts per scaled input unit (the first input step), 1 when there is no input.
+    """
+
+    time_unit: float
+    volt_origin: float
+    volt_unit: float
+    input_unit: float = 1.0
+
+    def shape_unit(self, spec: ParamSpec) -> float:
+        """Physical value of one scaled unit of a shape parameter (SI)."""
+        if spec.kind == "time":
+            return self.time_unit
+        if spec.kind == "frequency":
+            return 1.0 / self.time_unit
+        return 1.0
+
+    def shape_to_log_scaled(self, spec: ParamSpec, value: float) -> float:
+        """ln(value / unit) for a positive physical shape value."""
+        return math.log(value / self.shape_unit(spec))
+
+    def shape_from_log_scaled(self, spec: ParamSpec, log_scaled: float) -> float:
+        return math.exp(log_scaled) * self.shape_unit(spec)

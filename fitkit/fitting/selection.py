@@ -1,0 +1,140 @@
+"""Choosing a form: fit every candidate, rank by AICc, favour the simpler form.
+
+The criterion is the corrected Akaike information criterion (AICc, Hurvich &
+Tsai, Biometrika 76 (1989) 297-307). A more complex form (more parameters)
+replaces a simpler one only when it lowers AICc by more than
+:data:`MARGIN` (a difference of 10 is "essentially no support" for the worse
+model in Burnham & Anderson, Model Selection and Multimodel Inference, 2nd ed.,
+Springer 2002, section 2.6), and only when its extra shape parameters are
+determined by the data: a second time constant shorter than one sample
+interval, or a Q whose interval reaches down to 0.5 (no ringing resolved), is
+never claimed. With correlated residuals the likelihood part is divided by
+the residuals' long-run variance ratio (fewer effective samples), so
+band-limited noise is not mistaken for evidence.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Sequence
+
+from ..errors import FitError
+from ..forms import FORMS
+from ..forms.base import Form
+from ..results import CandidateScore, Estimate
+from .engine import FormFit
+
+#: AICc advantage a more complex form needs to be preferred.
+MARGIN = 10.0
+CRITERION = "AICc"
+#: Default candidates, simplest first, used when they exist in FORMS.
+DEFAULT_CANDIDATES = ("first-order", "first-order-decay", "two-real-pole", "underdamped", "three-real-pole")
+#: Tried as well when neither two-real-pole nor underdamped is supported by the data:
+#: at exactly equal poles two-real-pole cannot separate its time constants and
+#: underdamped cannot resolve Q > 1/2, while the one-parameter double pole fits.
+FALLBACK_CANDIDATES = ("critically-damped",)
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """One candidate's fit (None when it failed), shape estimates and a note on admissibility."""
+
+    form: Form
+    fit: FormFit | None
+    shape: dict[str, Estimate]
+    admissible: bool
+    note: str
+
+
+def default_candidates(returns_to_baseline: bool) -> list[Form]:
+    """The default candidate forms that exist, simplest first.
+
+    first-order-decay is only a candidate when the response returns to its
+    baseline after each edge (a coupling-capacitor / high-pass response), and
+    then the low-pass forms are not.
+    """
+    names = [n for n in DEFAULT_CANDIDATES if n in FORMS and getattr(FORMS[n], "auto_candidate", True)]
+    if returns_to_baseline:
+        names = [n for n in names if n == "first-order-decay"] or names
+    else:
+        names = [n for n in names if n != "first-order-decay"]
+    return [FORMS[n] for n in names]
+
+
+def needs_fallback(candidates: Sequence[Candidate]) -> bool:
+    """True when the second-order candidates were fitted but none is supported by the data."""
+    second = [c for c in candidates if c.form.name in ("two-real-pole", "underdamped")]
+    return bool(second) and not any(c.admissible for c in second)
+
+
+def admissibility(form: Form, shape: dict[str, Estimate], sample_interval: float) -> tuple[bool, str]:
+    """Whether a converged candidate's shape is supported by the data, with the reason if not."""
+    for est in shape.values():
+        if not est.determined:
+            return False, f"{est.name} is not determined by the data"
+    for spec in form.shape:
+        est = shape.get(spec.name)
+        lower = getattr(spec, "lower", None)
+        if est is not None and lower is not None and est.value <= lower:
+            return False, f"{spec.name} = {est.value:.3g} is not above {lower:g}, outside this form's range"
+    for est in shape.values():
+        if est.unit == "s" and est.value < sample_interval:
+            return False, f"{est.name} = {est.value:.3g} s is shorter than one sample interval"
+        if est.unit == "Hz" and est.value > 0.5 / sample_interval:
+            return False, f"{est.name} is above the Nyquist frequency"
+    q = shape.get("Q")
+    if q is not None and form.name == "underdamped" and q.ci95 is not None and q.ci95[0] <= 0.5:
+        return False, "the Q interval reaches 0.5: ringing is not resolved"
+    return True, ""
+
+
+def choose(candidates: Sequence[Candidate]) -> tuple[Candidate, tuple[CandidateScore, ...], str, list[str]]:
+    """Pick the form; return (chosen, scores, reason in plain words, warnings)."""
+    usable = [c for c in candidates if c.fit is not None and c.fit.converged]
+    if not usable:
+        raise FitError("no candidate form converged",
+                       hint="check that the capture holds a clean step response, or name a form with --model")
+    admissible = [c for c in usable if c.admissible]
+    if not admissible:
+        notes = "; ".join(f"{c.form.name}: {c.note}" for c in usable)
+        raise FitError(f"no candidate form is determined by the data ({notes})",
+                       hint="capture more of the response, with less noise or a faster sample rate")
+    inflation = min(c.fit.correction.variance_ratio for c in admissible)
+    crit = {c.form.name: c.fit.aicc(inflation) for c in usable}
+    ranked = sorted(admissible, key=lambda c: (c.fit.n_parameters, c.form.order))
+    chosen = ranked[0]
+    reason = f"{chosen.form.name} is the simplest form that fits"
+    for c in ranked[1:]:
+        gain = crit[chosen.form.name] - crit[c.form.name]
+        if gain > MARGIN:
+            reason = (f"{c.form.name} lowers {CRITERION} by {gain:.1f} against {chosen.form.name} "
+                      f"(more than the {MARGIN:g} a more complex form needs)")
+            chosen = c
+    warnings: list[str] = []
+    runners = [c for c in ranked if c is not chosen]
+    if runners:
+        best_other = min(runners, key=lambda c: crit[c.form.name])
+        delta = crit[best_other.form.name] - crit[chosen.form.name]
+        reason += f"; runner-up {best_other.form.name}, {CRITERION} {delta:+.1f}"
+        if delta < 0:
+            reason += f" (better by {-delta:.1f}, but not by the margin of {MARGIN:g}, so the simpler form is kept)"
+    for c in usable:
+        if not c.admissible and crit[c.form.name] < crit[chosen.form.name] - MARGIN:
+            warnings.append(f"{c.form.name} fits better than {chosen.form.name}, but {c.note}; "
+                            f"reporting {chosen.form.name}")
+    base = crit[chosen.form.name]
+    scores = []
+    for c in candidates:
+        ok = c.fit is not None and c.fit.converged
+        scores.append(CandidateScore(
+            model=c.form.name, converged=ok,
+            n_parameters=c.fit.n_parameters if c.fit is not None else 0,
+            criterion=crit.get(c.form.name, math.nan), delta=crit.get(c.form.name, math.nan) - base,
+            rms_residual=_rms(c.fit) if ok else math.nan,
+            note=("chosen" if c is chosen else c.note or "")))
+    return chosen, tuple(scores), reason, warnings
+
+
+def _rms(ff: FormFit) -> float:
+    return math.sqrt(ff.fit.rss / max(ff.fit.n, 1)) * ff.joint.scaling.volt_unit

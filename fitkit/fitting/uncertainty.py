@@ -1,0 +1,290 @@
+"""Honest 95 % intervals: Student-t covariance intervals, a correction for
+correlated residuals, profile-likelihood intervals where the objective is
+asymmetric, and the delta method for derived quantities.
+
+Correlated residuals (scope noise is band-limited and quantised) make the
+plain covariance ``s^2 (J^T J)^-1`` too small. The correction used here is an
+autocorrelation-consistent sandwich covariance
+
+    V = B (sum_k w_k gamma(k) C(k)) B,   B = (J^T J)^-1,
+    C(k) = sum_t J_t J_{t+k}^T (within each edge),
+
+with gamma(k) the residual autocovariance (stationary noise assumed) taken
+from an autoregressive model of the residuals fitted by Yule-Walker with its
+order chosen by AIC, summed out to the lag where it has died away. (The
+sandwich form is the heteroskedasticity-and-autocorrelation-consistent
+covariance of Newey & West, Econometrica 55 (1987) 703-708; using an AR model
+for the autocovariance instead of a truncated, kernel-weighted sample one is
+the "VARHAC" approach of den Haan & Levin, Handbook of Statistics 15 (1997)
+299-342, from memory.) It is applied only
+when a Ljung-Box portmanteau test (Ljung & Box, Biometrika 65 (1978) 297-303)
+finds the residuals correlated at the 1 % level, and it never narrows an
+interval, so under white noise the intervals stay the textbook ones.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Callable, Mapping, Sequence
+
+import numpy as np
+from scipy import linalg, signal, stats
+
+#: Ljung-Box test level and number of lags.
+LJUNG_BOX_ALPHA = 0.01
+LJUNG_BOX_LAGS = 10
+#: Passes of the projection-bias correction of the residual autocovariance.
+PROJECTION_PASSES = 2
+#: A positive quantity is "not determined" when the standard error of its log exceeds this.
+MAX_LOG_STDERR = 1.0
+
+
+def t_quantile(dof: int, level: float = 0.95) -> float:
+    """Two-sided Student-t quantile (scipy.stats.t) for ``dof`` degrees of freedom."""
+    return float(stats.t.ppf(0.5 + level / 2.0, max(int(dof), 1)))
+
+
+@dataclass(frozen=True)
+class Correction:
+    """What was done about correlated residuals.
+
+    covariance: the covariance to use (equal to the plain one when not applied).
+    widening: per-parameter factor sqrt(V_jj / cov_jj) applied (>= 1).
+    lag1: lag-1 autocorrelation of the residuals.
+    correlation_lags: lag to which the modelled autocorrelation was summed.
+    applied: whether the sandwich covariance replaced the plain one.
+    description: plain words for FitDiagnostics.correction.
+    variance_ratio: long-run variance of the residuals over their variance,
+        1 + 2 sum_k rho(k) (>= 1): the factor n / n_effective.
+    dof: effective degrees of freedom n_effective - p for the t quantile
+        (None when not applied: use n - p).
+    """
+
+    covariance: np.ndarray
+    widening: np.ndarray
+    lag1: float
+    correlation_lags: int
+    applied: bool
+    description: str
+    variance_ratio: float = 1.0
+    dof: float | None = None
+
+
+def residual_autocorrelation(pieces: Sequence[np.ndarray], max_lag: int) -> np.ndarray:
+    """Pooled autocorrelation rho(0..max_lag) of residual pieces (lags within each piece)."""
+    pieces = [np.asarray(p, dtype=float) for p in pieces if len(p) > 1]
+    n = sum(p.size for p in pieces)
+    gamma0 = sum(float(p @ p) for p in pieces) / max(n, 1)
+    rho = np.zeros(max_lag + 1)
+    rho[0] = 1.0
+    if gamma0 <= 0:
+        return rho
+    for k in range(1, max_lag + 1):
+        acc = sum(float(p[:-k] @ p[k:]) for p in pieces if p.size > k)
+        rho[k] = acc / n / gamma0
+    return rho
+
+
+def ljung_box_correlated(rho: np.ndarray, n: int, lags: int = LJUNG_BOX_LAGS,
+                         alpha: float = LJUNG_BOX_ALPHA) -> bool:
+    """Ljung-Box test: True when the residuals are autocorrelated at level ``alpha``."""
+    m = min(lags, rho.size - 1, max(n // 5, 1))
+    if m < 1:
+        return False
+    k = np.arange(1, m + 1)
+    q = n * (n + 2) * np.sum(rho[1:m + 1] ** 2 / (n - k))
+    return bool(q > stats.chi2.ppf(1 - alpha, m))
+
+
+def autoregressive_autocorrelation(rho: np.ndarray, n: int, max_order: int = 24,
+                                   max_lag: int | None = None) -> tuple[np.ndarray, int]:
+    """Autocorrelation implied by an AR model of the residuals, and the model order.
+
+    The order (1..max_order) is chosen by AIC, the coefficients by the
+    Yule-Walker equations (scipy.linalg.solve_toeplitz); the implied
+    autocorrelation is computed from the model's impulse response out to
+    ``max_lag``. This smooth, model-based autocorrelation replaces the noisy
+    sample autocorrelation at long lags (the AR-based "VARHAC" idea of den Haan
+    & Levin, Handbook of Statistics 15 (1997) 299-342, from memory).
+    """
+    max_order = int(max(1, min(max_order, rho.size - 1, n // 10)))
+    best = (math.inf, 1, np.zeros(1), 1.0)
+    for order in range(1, max_order + 1):
+        try:
+            phi = linalg.solve_toeplitz(rho[:order], rho[1:order + 1])
+        except (np.linalg.LinAlgError, ValueError):
+            break
+        innovation = 1.0 - float(phi @ rho[1:order + 1])
+        if not innovation > 0:
+            break
+        aic = n * math.log(innovation) + 2 * order
+        if aic < best[0]:
+            best = (aic, order, phi, innovation)
+    _, order, phi, innovation = best
+    max_lag = max_lag or rho.size - 1
+    roots = np.roots(np.concatenate([[1.0], -phi]))
+    if roots.size and np.max(np.abs(roots)) >= 0.999:  # not stationary: keep the sample estimate
+        return rho.copy(), order
+    impulse = signal.lfilter([1.0], np.concatenate([[1.0], -phi]), np.eye(1, 4 * max_lag + 1)[0])
+    acf = np.correlate(impulse, impulse, mode="full")[impulse.size - 1:impulse.size + max_lag]
+    return acf / acf[0], order
+
+
+def lagged_products(u: np.ndarray, v: np.ndarray, max_lag: int) -> np.ndarray:
+    """D_k = sum_t sum_j u[t, j] v[t + k, j] for k = 0..max_lag (by FFT)."""
+    n = u.shape[0]
+    size = 1 << int(math.ceil(math.log2(max(2 * n, 2))))
+    spec = np.conj(np.fft.rfft(u, size, axis=0)) * np.fft.rfft(v, size, axis=0)
+    lagged = np.fft.irfft(spec, size, axis=0).sum(axis=1)
+    out = np.zeros(max_lag + 1)
+    m = min(max_lag, n - 1) + 1
+    out[:m] = lagged[:m]
+    return out
+
+
+def projection_bias(gamma: np.ndarray, jacobian: np.ndarray, bounds: Sequence[int],
+                    bread: np.ndarray, max_lag: int) -> np.ndarray:
+    """How much the pooled residual autocovariance falls short of the noise's.
+
+    Residuals are r = (I - P) e with P = J (J^T J)^-1 J^T, so for noise of
+    covariance Sigma, E[sum_t r_t r_{t+k}] = sum_t [(I-P) Sigma (I-P)]_{t,t+k}.
+    Returns (1/n) sum_t [P Sigma + Sigma P - P Sigma P]_{t,t+k} for k = 0..max_lag,
+    with Sigma the Toeplitz matrix of ``gamma`` within each edge: adding it to
+    the residual autocovariance removes the bias the fit's own parameters
+    cause (they absorb the slow part of the noise, which matters most here).
+    """
+    n = jacobian.shape[0]
+    g = np.zeros(n + 1)
+    g[:min(gamma.size, n + 1)] = gamma[:n + 1]
+    u = jacobian @ bread
+    v = np.zeros_like(jacobian)
+    for lo, hi in zip(bounds[:-1], bounds[1:]):
+        v[lo:hi] = linalg.matmul_toeplitz(g[:hi - lo], jacobian[lo:hi], check_finite=False)
+    w = jacobian.T @ v
+    bias = np.zeros(max_lag + 1)
+    for lo, hi in zip(bounds[:-1], bounds[1:]):
+        us, vs = u[lo:hi], v[lo:hi]
+        bias += lagged_products(us, vs, max_lag) + lagged_products(vs, us, max_lag) \
+            - lagged_products(us @ w, us, max_lag)
+    return bias / n
+
+
+def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequence[np.ndarray],
+                                   jac_pieces_bounds: Sequence[int], covariance: np.ndarray,
+                                   s2: float, mode: str = "auto") -> Correction:
+    """Widen ``covariance`` for autocorrelated residuals (see module docstring).
+
+    mode: "auto" (test, then correct when correlated), "on" (always compute the
+    sandwich), "off" (never).
+    """
+    p = covariance.shape[0]
+    ones = np.ones(p)
+    n = int(sum(len(r) for r in residual_pieces))
+    max_lag = max(1, min(n // 2, 2000, min(len(r) for r in residual_pieces) - 2))
+    rho = residual_autocorrelation(residual_pieces, max_lag)
+    lag1 = float(rho[1]) if rho.size > 1 else 0.0
+    none = Correction(covariance, ones, lag1, 0, False, "none (residuals consistent with white noise)")
+    if mode == "off":
+        return Correction(covariance, ones, lag1, 0, False, "none (correction switched off)")
+    if p == 0 or not np.all(np.isfinite(covariance)):
+        return none
+    if mode == "auto" and not ljung_box_correlated(rho, n):
+        return none
+    bread = covariance / s2
+    gamma0 = sum(float(np.dot(r, r)) for r in residual_pieces) / n
+    model_rho, order = autoregressive_autocorrelation(rho, n, max_lag=max_lag)
+    gamma = model_rho * gamma0 * n / max(n - p, 1)
+    for _ in range(PROJECTION_PASSES):
+        bias = projection_bias(gamma, jacobian, jac_pieces_bounds, bread, max_lag)
+        corrected_acov = rho * gamma0 + bias
+        if not corrected_acov[0] > 0:
+            break
+        model_rho, order = autoregressive_autocorrelation(corrected_acov / corrected_acov[0], n,
+                                                          max_lag=max_lag)
+        gamma = model_rho * corrected_acov[0]
+    # lags beyond which the model autocorrelation is negligible
+    significant = np.nonzero(np.abs(model_rho) > 1e-3)[0]
+    m_max = int(min(max_lag, significant[-1] if significant.size else 1))
+    meat = np.zeros((p, p))
+    for lo, hi in zip(jac_pieces_bounds[:-1], jac_pieces_bounds[1:]):
+        j = jacobian[lo:hi]
+        meat += gamma[0] * (j.T @ j)
+        for k in range(1, min(m_max, j.shape[0] - 1) + 1):
+            c = j[:-k].T @ j[k:]
+            meat += gamma[k] * (c + c.T)
+    variance_ratio = max(1.0, 1.0 + 2.0 * float(np.sum(model_rho[1:m_max + 1])))
+    n_eff = n / variance_ratio
+    dof = max(n_eff - p, 1.0)
+    with np.errstate(all="ignore"):
+        sandwich = bread @ meat @ bread
+        ratio = np.diag(sandwich) / np.diag(covariance)
+        if not np.all(np.isfinite(ratio)) or np.any(ratio <= 0):
+            return none
+        # Never narrow: bring each variance up to at least the plain one.
+        lift = np.sqrt(np.maximum(1.0, 1.0 / ratio))
+        corrected = sandwich * np.outer(lift, lift)
+        widening = np.sqrt(np.diag(corrected) / np.diag(covariance))
+    if not np.all(np.isfinite(corrected)):
+        return none
+    text = (f"autocorrelation-consistent sandwich covariance (residual autocorrelation from an "
+            f"order-{order} autoregressive model, to lag {m_max}; lag-1 autocorrelation {lag1:.2f})")
+    return Correction(corrected, widening, lag1, m_max, True, text, variance_ratio, dof)
+
+
+def symmetric_interval(value: float, stderr: float, tq: float) -> tuple[float, float]:
+    return value - tq * stderr, value + tq * stderr
+
+
+def log_interval(value: float, log_stderr: float, tq: float) -> tuple[float, float]:
+    """Interval of a positive quantity from the standard error of its natural log."""
+    return value * math.exp(-tq * log_stderr), value * math.exp(tq * log_stderr)
+
+
+def objective_is_asymmetric(rss_of: Callable[[np.ndarray], float], theta: np.ndarray,
+                            covariance: np.ndarray, index: int, s2: float, tq: float,
+                            tolerance: float = 0.25) -> bool:
+    """Cheap check of the quadratic approximation along one parameter.
+
+    Steps to theta +- tq * cov[:, j] / sigma_j (where the linearised profile
+    of the sum of squares rises by tq^2 s^2) and compares the actual rise at
+    both ends; True when either differs from the linear prediction by more
+    than ``tolerance`` (relative).
+    """
+    sigma = math.sqrt(covariance[index, index])
+    if not (math.isfinite(sigma) and sigma > 0):
+        return False
+    delta = tq * covariance[:, index] / sigma
+    rss0 = rss_of(theta)
+    expected = tq * tq * s2
+    for sign in (1.0, -1.0):
+        rise = (rss_of(theta + sign * delta) - rss0) / expected
+        if not math.isfinite(rise) or abs(rise - 1.0) > tolerance:
+            return True
+    return False
+
+
+def delta_method(func: Callable[[np.ndarray], Mapping[str, float]], theta: np.ndarray,
+                 covariance: np.ndarray, rel_step: float = 1e-3
+                 ) -> dict[str, tuple[float, float, np.ndarray]]:
+    """Propagate ``covariance`` of ``theta`` through ``func`` (vector -> {name: value}).
+
+    Returns {name: (value, variance, gradient)} using a central-difference
+    gradient (keeps correlations: var = g Sigma g^T).
+    """
+    base = dict(func(theta))
+    grads = {k: np.zeros(theta.size) for k in base}
+    for j in range(theta.size):
+        h = rel_step * max(abs(theta[j]), 1.0)
+        up, dn = theta.copy(), theta.copy()
+        up[j] += h
+        dn[j] -= h
+        fu, fd = func(up), func(dn)
+        for k in base:
+            grads[k][j] = (float(fu.get(k, math.nan)) - float(fd.get(k, math.nan))) / (2 * h)
+    out = {}
+    for k, v in base.items():
+        g = grads[k]
+        var = float(g @ covariance @ g) if np.all(np.isfinite(g)) else math.nan
+        out[k] = (float(v), var, g)
+    return out

@@ -1,0 +1,111 @@
+"""Route 2: fit the capture with the unknown part values as the parameters.
+
+The circuit is wrapped as a form (circuit_form.py) and handed to the
+fitting engine (fitkit.fitting.fit_segments), so the direct fit gets the
+engine's joint multi-edge model, starts, measured-input mode, profile or
+covariance intervals and the correlated-residual correction unchanged; the
+intervals of the parts come straight from that fit (log scale).
+
+Levels (decided here, and stated in the result): the per-edge baseline and
+step (ideal-step mode), or the per-edge baseline and one shared gain
+(measured-input mode), are free parameters. They are not tied to the
+circuit's DC gain times the input step: scope and ADC captures often carry
+an unknown attenuation or scaling (the real ladder capture is in normalised
+ADC units), so only the response's shape and timing inform the parts. This
+is why identifiability is judged with the gain taken as unknown.
+
+One fit is run from each start (every solution of route 1), because the
+coefficient equations can have several physical solutions that the data
+cannot tell apart (the unbuffered ladder's quadratic).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Mapping, Sequence
+
+import numpy as np
+
+from ..conditioning.segment import StepSegment
+from ..errors import FitError
+from ..fitting import fit_segments
+from ..fitting.engine import make_scaling
+from ..results import FitResult
+from .circuit_form import circuit_form
+from .problem import PartProblem
+
+#: Two direct fits whose part values agree to this relative amount are the same solution.
+SAME_SOLUTION = 1e-3
+
+
+@dataclass(frozen=True)
+class DirectFit:
+    """One converged direct fit: the engine's result, its RSS (V^2), points and parameter count."""
+
+    start: Mapping[str, float]
+    result: FitResult
+    rss: float
+    n_points: int
+    n_parameters: int
+
+    @property
+    def values(self) -> dict[str, float]:
+        return {n: e.value for n, e in self.result.parameters.items() if n in self.start}
+
+    @property
+    def aicc(self) -> float:
+        """Corrected Akaike criterion, n ln(RSS/n) + 2k + 2k(k+1)/(n-k-1), k = parameters + 1
+        (Hurvich & Tsai, Biometrika 76 (1989) 297-307)."""
+        n, k = self.n_points, self.n_parameters + 1
+        if n - k - 1 <= 0 or not self.rss > 0:
+            return math.inf
+        return n * math.log(self.rss / n) + 2 * k + 2 * k * (k + 1) / (n - k - 1)
+
+
+def has_input(segments: Sequence[StepSegment]) -> bool:
+    return all(s.input is not None and s.input_before is not None for s in segments)
+
+
+def _n_parameters(n_parts: int, n_edges: int, measured_input: bool, result: FitResult) -> int:
+    if result.selection:
+        return result.selection[0].n_parameters
+    if measured_input:
+        return n_parts + 1 + n_edges
+    return n_parts + n_edges * (3 if "t0" in result.parameters else 2)
+
+
+def direct_fits(segments: Sequence[StepSegment], problem: PartProblem, starts: Sequence[Mapping[str, float]],
+                *, measured_input: bool | None = None, intervals: str = "auto", file: str = "",
+                warnings: Sequence[str] = ()) -> tuple[list[DirectFit], list[str]]:
+    """One direct fit from each start; (distinct converged fits, notes on failed starts)."""
+    segments = tuple(segments)
+    measured = has_input(segments) if measured_input is None else measured_input
+    name = "circuit:" + problem.circuit.name
+    probe_form = circuit_form(problem.solve_circuit, problem.fitted, 1.0, starts, name)
+    scaling = make_scaling(segments, probe_form, measured)
+    form = circuit_form(problem.solve_circuit, problem.fitted, scaling.time_unit, starts, name)
+    fits: list[DirectFit] = []
+    notes: list[str] = []
+    for start in starts:
+        start = {n: float(start[n]) for n in problem.fitted}
+        try:
+            with np.errstate(all="ignore"):
+                result = fit_segments(segments, form, intervals=intervals, measured_input=measured,
+                                      start=start, file=file, warnings=warnings)
+        except FitError as err:
+            notes.append(f"the direct fit from {_describe(start)} failed: {err.message}")
+            continue
+        values = {n: result.parameters[n].value for n in problem.fitted}
+        if any(all(abs(math.log(values[n] / f.values[n])) < SAME_SOLUTION for n in values) for f in fits):
+            continue
+        rss = float(sum(np.sum((s.data - s.fitted) ** 2) for s in result.segments))
+        n_points = int(sum(s.data.size for s in result.segments))
+        k = _n_parameters(len(problem.fitted), len(segments), measured, result)
+        fits.append(DirectFit(start, result, rss, n_points, k))
+    return fits, notes
+
+
+def _describe(values: Mapping[str, float]) -> str:
+    from ..units import format_value
+    return ", ".join(f"{n} = {format_value(v)}" for n, v in values.items())
