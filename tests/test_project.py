@@ -33,3 +33,18 @@ def test_readme_has_safety_section():
     assert "## Safety" in text
     for phrase in ("mains", "charged capacitor", "ground", "differential", "qualified", "local codes"):
         assert phrase in text.lower(), phrase
+
+
+def test_readme_first_command_fits_the_demo_capture():
+    # The first Quick start command installs fitkit and runs `fitkit fit` on a demo
+    # capture; run its fitkit part and check it prints tau with a 95 % interval.
+    import subprocess
+    import sys
+    first = _readme_quick_start_commands()[0]
+    fit_part = first.split("&&", 1)[1].split()
+    assert fit_part[0] == "fitkit"
+    out = subprocess.run([sys.executable, "-m", "fitkit", *fit_part[1:]], cwd=ROOT,
+                         capture_output=True, text=True, timeout=300)
+    assert out.returncode == 0, out.stderr
+    tau_line = next(line for line in out.stdout.splitlines() if line.strip().startswith("tau"))
+    assert re.search(r"\[[0-9.]+ [mun]?s, [0-9.]+ [mun]?s\]", tau_line), tau_line
