@@ -202,3 +202,40 @@ def test_extra_sections_for_later_stages():
     page = render_html_report(make_result("first-order"), figure_format="png",
                               extra_sections=[("Suspects", "<table class='suspects'><tr><td>C1</td></tr></table>")])
     assert "<h2>Suspects</h2><table class='suspects'>" in page
+
+
+@pytest.fixture(scope="module")
+def check_result():
+    """A failing board check of a demo capture: C31 drifted (demo_captures/README.md)."""
+    from fitkit.check import check_capture
+    from fitkit.io import load_capture
+    demo = Path(__file__).resolve().parents[1] / "demo_captures"
+    capture = load_capture(demo / "drifted_board_sallen_key.csv")
+    return check_capture(capture, demo / "designs" / "sallen_key_lowpass.toml", envelope_trials=20), capture
+
+
+@needs_chromium
+def test_check_report_renders_in_chromium_with_verdict_and_suspects(tmp_path, check_result):
+    from fitkit.report.check_tables import write_check_report
+    result, capture = check_result
+    assert result.verdict == "fail"
+    path = write_check_report(result, tmp_path / "board_check.html", capture_provenance=capture)
+    out = _chromium(tmp_path, path.as_uri(), "--enable-logging=stderr", "--v=0", "--dump-dom")
+    assert out.returncode == 0, out.stderr[-2000:]
+    assert _console_lines(out.stderr) == []
+    dom = _tags(out.stdout)
+    tables = [a.get("class", "") for t, a in dom if t == "table"]
+    assert {"check-behaviour", "check-parts", "check-suspects", "quantities parameter", "provenance"} <= set(tables)
+    assert any(t == "svg" for t, _ in dom)
+    assert "Verdict: FAIL" in out.stdout
+    # the leading suspect is named in its table row and in the figure's box
+    assert re.search(r'<tr class="named"><td>1 \(leader\)</td><td>C31</td>', out.stdout)
+    assert "design tolerance envelope" in out.stdout
+
+    shot = tmp_path / "check_shot.png"
+    out = _chromium(tmp_path, path.as_uri(), f"--screenshot={shot}")
+    assert shot.exists(), out.stderr[-2000:]
+    from matplotlib.image import imread
+    pixels = imread(shot)
+    assert pixels.shape[:2] == (2000, 1200)
+    assert np.mean(np.min(pixels[..., :3], axis=2) < 0.9) > 0.05

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import html
 import json
 
 import click
@@ -10,6 +9,7 @@ import click
 from .. import exitcodes
 from ..units import parse_value
 from .capture_options import CaptureOptions, capture_options
+from .output_options import OutputRequest, output_options, quiet_text, write_outputs
 
 STATUS = {"pass": exitcodes.OK, "fail": exitcodes.FAIL, "inconclusive": exitcodes.INCONCLUSIVE}
 
@@ -26,12 +26,9 @@ STATUS = {"pass": exitcodes.OK, "fail": exitcodes.FAIL, "inconclusive": exitcode
               help="Boards drawn at random within tolerance for the envelope.")
 @click.option("--seed", type=int, default=0, show_default=True, help="Seed of the envelope's random draws.")
 @click.option("--json", "as_json", is_flag=True, help="Print the result as one JSON object.")
-@click.option("--plot", "plot_path", type=click.Path(dir_okay=False), metavar="FILE",
-              help="Write a plot (.png, .svg or .pdf) with the tolerance envelope and the suspects.")
-@click.option("--report", "report_path", type=click.Path(dir_okay=False), metavar="FILE.html",
-              help="Write a self-contained HTML report.")
+@output_options
 def check(file: str, out_file: str | None, design_path: str, edge_time: str | None, average: bool, trials: int,
-          seed: int, as_json: bool, plot_path: str | None, report_path: str | None, **kwargs) -> int:
+          seed: int, as_json: bool, **kwargs) -> int:
     """Check the board captured in FILE against DESIGN.toml: pass, fail or inconclusive.
 
     Every verdict comes from a 95 % interval: a quantity or part is within
@@ -53,6 +50,8 @@ def check(file: str, out_file: str | None, design_path: str, edge_time: str | No
     """
     from ..check import check_capture, load_design
 
+    outputs = OutputRequest.pop(kwargs)
+    outputs.validate([file, out_file, design_path], as_json=as_json)
     options = CaptureOptions.pop(kwargs)
     design = load_design(design_path)
     capture = options.load(file, out_file)
@@ -60,22 +59,11 @@ def check(file: str, out_file: str | None, design_path: str, edge_time: str | No
     t_edge = None if edge_time is None else parse_value(edge_time, "s")
     result = check_capture(capture, design, input=inp, output=out, average=average, envelope_trials=trials,
                            seed=seed, edge_time=t_edge)
-    if plot_path:
-        import matplotlib
-        matplotlib.use("Agg")
-        from matplotlib import pyplot as plt
-        fig, _ = result.plot(path=plot_path)
-        plt.close(fig)
-    if report_path:
-        from ..report.check_plots import suspect_notes
-        from ..report.check_text import render_check_text
-        from ..report.html import write_html_report
-        section = "<pre>" + html.escape(render_check_text(result)) + "</pre>"
-        write_html_report(result.fit, report_path, capture_provenance=capture, verdict=result.verdict,
-                          extra_sections=[("Board check", section)],
-                          plot_options={"envelope": result.envelope_volts, "notes": suspect_notes(result)})
+    write_outputs(outputs, result, capture)
     if as_json:
         click.echo(json.dumps(result.to_dict(), allow_nan=False))
+    elif outputs.quiet:
+        click.echo(quiet_text(result), nl=False)
     else:
         from ..report.check_text import render_check_text
         click.echo(render_check_text(result))

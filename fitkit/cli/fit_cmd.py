@@ -8,6 +8,7 @@ import click
 
 from ..units import format_interval, format_value, parse_value
 from .capture_options import CaptureOptions, capture_options
+from .output_options import OutputRequest, output_options, quiet_text, write_outputs
 
 #: Plain-words labels for the quantities in the text table.
 LABELS = {
@@ -80,8 +81,8 @@ def circuit_options(f):
                      help="Design values of unknown parts, to rank several solutions."),
         click.option("--probe", type=click.Choice(sorted(PROBE_PRESETS)), default=None,
                      help="Include this probe's loading at the measured node in the circuit."),
-        click.option("--source-resistance", metavar="OHMS", default=None, is_flag=False, flag_value="50",
-                     help="Include the generator's source resistance (50 Ohm when no value is given)."),
+        click.option("--source-resistance", metavar="OHMS", default=None,
+                     help="Include the generator's source resistance (usually 50, e.g. --source-resistance 50)."),
     ]
     for opt in reversed(opts):
         f = opt(f)
@@ -235,6 +236,7 @@ def with_components(text: str, result) -> str:
 @click.option("--intervals", type=click.Choice(["auto", "covariance", "profile"]), default="auto",
               show_default=True, help="How 95 % intervals of the shape parameters are found.")
 @click.option("--json", "as_json", is_flag=True, help="Print the result as one JSON object.")
+@output_options
 @circuit_options
 def fit(file: str, out_file: str | None, model: str, edge_time: str | None, average: bool,
         intervals: str, as_json: bool, **kwargs) -> None:
@@ -245,6 +247,8 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
     """
     from ..fitting import fit_capture
 
+    outputs = OutputRequest.pop(kwargs)
+    outputs.validate([file, out_file, kwargs.get("circuit_file")], as_json=as_json)
     options = CaptureOptions.pop(kwargs)
     capture = options.load(file, out_file)
     inp, out = options.roles(capture)
@@ -256,7 +260,10 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
     else:
         result = fit_capture(capture, model=model, input=inp, output=out, edge_time=t_edge,
                              average=average, intervals=intervals)
+    write_outputs(outputs, result, capture)
     if as_json:
         click.echo(json.dumps(result.to_dict(), allow_nan=False))
+    elif outputs.quiet:
+        click.echo(quiet_text(result), nl=False)
     else:
         click.echo(with_components(render_text(result), result))

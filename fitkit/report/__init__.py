@@ -6,6 +6,7 @@ HTML page.
     print(render_fit_text(result))
     plot_fit(result, "board_017.png")
     write_html_report(result, "board_017.html", capture_provenance=capture)
+    write_check_report(check, "board_017_check.html", capture_provenance=capture)
 
 Names are imported on first use so that `import fitkit.report` stays light.
 Nothing here prints or exits; every file is written atomically (fitkit.atomic).
@@ -28,6 +29,13 @@ _LAZY = {
     "render_html_report": "html",
     "render_html_fragment": "html",
     "write_html_report": "html",
+    "check_result_schema": "json_schema",
+    "check_result_csv": "check_tables",
+    "check_html_sections": "check_tables",
+    "render_check_quiet": "check_tables",
+    "write_check_report": "check_tables",
+    "render_check_text": "check_text",
+    "plot_check": "check_plots",
 }
 
 __all__ = list(_LAZY)

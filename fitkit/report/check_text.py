@@ -76,9 +76,16 @@ def render_check_text(result) -> str:
 
 
 def suspect_notes(result, limit: int = 3) -> list[str]:
-    """Short lines naming the leading suspects, for a plot's box."""
-    notes = [f"check: {result.verdict}"]
-    for s in [s for s in result.suspects if s.tied or s.explains][:limit]:
+    """Short lines for a plot's box: the verdict, then the leading suspects (none when the
+    board passes), each with its implied value and the first clause of its fault pattern."""
+    notes = [f"check: {result.verdict.upper()}"]
+    if result.verdict == "pass":
+        return notes
+    named = [s for s in result.suspects if s.tied or s.explains][:limit]
+    if named:
+        notes.append("suspects, most likely first:")
+    for s in named:
         value = format_value(s.value, s.unit) if s.value is not None else "swapped"
-        notes.append(f"{'=' if s.tied else ' '}{s.part}: {value} ({s.pattern.split(':')[0]})")
+        pattern = s.pattern.split(":")[0].split(",")[0].split("(")[0].strip()
+        notes.append(f"{'=' if s.tied else ' '} {s.part} {value}: {pattern}")
     return notes

@@ -242,18 +242,21 @@ def _provenance_section(result: FitResult, source: Any) -> str:
 def render_html_fragment(result: FitResult, capture_provenance: Any = None, *, verdict: Any = None,
                          extra_sections: Sequence[tuple[str, str]] = (), figure: bool = True,
                          figure_format: str = "svg", plot_options: Mapping[str, Any] | None = None,
-                         footer: str = "") -> str:
+                         footer: str = "", title: str = "Step-response fit",
+                         lead_sections: Sequence[tuple[str, str]] = ()) -> str:
     """The report as one ``<div class="fitkit-report">`` with its own scoped style.
 
     Used inside the full page and as the notebook view. ``extra_sections`` are
-    (heading, HTML) pairs from fitkit's own later stages (trusted HTML);
+    (heading, HTML) pairs from fitkit's own later stages (trusted HTML), placed
+    after the quantity tables; ``lead_sections`` likewise, placed right after
+    the figure (a board check's verdict tables); ``title`` heads the page;
     ``figure_format`` is "svg" (inline) or "png" (data URI).
     """
     if figure_format not in ("svg", "png"):
         raise OptionError(f"figure format {figure_format!r} is not available in HTML",
                           hint="use svg or png")
     parts = [f"<style>{_CSS}</style>", '<div class="fitkit-report">',
-             "<h1>Step-response fit</h1>",
+             f"<h1>{_e(title)}</h1>",
              f'<p class="subtitle">{_e(os.path.basename(result.file) or "capture in memory")}'
              f" &middot; form {_e(result.model)}</p>"]
     word = _verdict_of(result, verdict)
@@ -263,6 +266,8 @@ def render_html_fragment(result: FitResult, capture_provenance: Any = None, *, v
     parts.append(_summary(result))
     if figure and result.segments:
         parts.append(_figure_html(result, figure_format, plot_options or {}))
+    for heading, fragment in lead_sections:
+        parts.append(f"<h2>{_e(heading)}</h2>{fragment}")
     for kind in ("parameter", "derived", "component"):
         rows = [r for r in quantity_rows(result, skip_repeated=True) if r.kind == kind]
         if rows:
@@ -280,12 +285,14 @@ def render_html_fragment(result: FitResult, capture_provenance: Any = None, *, v
 def render_html_report(result: FitResult, capture_provenance: Any = None, *, verdict: Any = None,
                        extra_sections: Sequence[tuple[str, str]] = (), figure_format: str = "svg",
                        plot_options: Mapping[str, Any] | None = None,
-                       generated: _dt.datetime | None = None) -> str:
+                       generated: _dt.datetime | None = None, title: str = "Step-response fit",
+                       lead_sections: Sequence[tuple[str, str]] = ()) -> str:
     """The complete self-contained HTML page of a fit.
 
     ``capture_provenance``: the Capture, its Provenance, or a mapping of what
     the reader found (None: only the file name is shown). ``generated``: the
-    time stamp in the footer (default: now, UTC).
+    time stamp in the footer (default: now, UTC). ``title``, ``lead_sections``:
+    see render_html_fragment.
     """
     from .. import __version__
 
@@ -294,8 +301,9 @@ def render_html_report(result: FitResult, capture_provenance: Any = None, *, ver
               "Intervals are 95 % confidence intervals; SI units throughout.")
     fragment = render_html_fragment(result, capture_provenance, verdict=verdict,
                                     extra_sections=extra_sections, figure_format=figure_format,
-                                    plot_options=plot_options, footer=footer)
-    title = f"Step-response fit: {os.path.basename(result.file) or 'capture'}"
+                                    plot_options=plot_options, footer=footer, title=title,
+                                    lead_sections=lead_sections)
+    title = f"{title}: {os.path.basename(result.file) or 'capture'}"
     return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
             f'<meta http-equiv="Content-Security-Policy" content="{_CSP}">\n'
             '<meta name="viewport" content="width=device-width, initial-scale=1">\n'

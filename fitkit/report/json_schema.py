@@ -4,6 +4,9 @@
 ``FitResult.to_dict()`` satisfies; the schema file ships with the package as
 fitkit/report/fit_result.schema.json and its "description" fields document
 each stable key. ``fit_result_json()`` is the text `fitkit fit --json` prints.
+``check_result_schema()`` is the schema of ``CheckResult.to_dict()`` (`fitkit
+check --json`, file check_result.schema.json) with the fit schema bundled.
+See docs/json-output.md.
 """
 
 from __future__ import annotations
@@ -17,12 +20,27 @@ from typing import Any
 from ..results import FitResult
 
 SCHEMA_FILE = "fit_result.schema.json"
+CHECK_SCHEMA_FILE = "check_result.schema.json"
 
 
-@lru_cache(maxsize=1)
+@lru_cache(maxsize=2)
+def _read(name: str) -> dict[str, Any]:
+    return json.loads(resources.files(__package__).joinpath(name).read_text(encoding="utf-8"))
+
+
 def _load_schema() -> dict[str, Any]:
-    text = resources.files(__package__).joinpath(SCHEMA_FILE).read_text(encoding="utf-8")
-    return json.loads(text)
+    return _read(SCHEMA_FILE)
+
+
+def check_result_schema() -> dict[str, Any]:
+    """The JSON Schema (draft 2020-12) of a board check result, as a new dict each call.
+
+    Its "fit" key refers to the fit schema by $id; that schema is bundled under
+    ``$defs["fitResult"]`` so the returned schema is complete on its own.
+    """
+    schema = copy.deepcopy(_read(CHECK_SCHEMA_FILE))
+    schema["$defs"]["fitResult"] = fit_result_schema()
+    return schema
 
 
 def fit_result_schema() -> dict[str, Any]:

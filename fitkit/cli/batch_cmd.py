@@ -1,0 +1,134 @@
+"""`fitkit batch`: fit or check a production line's worth of captures."""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from .capture_options import CaptureOptions, capture_options
+
+#: Problem lines printed at the end; the rest are in problems.csv.
+MAX_PROBLEM_LINES = 20
+
+
+def _progress_printer(stream):
+    """A progress callback: a tqdm bar on an interactive stderr, plain lines otherwise."""
+    bar_class = None
+    if stream.isatty():
+        try:
+            from tqdm import tqdm as bar_class
+        except ImportError:  # no tqdm: plain lines everywhere
+            bar_class = None
+    if bar_class is not None:
+        bar = None
+
+        def on_progress(done, total, record):
+            nonlocal bar
+            if bar is None:
+                bar = bar_class(total=total, file=stream, unit="capture", leave=True, dynamic_ncols=True)
+            bar.update(1)
+            if record["status"] not in ("fitted", "pass"):
+                bar.write(f"{record['status']}: {record['file']}", file=stream)
+            if done == total:
+                bar.close()
+        return on_progress
+
+    width = 0
+
+    def on_progress(done, total, record):
+        nonlocal width
+        width = width or len(str(total))
+        click.echo(f"[{done:>{width}}/{total}] {record['status']:<11} {record['file']}", err=True)
+    return on_progress
+
+
+def _announce(plan):
+    click.echo(f"{len(plan.inputs)} inputs: {len(plan.todo)} to process, "
+               f"{len(plan.done)} already done in an earlier run", err=True)
+
+
+@click.command("batch")
+@click.argument("paths", nargs=-1, required=True)
+@click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False),
+              help="Folder for per-capture results and the summary (created if needed).")
+@click.option("--design", type=click.Path(exists=True, dir_okay=False),
+              help="Design file: check every board against it (otherwise fit only).")
+@click.option("--model", default="auto", show_default=True,
+              help="Form to fit (see `fitkit forms`), or auto to choose one per capture; "
+                   "with --design the design decides the form.")
+@click.option("--average", is_flag=True, help="Coherently average the edges of each capture.")
+@click.option("--workers", type=click.IntRange(min=1), help="Local worker processes [default: all cores].")
+@click.option("--cluster", metavar="ADDRESS",
+              help="Run on the Dask scheduler at ADDRESS, e.g. tcp://host:8786 (needs fitkit[cluster]; "
+                   "the workers must see the files under the same paths).")
+@click.option("--redo", is_flag=True, help="Process again the captures already done in OUT.")
+@click.option("--no-plots", is_flag=True, help="Skip the distribution plots.")
+@capture_options
+def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plots, **kwargs):
+    """Fit (or, with --design, check) every capture in PATHS: files, folders
+    (searched recursively for .csv .txt .tsv .dat .asc .prn .npz .parquet) and
+    glob patterns such as "line3/*.csv".
+
+    Writes each capture's result to OUT/captures/ as soon as it is done, then
+    OUT/summary.csv, summary.parquet and summary.json (one row per input,
+    nothing dropped: missing names, unreadable files and duplicates each have a
+    row), problems.csv (every input needing a look, with the reason) and a
+    distribution plot per quantity. A re-run skips the captures already done
+    (same file content, settings and fitkit version) unless --redo, so an
+    interrupted batch resumes where it stopped.
+
+    \b
+    Exit status, by the first rule that applies:
+      1   some board failed its design check
+      70  some capture hit a bug in fitkit (or its worker died)
+      4   some input is missing, unreadable or holds no usable step
+      5   some fit did not converge or determines nothing
+      3   some board's check was inconclusive
+      0   every capture was fitted (or every board passed)
+    """
+    from ..batch import BatchSettings, batch_exit_status, run_batch, summary_frame, write_summary
+    from ..batch.discover import content_hash
+    from ..batch.summary import duplicate_reason
+
+    options = CaptureOptions.pop(kwargs)
+    settings = BatchSettings(model=model, input=options.input_channel, output=options.output_channel,
+                             average=average, design=design,
+                             design_hash=content_hash(design) if design else None,
+                             read_options=options.load_kwargs())
+    try:
+        run = run_batch(paths, settings, out_dir, workers=workers, redo=redo, cluster=cluster,
+                        progress=_progress_printer(sys.stderr), on_plan=_announce)
+    except KeyboardInterrupt:
+        click.echo(f"fitkit: the captures finished so far are saved in {out_dir}; "
+                   "run the same command again to resume", err=True)
+        raise
+    written = write_summary(run, out_dir)
+    plots = []
+    if not no_plots:
+        from ..batch.summary import batch_limits
+        from ..report.batch_plots import plot_batch_distributions
+        frame, units = summary_frame(run)
+        plots = plot_batch_distributions(frame, units, out_dir, limits=batch_limits(run))
+
+    counts = ", ".join(f"{n} {s}" for s, n in _counts(run).items())
+    dup = f", {run.duplicates} duplicate" if run.duplicates else ""
+    click.echo(f"{len(run.records)} inputs: {counts}{dup} "
+               f"({run.computed} processed now, {run.resumed} from an earlier run)")
+    click.echo(f"summary: {written['csv']} (also .parquet, .json); problems: {written['problems']}")
+    if plots:
+        click.echo(f"distribution plots: {len(plots)} in {plots[0].parent}")
+    problems = [r for r in run.records if r["status"] not in ("fitted", "pass") or r.get("duplicate_of")]
+    for rec in problems[:MAX_PROBLEM_LINES]:
+        reason = rec.get("reason") or ""
+        if rec.get("duplicate_of"):
+            reason = duplicate_reason(rec["file"], rec["duplicate_of"], reason)
+        click.echo(f"  {rec['status']}: {rec['file']}" + (f": {reason}" if reason else ""))
+    if len(problems) > MAX_PROBLEM_LINES:
+        click.echo(f"  ... and {len(problems) - MAX_PROBLEM_LINES} more in {written['problems']}")
+    return batch_exit_status(run)
+
+
+def _counts(run):
+    from ..batch.summary import status_counts
+    return status_counts(run)
