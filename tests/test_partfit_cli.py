@@ -76,10 +76,10 @@ def files(tmp_path_factory):
 def test_topology_known_text_lists_part_interval_and_preferred_value(files, capsys):
     status, out, err = _run(capsys, files["rc"], "--topology", "rc-low-pass", "--known", "R1=10k")
     assert status == exitcodes.OK, err
-    assert "component values" in out
+    assert "Component values" in out
     line = next(l for l in out.splitlines() if l.strip().startswith("C1 "))
-    assert "nF" in line and "E24 4.7 nF" in line and "well determined" in line
-    assert out.index("component values") < out.index("warnings:")
+    assert "nF" in line and "4.7 nF (" in line and "well determined" in line
+    assert "Warnings" not in out or out.index("Component values") < out.index("Warnings")
 
 
 def test_topology_known_json_has_components(files, capsys):
@@ -104,8 +104,10 @@ def test_circuit_file_with_probe_ranks_design_root_first(files, capsys):
 
 
 def test_design_values_option_picks_the_other_root(files, capsys):
-    status, out, err = _run(capsys, files["ladder"], "--topology", "rc-ladder-2", "--known", "R1=10k,R2=10k",
-                            "--design-values", "C1=47n,C2=4.7n", "--source-resistance", "--json")
+    # --source-resistance takes a required value; placed right before FILE it must not swallow the file name
+    status, out, err = _run(capsys, "--topology", "rc-ladder-2", "--known", "R1=10k,R2=10k",
+                            "--design-values", "C1=47n,C2=4.7n", "--json", "--source-resistance", "50",
+                            files["ladder"])
     assert status == exitcodes.OK, err
     d = json.loads(out)
     assert d["components"]["C1"]["value"] > 30e-9        # the large-C1 root ranked first

@@ -47,4 +47,4 @@ def test_readme_first_command_fits_the_demo_capture():
                          capture_output=True, text=True, timeout=300)
     assert out.returncode == 0, out.stderr
     tau_line = next(line for line in out.stdout.splitlines() if line.strip().startswith("tau"))
-    assert re.search(r"\[[0-9.]+ [mun]?s, [0-9.]+ [mun]?s\]", tau_line), tau_line
+    assert re.search(r"\[[0-9.]+ [mµun]?s, [0-9.]+ [mµun]?s\]", tau_line), tau_line

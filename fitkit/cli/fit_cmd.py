@@ -6,62 +6,9 @@ import json
 
 import click
 
-from ..units import format_interval, format_value, parse_value
+from ..units import parse_value
 from .capture_options import CaptureOptions, capture_options
 from .output_options import OutputRequest, output_options, quiet_text, write_outputs
-
-#: Plain-words labels for the quantities in the text table.
-LABELS = {
-    "tau": "time constant", "tau1": "slow time constant", "tau2": "fast time constant",
-    "tau3": "third time constant", "f0": "natural frequency", "omega0": "natural angular frequency",
-    "Q": "quality factor", "zeta": "damping ratio", "baseline": "baseline", "step": "step",
-    "gain": "DC gain", "t0": "edge time", "bandwidth_3db": "-3 dB bandwidth", "rise_time": "rise time 10-90 %",
-    "overshoot": "overshoot", "settling_time_2pct": "settling time 2 %", "damped_frequency": "ringing frequency",
-    "peak_time": "peak time", "cutoff_3db": "-3 dB corner", "decay_time": "decay time 90-10 %",
-}
-
-
-def _row(est) -> str:
-    label = f"{est.name} ({LABELS[est.name]})" if est.name in LABELS else est.name
-    if not est.determined:
-        return f"  {label:<40} {'not determined':<14} the data do not fix this quantity"
-    unit = "" if est.unit == "%" else est.unit
-    value = format_value(est.value, unit) + (" %" if est.unit == "%" else "")
-    interval = "held fixed" if est.interval_method == "held fixed" else (
-        format_interval(est.ci95[0], est.ci95[1], unit, digits=4) + (" %" if est.unit == "%" else "")
-        if est.ci95 else "n/a")
-    return f"  {label:<40} {value:<14} {interval:<30} {est.interval_method}"
-
-
-def render_text(result) -> str:
-    """The fit as a readable table of our own layout (all numbers in engineering notation)."""
-    d = result.diagnostics
-    lines = [f"step-response fit of {result.file or '(in memory)'}",
-             f"  form:   {result.model} - {result.extra.get('form_summary', '')}",
-             f"  chosen: {result.selection_reason}",
-             f"  mode:   {result.extra.get('mode', '')}, {len(result.extra.get('edges', []))} edge(s) fitted jointly",
-             "", "parameters (value, 95 % interval, how the interval was found)"]
-    lines += [_row(e) for e in result.parameters.values()]
-    shown = set(result.parameters)
-    derived = [e for e in result.derived.values() if e.name not in shown]
-    if derived:
-        lines += ["", "derived quantities"] + [_row(e) for e in derived]
-    if len(result.selection) > 1:
-        lines += ["", f"forms compared ({d.criterion_name if d else 'criterion'}; lower is better)"]
-        for c in result.selection:
-            crit = "did not converge" if not c.converged else f"{c.delta:+9.1f}"
-            lines.append(f"  {c.model:<20} {c.n_parameters:>2} parameters  {crit:<16} {c.note}")
-    if d is not None:
-        lines += ["", "residuals",
-                  f"  {d.n_samples} points fitted; rms residual {format_value(d.rms_residual, 'V')}"
-                  f" against a noise estimate of {format_value(d.noise_rms, 'V')}",
-                  f"  lag-1 autocorrelation {d.residual_lag1:.2f}; about {d.effective_samples:.0f} "
-                  f"independent samples",
-                  f"  correlated-noise correction: {d.correction}"]
-    lines += ["", "warnings:" + ("" if result.warnings else " none")]
-    lines += [f"  - {w}" for w in result.warnings]
-    return "\n".join(lines)
-
 
 # -- component values: --circuit / --topology (see fitkit.partfit) -------------------
 
@@ -179,51 +126,6 @@ class CircuitArgs:
         return fit_circuit(capture, circuit, design_values=design or None, **kwargs)
 
 
-def components_text(result) -> str:
-    """The components block: each part with its 95 % interval, nearest E24 / E96 value and
-    how well it is determined; other solutions; the measurement chain's effect."""
-    extra = result.extra or {}
-    lines = ["component values (value, 95 % interval, nearest preferred value, how well determined)"]
-    for name, est in result.components.items():
-        if not est.determined:
-            lines.append(f"  {name:<8} {'not determined':<14} {est.interval_method}")
-            continue
-        pref = extra.get("preferred", {}).get(name, {})
-        near = "  ".join(f"{s} {format_value(pref[s], est.unit, 3)} ({100 * pref[s + '_deviation']:+.1f} %)"
-                         for s in ("E24", "E96") if s in pref)
-        status = extra.get("determination", {}).get(name, {}).get("status", "")
-        interval = format_interval(est.ci95[0], est.ci95[1], est.unit, digits=3) if est.ci95 else "n/a"
-        lines.append(f"  {name:<8} {format_value(est.value, est.unit):<14} {interval:<28} {near}   {status}")
-    solutions = extra.get("solutions") or []
-    if len(solutions) > 1:
-        lines += ["", f"other solutions that fit equally well ({len(solutions)} in all; first = reported above)"]
-        for sol in solutions[1:]:
-            vals = ", ".join(f"{n} = {format_value(v, result.components[n].unit)}"
-                             for n, v in sol["values"].items() if v is not None)
-            lines.append(f"  {vals}")
-    ident = extra.get("identifiability") or {}
-    if ident.get("undetermined"):
-        lines += ["", "identifiability"] + [f"  {m}" for m in ident.get("messages", [])]
-    if extra.get("routes_agree") is not None:
-        form = (extra.get("behavioural_route") or {}).get("form", "behavioural")
-        word = "agree" if extra["routes_agree"] else "DISAGREE"
-        lines += ["", f"two routes: the {form} fit mapped to parts and the direct fit {word} "
-                      "within their 95 % intervals"]
-    chain = extra.get("chain_effect")
-    if chain:
-        lines += ["", "measurement chain"] + [f"  {m}" for m in chain.get("messages", [])]
-    return "\n".join(lines)
-
-
-def with_components(text: str, result) -> str:
-    """The fit's text with the components block placed before its warnings (when it has components)."""
-    if not result.components:
-        return text
-    block = components_text(result)
-    head, sep, tail = text.partition("\nwarnings:")
-    return f"{head.rstrip()}\n\n{block}\n{sep}{tail}" if sep else f"{text}\n\n{block}"
-
-
 @click.command("fit")
 @click.argument("file", type=click.Path(dir_okay=False))
 @click.argument("out_file", required=False, type=click.Path(dir_okay=False))
@@ -246,6 +148,7 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
     When an input channel is present the model is driven by the measured input.
     """
     from ..fitting import fit_capture
+    from ..report.text import render_fit_text
 
     outputs = OutputRequest.pop(kwargs)
     outputs.validate([file, out_file, kwargs.get("circuit_file")], as_json=as_json)
@@ -266,4 +169,4 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
     elif outputs.quiet:
         click.echo(quiet_text(result), nl=False)
     else:
-        click.echo(with_components(render_text(result), result))
+        click.echo(render_fit_text(result), nl=False)

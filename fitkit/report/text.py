@@ -39,11 +39,15 @@ def render_fit_text(result: FitResult, quiet: bool = False) -> str:
         rows = [r for r in quantity_rows(result, skip_repeated=True) if r.kind == kind]
         if rows:
             preferred = (result.extra or {}).get("preferred") if kind == "component" else None
-            blocks.append(_quantity_table(_SECTION_TITLES[kind], rows, preferred))
+            determination = (result.extra or {}).get("determination") if kind == "component" else None
+            blocks.append(_quantity_table(_SECTION_TITLES[kind], rows, preferred, determination))
     if result.selection:
         blocks.append(_candidates_table(result))
     if result.diagnostics is not None:
         blocks.append(_diagnostics_block(result))
+    notes = _circuit_notes(result)
+    if notes:
+        blocks.append(notes)
     if result.warnings:
         blocks.append("Warnings\n" + "\n".join(f"{_INDENT}! {w}" for w in result.warnings))
     return "\n\n".join(blocks) + "\n"
@@ -86,6 +90,10 @@ def _header(result: FitResult) -> str:
     lines = [("file", result.file or "(in memory)"), ("form", result.model or "(none)")]
     if result.selection_reason:
         lines.append(("why", result.selection_reason))
+    mode = (result.extra or {}).get("mode")
+    if mode:
+        n_edges = len((result.extra or {}).get("edges") or [])
+        lines.append(("mode", f"{mode}" + (f", {n_edges} edge(s) fitted jointly" if n_edges else "")))
     other = runner_up(result)
     if other is not None:
         lines.append(("runner-up", _candidate_phrase(other, criterion_name(result))))
@@ -104,9 +112,12 @@ def _candidate_phrase(cand, crit: str) -> str:
     return f"{cand.model} ({crit} {cand.delta:+.1f} against the chosen form)"
 
 
-def _quantity_table(title: str, rows: Sequence[QuantityRow], preferred: dict | None = None) -> str:
+def _quantity_table(title: str, rows: Sequence[QuantityRow], preferred: dict | None = None,
+                    determination: dict | None = None) -> str:
     """The table of one kind of quantity; ``preferred`` (components only: part ->
-    {"E24": value, "E24_deviation": x, ...}, see fitkit.partfit) adds a nearest-E24 column."""
+    {"E24": value, "E24_deviation": x, ...}, see fitkit.partfit) adds a nearest-E24 column,
+    and ``determination`` (part -> {"status": "well determined", ...}) says how well
+    the capture determines each part, in the meaning column."""
     table = [["name", "value", "95 % interval"] + (["nearest E24"] if preferred else []) + ["meaning"]]
     for row in rows:
         est = row.estimate
@@ -117,7 +128,9 @@ def _quantity_table(title: str, rows: Sequence[QuantityRow], preferred: dict | N
             p = preferred.get(row.name) if value != NOT_DETERMINED else None
             cells.append(f"{format_quantity(p['E24'], est.unit, 3)} ({100 * p['E24_deviation']:+.1f} %)"
                          if p and "E24" in p else "-")
-        table.append(cells + [row.label])
+        status = (determination or {}).get(row.name, {})
+        status = status.get("status") if isinstance(status, dict) else None
+        table.append(cells + [row.label + (f"; {status}" if status else "")])
     return title + "\n" + "\n".join(_align(table))
 
 
@@ -154,3 +167,33 @@ def _diagnostics_block(result: FitResult) -> str:
          else "no"],
     ]
     return "Diagnostics\n" + "\n".join(_align(rows))
+
+
+def _circuit_notes(result: FitResult) -> str:
+    """For component fits (fitkit.partfit): other solutions, what one capture
+    cannot determine, whether the two solving routes agree, and how much the
+    measurement chain shifts the circuit's quantities. Empty for plain fits."""
+    extra = result.extra or {}
+    if not result.components:
+        return ""
+    lines: list[str] = []
+    solutions = extra.get("solutions") or []
+    if len(solutions) > 1:
+        lines += [f"other solutions that fit equally well ({len(solutions)} in all; the first is reported above)"]
+        for sol in solutions[1:]:
+            values = ", ".join(f"{n} = {format_quantity(v, result.components[n].unit, 4)}"
+                               for n, v in sol.get("values", {}).items()
+                               if v is not None and n in result.components)
+            lines.append(_INDENT + values)
+    ident = extra.get("identifiability") or {}
+    if ident.get("undetermined"):
+        lines += ["what one capture cannot determine"] + [_INDENT + m for m in ident.get("messages", [])]
+    if extra.get("routes_agree") is not None:
+        form = (extra.get("behavioural_route") or {}).get("form", "behavioural")
+        word = "agree" if extra["routes_agree"] else "DISAGREE"
+        lines.append(f"two routes: the {form} fit mapped to parts and the direct fit {word} "
+                     "within their 95 % intervals")
+    chain = extra.get("chain_effect")
+    if chain and chain.get("messages"):
+        lines += ["measurement chain"] + [_INDENT + m for m in chain["messages"]]
+    return ("Circuit notes\n" + "\n".join(lines)) if lines else ""
