@@ -123,6 +123,17 @@ def causal(t_rel: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return after, np.where(after, t_rel, 0.0)
 
 
+def running_mean(y: np.ndarray, k: int) -> np.ndarray:
+    """Centred running mean over k samples, same length as y, edges padded with
+    the end values; O(n) by cumulative sums (np.convolve would be O(n k))."""
+    y = np.asarray(y, dtype=float)
+    if k <= 1 or y.size == 0:
+        return y
+    padded = np.concatenate([np.full(k // 2, y[0]), y, np.full(k - 1 - k // 2, y[-1])])
+    c = np.concatenate([[0.0], np.cumsum(padded)])
+    return (c[k:] - c[:-k]) / k
+
+
 def log_grid(lo: float, hi: float, n: int) -> np.ndarray:
     """n points spaced evenly in log between lo and hi (both > 0)."""
     return np.geomspace(lo, hi, n)
@@ -142,8 +153,7 @@ def rise_time_scale(t_rel: np.ndarray, y_norm: np.ndarray) -> float:
         return float(max(t_rel[-1], 1e-30))
     k = max(1, t_after.size // 200)
     if k > 1:
-        kernel = np.ones(k) / k
-        y_after = np.convolve(y_after, kernel, mode="same")
+        y_after = running_mean(y_after, k)
     crossed = np.nonzero(y_after >= 0.632)[0]
     if crossed.size:
         return float(max(t_after[crossed[0]], t_after[0]))

@@ -14,6 +14,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .base import running_mean
+
 
 def _after_edge(t_rel: np.ndarray, y_norm: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Samples after the edge, with a running mean of ~1/200 of their number."""
@@ -23,8 +25,7 @@ def _after_edge(t_rel: np.ndarray, y_norm: np.ndarray) -> tuple[np.ndarray, np.n
     t, y = t_rel[after], y_norm[after]
     k = max(1, t.size // 200)
     if k > 1:
-        padded = np.concatenate([np.full(k // 2, y[0]), y, np.full(k - 1 - k // 2, y[-1])])
-        y = np.convolve(padded, np.ones(k) / k, mode="valid")
+        y = running_mean(y, k)
     return t, y
 
 
