@@ -197,3 +197,17 @@ def test_envelope_volts_follow_the_capture():
     t, lo, hi = r.envelope_volts
     assert np.all(lo <= hi) and abs(hi[-1] - 1.0) < 0.05
     assert r.envelope_comparison.fraction_outside < 0.05
+
+
+def test_check_result_notebook_views():
+    # to_frame() and the notebook HTML view of a board check (issue 7: Python API for notebooks)
+    from fitkit import load_capture
+    from fitkit.check import check_capture
+    root = Path(__file__).resolve().parents[1] / "demo_captures"
+    result = check_capture(load_capture(str(root / "drifted_board_sallen_key.csv")),
+                           str(root / "designs" / "sallen_key_lowpass.toml"), envelope_trials=40)
+    frame = result.to_frame()
+    assert {"kind", "name", "value", "verdict"} <= set(frame.columns)
+    assert "C1" in set(frame["name"]) or "C31" in set(frame["name"])
+    html = result._repr_html_()
+    assert "Board check" in html and "<table" in html and "data:image/png;base64" in html

@@ -98,6 +98,25 @@ class CheckResult:
         from ..report.check_plots import plot_check
         return plot_check(self, path=path, ax=ax)
 
+    def to_frame(self):
+        """The check as a pandas DataFrame, one row per behavioural quantity, part
+        and suspect: kind, name, value, ci95_low, ci95_high (SI units), unit,
+        limit_low, limit_high, nominal, verdict, note (fitkit.report.check_tables)."""
+        import pandas as pd
+        from ..report.check_tables import check_records
+        return pd.DataFrame(check_records(self))
+
+    def _repr_html_(self) -> str:
+        """Notebook view: verdict, check tables, fit tables and the figure (PNG) with
+        the tolerance envelope, as an HTML fragment."""
+        from ..report.check_tables import check_html_sections
+        from ..report.check_text import suspect_notes
+        from ..report.html import render_html_fragment
+        return render_html_fragment(self.fit, verdict=self.verdict, lead_sections=check_html_sections(self),
+                                    figure_format="png", title="Board check",
+                                    plot_options={"envelope": self.envelope_volts,
+                                                  "notes": suspect_notes(self)})
+
 
 def behavioural_form(design: Design, measured_input: bool) -> str:
     """The step-response form matching the design's order and kind."""
