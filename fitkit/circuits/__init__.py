@@ -4,7 +4,8 @@
 * toml_format.py  fitkit's circuit file (see docs/circuit-format.md): load_circuit, dumps_circuit
 * topologies.py   the named library: topology("rc-ladder-2", R1="10k", C1="?")
 * mna.py          modified nodal analysis -> numerator and denominator polynomials
-* transfer.py     TransferFunction (poles, zeros, DC gain, tau/f0/Q, step response)
+* transfer.py     TransferFunction (poles, zeros, DC gain, tau/f0/Q, step response by partial fractions)
+* parametric.py   PartFamily: H(s) as unknown parts vary, without a nodal analysis per call (for the fits)
 * coefficients.py coefficients and their Jacobian w.r.t. ln(unknown parts), for the fits
 * identifiability.py  which unknowns one step capture determines
 * solve.py        every physical solution of the coefficient equations
@@ -17,6 +18,7 @@ from .coefficients import (CoefficientJacobian, coefficient_jacobian, coefficien
 from .description import Circuit, MeasurementChain, Part, probe_chain
 from .fixture import ChainEffect, measurement_chain_effect
 from .identifiability import IdentifiabilityReport, identifiability
+from .parametric import PartFamily
 from .preferred import PreferredValue, nearest_preferred, place_among_preferred, preferred_neighbours
 from .solve import PartSolution, solve_parts
 from .toml_format import dumps_circuit, load_circuit, loads_circuit
@@ -27,7 +29,7 @@ __all__ = [
     "Circuit", "Part", "MeasurementChain", "probe_chain",
     "load_circuit", "loads_circuit", "dumps_circuit",
     "TOPOLOGIES", "Topology", "topology", "get_topology", "apply_part_settings",
-    "TransferFunction", "transfer_function",
+    "TransferFunction", "transfer_function", "PartFamily",
     "CoefficientJacobian", "coefficients", "coefficient_vector", "coefficient_jacobian", "log_part_covariance",
     "IdentifiabilityReport", "identifiability",
     "PartSolution", "solve_parts",

@@ -186,6 +186,38 @@ def sample_on_circle(system: MnaSystem, w0: float, n_points: int) -> tuple[np.nd
     return z, D, H
 
 
+def unnormalised_polynomials(system: MnaSystem, w0: float, n_points: int,
+                             log_reference: float | None = None) -> tuple[np.ndarray, np.ndarray, float]:
+    """det(G + s C) and its Cramer numerator (the output column replaced by b) as
+    polynomials in z = s / w0, ascending, with no normalisation or cancellation.
+
+    Both are divided by exp(log_reference) (default: the largest log|det| on the
+    circle, returned) so that systems sampled with the same reference are on one
+    absolute scale. Each part's stamp is a rank-one change of G or C, so (matrix
+    determinant lemma) both polynomials are affine in every conductance 1/R,
+    capacitance C and inductance L: the property circuits.parametric builds on.
+    Returns (num, den, log_reference); raises ValueError when the system is singular.
+    """
+    z = np.exp(2j * np.pi * (np.arange(n_points) + 0.5) / n_points)
+    rows, cols = _equilibrate(system.G, system.C, w0)
+    Gs = rows[:, None] * system.G * cols[None, :]
+    Cs = rows[:, None] * system.C * cols[None, :] * w0
+    A = Gs[None, :, :] + z[:, None, None] * Cs[None, :, :]
+    sign, logabs = np.linalg.slogdet(A)
+    if not np.all(np.isfinite(logabs)):
+        raise ValueError("singular")
+    log_raw = logabs - np.log(rows).sum() - np.log(cols).sum()     # log|det| of G + s C itself
+    if log_reference is None:
+        log_reference = float(log_raw.max())
+    D = sign * np.exp(log_raw - log_reference)
+    bs = (rows * system.b).astype(complex)
+    x = np.linalg.solve(A, np.broadcast_to(bs, (n_points, bs.size))[..., None])[..., 0]
+    N = x[:, system.output] * cols[system.output] * D
+    if not np.all(np.isfinite(N)):
+        raise ValueError("singular")
+    return _interpolate(N), _interpolate(D), log_reference
+
+
 def _interpolate(values: np.ndarray) -> np.ndarray:
     """Real coefficients (ascending powers) of the polynomial sampled at the M points
     z_j = exp(2 pi i (j + 1/2) / M) (degree below M): an inverse DFT, undoing the offset."""

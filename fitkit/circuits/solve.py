@@ -20,9 +20,10 @@ import numpy as np
 from scipy import optimize
 
 from ..results import json_number
-from .coefficients import coefficient_vector, coefficients, flatten
+from .coefficients import flatten
 from .description import Circuit
 from .identifiability import identifiability
+from .parametric import PartFamily
 
 #: Relative RMS coefficient error below which a point counts as a solution.
 SOLUTION_TOLERANCE = 1e-7
@@ -114,17 +115,20 @@ def solve_parts(circuit: Circuit, unknowns: Sequence[str], target_num: Sequence[
     rows = np.nonzero(target)[0]
     scale = np.abs(target[rows])
 
+    family = PartFamily(circuit, unknowns, guess)   # the coefficients without a nodal analysis per call
+
     def residual(log_values: np.ndarray) -> np.ndarray:
         with np.errstate(all="ignore"):
             values = dict(zip(unknowns, np.exp(np.clip(log_values, -200.0, 200.0))))
             try:
-                c = coefficient_vector(circuit, unknowns, values, nd, dd)
+                tf = family.transfer_function(values)
+                c = flatten(tf.numerator, tf.denominator, nd, dd)
             except ValueError:     # CircuitError included: values out of any usable range
                 return np.full(rows.size, 1e3)
             r = (c[rows] - target[rows]) / scale
         return np.where(np.isfinite(r), r, 1e3)
 
-    at_guess = coefficients(circuit, unknowns, guess)
+    at_guess = (family.reference.numerator, family.reference.denominator)
     extra_num = num[: max(0, num.size - at_guess[0].size)]
     if at_guess[1].size - 1 != dd or np.any(extra_num != 0) or rows.size < len(unknowns):
         raise circuit.error(f"the target ({dd} poles, {num.size - 1} zeros) does not fit this circuit's "

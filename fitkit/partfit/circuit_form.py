@@ -9,8 +9,9 @@ is wrapped as a form:
 * shape parameters = the unknown parts, in ohms / farads / henries, of kind
   "ratio" (the engine fits ln(value), so values stay positive and a
   relative error is the natural scale);
-* unit_step(t) = the circuit's step response (nodal analysis ->
-  TransferFunction.step_response, exact for a step) divided by a
+* unit_step(t) = the circuit's step response (H(s) from a
+  circuits.parametric.PartFamily, which equals the nodal analysis at a few
+  microseconds per call -> TransferFunction.step_response, exact for a step) divided by a
   normalisation: the DC gain when it is non-zero (the response settles at 1),
   else the high-frequency gain (a high-pass: jumps to 1 and decays to 0),
   else a constant fixed at the start values (a band-pass);
@@ -29,7 +30,8 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
-from ..circuits import Circuit, TransferFunction, transfer_function
+from ..circuits import Circuit, TransferFunction
+from ..circuits.parametric import PartFamily
 from ..forms.base import Form, ParamSpec
 
 #: Units of the quantities TransferFunction.quantities() returns.
@@ -37,6 +39,8 @@ QUANTITY_UNITS = {"dc_gain": "", "tau": "s", "f0": "Hz", "Q": "", "zeta": "", "t
                   "tau_fast": "s", "tau_slowest": "s"}
 #: How many transfer functions the form keeps (the fit revisits the same values often).
 CACHE_SIZE = 64
+#: How many step responses (per set of times) the form keeps.
+RESPONSE_CACHE_SIZE = 16
 
 
 def normalisation_kind(tf: TransferFunction) -> str:
@@ -49,58 +53,10 @@ def normalisation_kind(tf: TransferFunction) -> str:
     return "fixed"
 
 
-def modal_step_response(tf: TransferFunction, t: np.ndarray) -> np.ndarray | None:
-    """Unit-step response by partial fractions, or None when two poles (nearly) coincide.
-
-    With H(s) = D + sum_i r_i / (s - p_i) (simple poles p_i, residues
-    r_i = N(p_i) / den'(p_i)), the step response is
-    y(t) = D + sum_i r_i (exp(p_i t) - 1) / p_i for t >= 0, and 0 before.
-    Much cheaper than the matrix exponential, and exact for simple poles; the
-    residues grow as 1/(p_i - p_j), so poles closer than 1e-4 relative (or a
-    pole at 0) are left to TransferFunction.step_response.
-    """
-    num, den = np.asarray(tf.numerator, dtype=float), np.asarray(tf.denominator, dtype=float)
-    if len(num) > len(den) or tf.order == 0:
-        return None
-    lead = den[0]
-    num, den = num / lead, den / lead
-    direct = 0.0
-    if len(num) == len(den):
-        direct = num[0]
-        num = num[1:] - direct * den[1:]
-    poles = np.roots(den)
-    mag = np.abs(poles)
-    if np.any(mag == 0) or not np.all(np.isfinite(poles)):
-        return None
-    gaps = np.abs(poles[:, None] - poles[None, :])
-    np.fill_diagonal(gaps, np.inf)
-    if np.min(gaps / np.maximum(mag[:, None], mag[None, :])) < 1e-4:
-        return None
-    residues = np.polyval(num, poles) / np.polyval(np.polyder(den), poles)
-    t = np.asarray(t, dtype=float)
-    after = t >= 0
-    tc = np.where(after, t, 0.0)
-    with np.errstate(over="ignore", invalid="ignore"):
-        y = direct + np.real(np.tensordot(np.expm1(np.multiply.outer(tc, poles)), residues / poles, axes=1))
-    if not np.all(np.isfinite(y)):
-        return None
-    return np.where(after, y, 0.0)
-
-
 def step_response_any_shape(tf: TransferFunction, t: np.ndarray) -> np.ndarray:
-    """Unit-step response for a 1-D or 2-D time array (seconds): by partial fractions
-    when the poles are simple, else tf.step_response (matrix exponential), column by
-    column for a 2-D array so each column stays evenly spaced (its fast path)."""
-    t = np.asarray(t, dtype=float)
-    fast = modal_step_response(tf, t)
-    if fast is not None:
-        return fast
-    if t.ndim <= 1:
-        return tf.step_response(t)
-    out = np.empty_like(t)
-    for j in range(t.shape[1]):
-        out[:, j] = tf.step_response(t[:, j])
-    return out
+    """Unit-step response for a time array of any shape (seconds): TransferFunction.step_response
+    (partial fractions for simple poles, the matrix exponential for repeated ones)."""
+    return tf.step_response(np.asarray(t, dtype=float))
 
 
 def circuit_form(circuit: Circuit, unknowns: Sequence[str], time_unit: float,
@@ -117,12 +73,13 @@ def circuit_form(circuit: Circuit, unknowns: Sequence[str], time_unit: float,
     if not starts:
         raise ValueError("circuit_form needs at least one start")
     cache: OrderedDict[tuple[float, ...], TransferFunction] = OrderedDict()
+    family = PartFamily(circuit, unknowns, starts[0])     # H(s) in microseconds, not a nodal analysis per call
 
     def tf_of(shape: Mapping[str, float]) -> TransferFunction:
         key = tuple(float(shape[n]) for n in unknowns)
         tf = cache.get(key)
         if tf is None:
-            tf = transfer_function(circuit, dict(zip(unknowns, key)))
+            tf = family.transfer_function(dict(zip(unknowns, key)))
             cache[key] = tf
             if len(cache) > CACHE_SIZE:
                 cache.popitem(last=False)
@@ -142,9 +99,22 @@ def circuit_form(circuit: Circuit, unknowns: Sequence[str], time_unit: float,
             return tf.numerator[0] / tf.denominator[0]
         return fixed_scale
 
+    responses: OrderedDict[tuple, np.ndarray] = OrderedDict()
+
     def unit_step(t_rel: np.ndarray, **shape: float) -> np.ndarray:
-        tf = tf_of(shape)
-        return step_response_any_shape(tf, np.asarray(t_rel, dtype=float) * time_unit) / scale_of(tf)
+        # A joint fit asks for the same times once per edge (edges of equal length): keep the last few.
+        t_rel = np.asarray(t_rel, dtype=float)
+        key = (tuple(float(shape[n]) for n in unknowns), t_rel.shape, t_rel.tobytes())
+        y = responses.get(key)
+        if y is None:
+            tf = tf_of(shape)
+            y = step_response_any_shape(tf, t_rel * time_unit) / scale_of(tf)
+            responses[key] = y
+            if len(responses) > RESPONSE_CACHE_SIZE:
+                responses.popitem(last=False)
+        else:
+            responses.move_to_end(key)
+        return y.copy()
 
     def transfer(**shape: float) -> tuple[np.ndarray, np.ndarray]:
         """Normalised H(s), s in rad/s (SI), whose step response is unit_step."""
