@@ -22,10 +22,11 @@ import pytest
 from check_simulator import simulate_board
 from fitkit.check import check_capture, loads_design
 from fitkit.io import load_capture
+from reference_paths import REAL_CAPTURES
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "demo_captures"
-REAL_RL = Path("/work/shared/reference/real-captures/rl-square-scope.csv")
+REAL_RL = REAL_CAPTURES / "rl-square-scope.csv"
 
 RC = '''name = "RC test board"
 drive = "in"

@@ -5,7 +5,7 @@ References: first-order high-pass step response exp(-t / tau) and its 90-10 %
 decay time tau ln 9 (same algebra as the textbook first-order rise time, Ogata);
 white noise averaged over N records has 1 / sqrt(N) of its standard deviation
 (common practice, no source); the real captures' SOURCE.md in
-/work/shared/reference/real-captures (edge counts and steps stated there).
+../shared/reference/real-captures (edge counts and steps stated there).
 """
 
 from __future__ import annotations
@@ -22,9 +22,10 @@ import scipy.signal
 from fitkit.capture import Capture
 from fitkit.conditioning import analyse_steps, render_text
 from fitkit.errors import ConditioningError, FitkitError, OptionError
+from reference_paths import REAL_CAPTURES
 
 DT = 1e-6
-REAL = Path("/work/shared/reference/real-captures")
+REAL = REAL_CAPTURES
 
 
 def _rc_step(*, tau_samples=20.0, pre=200, post=400, noise=0.0, seed=0, high_pass=False, amplitude=1.0):

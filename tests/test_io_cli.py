@@ -20,8 +20,9 @@ from fitkit.cli.capture_options import CaptureOptions, capture_options, channel_
 from fitkit.errors import OptionError
 
 import test_io_layouts as layouts
+from reference_paths import REAL_CAPTURES
 
-REAL = Path("/work/shared/reference/real-captures")
+REAL = REAL_CAPTURES
 
 
 def run(args):

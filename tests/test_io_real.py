@@ -14,10 +14,9 @@ import pandas as pd
 import pytest
 
 from fitkit.io import load_capture
+from reference_paths import REAL_CAPTURES
 
-REAL = Path("/work/shared/reference/real-captures")
-if not REAL.exists():  # the project's own checkout layout: ../shared/reference
-    REAL = Path(__file__).resolve().parents[2] / "shared" / "reference" / "real-captures"
+REAL = REAL_CAPTURES
 pytestmark = pytest.mark.skipif(not REAL.exists(), reason="reference captures not available")
 
 

@@ -1,7 +1,7 @@
 """The least-squares core and its covariance against NIST StRD certified results.
 
 Source: NIST/ITL Statistical Reference Datasets, Nonlinear Least Squares
-Regression (files and notes in /work/shared/reference/nist-strd, SOURCE.md).
+Regression (files and notes in ../shared/reference/nist-strd, SOURCE.md).
 Each .dat file gives the model, two starting points, the certified parameter
 values and certified standard deviations (sqrt of diag of s^2 (J^T J)^-1),
 which a good nonlinear least-squares code reproduces to about 6 significant
@@ -27,8 +27,9 @@ import pytest
 from fitkit.conditioning.segment import StepSegment
 from fitkit.fitting import fit_model, fit_segments
 from fitkit.forms.first_order import FIRST_ORDER
+from reference_paths import NIST_STRD
 
-NIST = Path("/work/shared/reference/nist-strd")
+NIST = NIST_STRD
 
 
 def read_strd(name: str) -> tuple[dict[str, tuple[float, float, float, float]], np.ndarray, np.ndarray]:

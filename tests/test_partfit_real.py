@@ -20,8 +20,9 @@ import pytest
 from fitkit.circuits import topology
 from fitkit.io import load_capture
 from fitkit.partfit import POORLY_DETERMINED, fit_circuit
+from reference_paths import REAL_CAPTURES
 
-CAPTURE = Path("/work/shared/reference/real-captures/rc-ladder-adc-step.csv")
+CAPTURE = REAL_CAPTURES / "rc-ladder-adc-step.csv"
 
 
 @pytest.fixture(scope="module")
