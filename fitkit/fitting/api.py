@@ -23,6 +23,9 @@ from .estimates import derived_estimates, level_estimates, shape_estimates
 from .selection import (CRITERION, FALLBACK_CANDIDATES, Candidate, admissibility, choose,
                         default_candidates, needs_fallback)
 
+#: Above this many samples per segment, candidate forms are compared on bins
+#: of at most this many points per segment (see fit_segments).
+SELECTION_POINTS_PER_SEGMENT = 1000
 #: RMS residual above this multiple of the expected noise means the form does not describe the data.
 STRUCTURE_RATIO = 1.5
 
@@ -73,10 +76,14 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         else default_candidates(_returns_to_baseline(segments))
     cands: list[Candidate] = []
     queue = list(forms)
+    # candidates compete on coarser bins of a long record (the same data for
+    # all of them); the chosen form is then refitted at the full resolution
+    coarse = any(s.n_points > SELECTION_POINTS_PER_SEGMENT for s in segments)
+    select_kwargs = dict(kwargs, max_points=SELECTION_POINTS_PER_SEGMENT) if coarse else kwargs
     while queue:
         f = queue.pop(0)
         try:
-            ff = fit_form(segments, f, **kwargs)
+            ff = fit_form(segments, f, **select_kwargs)
         except FitError as err:
             cands.append(Candidate(f, None, {}, False, err.message))
             continue
@@ -90,8 +97,13 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
             tried = {c.form.name for c in cands}
             queue = [FORMS[n] for n in FALLBACK_CANDIDATES if n in FORMS and n not in tried]
     chosen, scores, reason, sel_warn = choose(cands)
-    shape, notes = shape_estimates(chosen.fit, intervals)
-    chosen = Candidate(chosen.form, chosen.fit, shape, True, "")
+    final = chosen.fit
+    if coarse:
+        refit = fit_form(segments, chosen.form, **kwargs)
+        if refit.converged:
+            final = refit
+    shape, notes = shape_estimates(final, intervals)
+    chosen = Candidate(chosen.form, final, shape, True, "")
     return _build(chosen, scores, reason, sel_warn + notes + list(warnings), file, segments, derived)
 
 

@@ -19,13 +19,17 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any, Callable, Mapping
+from typing import TYPE_CHECKING, Any, Callable, Mapping
 
-import lmfit
 import numpy as np
+
+if TYPE_CHECKING:
+    import lmfit
 
 #: Relative condition number of J above which the covariance is declared singular.
 SINGULAR_CONDITION = 1e13
+#: Below this condition number of J the covariance comes from J^T J directly.
+GRAM_CONDITION = 1e4
 
 
 @dataclass(frozen=True)
@@ -104,7 +108,20 @@ def covariance_from_jacobian(jac_w: np.ndarray, s2: float) -> tuple[np.ndarray, 
         return np.zeros((0, 0)), False, 1.0
     if not np.all(np.isfinite(jac_w)) or np.any(norms == 0):
         return np.full((p, p), np.nan), True, math.inf
-    _, sv, vt = np.linalg.svd(jac_w / norms, full_matrices=False)
+    scaled = jac_w / norms
+    # Fast path for a well-conditioned J: the eigen-decomposition of the small
+    # p x p matrix J^T J (its eigenvalues are the squared singular values);
+    # relative error about eps * cond^2, below 1e-8 for cond < 1e4. Otherwise
+    # (e.g. the NIST problems) the SVD of J itself.
+    gram = scaled.T @ scaled
+    ev, vecs = np.linalg.eigh(gram)
+    if ev[0] > 0 and ev[-1] / ev[0] < GRAM_CONDITION ** 2:
+        sv, vt = np.sqrt(ev[::-1]), vecs[:, ::-1].T
+    else:
+        # the singular values of J are those of R in J = QR (Householder QR
+        # first: much cheaper than the SVD of the tall J itself)
+        r = np.linalg.qr(scaled, mode="r") if scaled.shape[0] > 2 * p else scaled
+        _, sv, vt = np.linalg.svd(r, full_matrices=False)
     cond = float(sv[0] / sv[-1]) if sv[-1] > 0 else math.inf
     if cond > SINGULAR_CONDITION:
         return np.full((p, p), np.nan), True, cond
@@ -134,16 +151,12 @@ def fit_model(model: Callable[..., np.ndarray], params: Mapping[str, float] | lm
     Returns a :class:`ModelFit`; never raises on non-convergence (the caller
     decides), only on malformed input.
     """
+    import lmfit  # imported when used: the engine's projected fits do not need it (fast start-up)
+
     y = np.asarray(y, dtype=float)
     w = np.ones_like(y) if weights is None else np.asarray(weights, dtype=float)
     pars = _as_parameters(params, fixed)
     names = tuple(n for n, p in pars.items() if p.vary)
-    const = {n: p.value for n, p in pars.items() if not p.vary}
-
-    def model_of_vector(theta: np.ndarray) -> np.ndarray:
-        vals = dict(const)
-        vals.update(zip(names, theta))
-        return np.asarray(model(x, **vals), dtype=float)
 
     def residual(p: lmfit.Parameters) -> np.ndarray:
         try:
@@ -156,7 +169,26 @@ def fit_model(model: Callable[..., np.ndarray], params: Mapping[str, float] | lm
     budget = max_nfev or 2000 * (len(names) + 1)
     with np.errstate(all="ignore"):
         result = minimizer.minimize(method="leastsq", ftol=tol, xtol=tol, gtol=0.0, max_nfev=budget)
-    values = dict(result.params.valuesdict())
+    return model_fit_at(model, dict(result.params.valuesdict()), names, x, y, w,
+                        converged=bool(result.success), message=str(result.message),
+                        nfev=int(result.nfev), lmfit_state=(minimizer, result))
+
+
+def model_fit_at(model: Callable[..., np.ndarray], values: Mapping[str, float], names: tuple[str, ...],
+                 x: Any, y: np.ndarray, weights: np.ndarray, *, converged: bool, message: str,
+                 nfev: int, lmfit_state: Any = None) -> ModelFit:
+    """The :class:`ModelFit` at given optimum ``values`` (varied ``names``, the rest fixed):
+    central-difference Jacobian over ``names``, covariance, residuals."""
+    values = dict(values)
+    y = np.asarray(y, dtype=float)
+    w = np.asarray(weights, dtype=float)
+    const = {n: v for n, v in values.items() if n not in names}
+
+    def model_of_vector(theta: np.ndarray) -> np.ndarray:
+        vals = dict(const)
+        vals.update(zip(names, theta))
+        return np.asarray(model(x, **vals), dtype=float)
+
     theta = np.array([values[n] for n in names], dtype=float)
     with np.errstate(all="ignore"):
         fitted = model_of_vector(theta)
@@ -171,13 +203,14 @@ def fit_model(model: Callable[..., np.ndarray], params: Mapping[str, float] | lm
               for i, n in enumerate(names)}
     return ModelFit(names=names, values=values, stderr=stderr, covariance=cov, jacobian=jac,
                     fitted=fitted, residual=resid, weights=w, rss=rss, n=int(y.size), dof=int(dof),
-                    converged=bool(result.success) and finite, singular=singular,
-                    message=str(result.message), nfev=int(result.nfev), condition=cond,
-                    _lmfit=(minimizer, result))
+                    converged=converged and finite, singular=singular,
+                    message=message, nfev=nfev, condition=cond, _lmfit=lmfit_state)
 
 
 def _as_parameters(params: Mapping[str, float] | lmfit.Parameters,
                    fixed: Mapping[str, float] | None) -> lmfit.Parameters:
+    import lmfit
+
     if isinstance(params, lmfit.Parameters):
         pars = params.copy()
     else:

@@ -2,9 +2,13 @@
 
 ``fit_form`` is the engine's single entry for a known form. It scales the
 data (:mod:`.scaling`), builds the joint model (:mod:`.joint_model`), finds
-starting values from the data (:mod:`.starts`), runs the least-squares core
-(:mod:`.core`) from the best few starts, keeps the lowest sum of squares,
-and measures the residual autocorrelation (:mod:`.uncertainty`).
+starting values from the data (:mod:`.starts`), runs the nonlinear fit from
+the best few starts with the levels solved linearly inside the objective
+(variable projection, :mod:`.projection`; the full problem through
+:mod:`.core` when a start is given or a level held fixed), keeps the lowest
+sum of squares, and measures the residual autocorrelation
+(:mod:`.uncertainty`). In measured-input mode the input's own noise is added
+to the covariance (:mod:`.input_noise`).
 """
 
 from __future__ import annotations
@@ -19,8 +23,10 @@ from ..conditioning.segment import StepSegment
 from ..errors import FitError
 from ..forms.base import Form, rise_time_scale
 from .core import ModelFit, fit_model
+from .input_noise import input_noise_covariance
 from .joint_model import MAX_POINTS_PER_SEGMENT, JointModel
-from .scaling import Scaling, reference_step
+from .projection import can_project, fit_projected, nonlinear_names
+from .scaling import Scaling, decimated, reference_step
 from .starts import best_starts, projected_levels
 from .uncertainty import Correction, correlated_residual_correction, t_quantile
 
@@ -79,7 +85,7 @@ def make_scaling(segments: Sequence[StepSegment], form: Form, measured_input: bo
     span = float(np.ptp(seg.time)) if seg.time.size else 0.0
     if getattr(form, "final_value", 1.0) == 0.0:  # a decay: time to fall to 1/e is the scale
         y_norm = 1.0 - np.where(t_rel >= 0, y_norm, 0.0)
-    t_unit = rise_time_scale(t_rel, y_norm)
+    t_unit = rise_time_scale(*decimated(t_rel, y_norm))
     if not (math.isfinite(t_unit) and t_unit > 0):
         t_unit = span / 5.0 if span > 0 else 1.0
     v_unit = abs(step)
@@ -163,14 +169,16 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     if not starts:
         raise FitError(f"no usable starting values for form {form.name!r}",
                        hint="the trace may be flat or the edge not captured")
+    # levels projected out of the nonlinear search (see .projection) unless a
+    # start was given (the NIST checks start the full problem where NIST does)
+    # or a level is held fixed
+    project = not start and can_project(joint, fixed_int)
     best: ModelFit | None = None
     for s in starts:
         params = {k: s.get(k, 0.0) for k in joint.names if k not in fixed_int}
         if not params:
             continue
-        fit = fit_model(joint.evaluate, params, None, joint.y, weights=joint.weights, fixed=fixed_int,
-                        tol=ENGINE_TOLERANCE,
-                        max_nfev=EVALUATIONS_PER_PARAMETER * (len(params) + 1))
+        fit = _run(joint, params, fixed_int, project)
         if best is None or _better(fit, best):
             best = fit
     assert best is not None
@@ -179,27 +187,54 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
         # columns and the fit cannot leave it: nudge the shape apart and refit.
         nudged = {k: best.values[k] + (0.1 * (-1) ** i if k.startswith("log_") else 0.0)
                   for i, k in enumerate(best.names)}
-        fit = fit_model(joint.evaluate, nudged, None, joint.y, weights=joint.weights, fixed=fixed_int,
-                        tol=ENGINE_TOLERANCE,
-                        max_nfev=EVALUATIONS_PER_PARAMETER * (len(nudged) + 1))
+        fit = _run(joint, nudged, fixed_int, project)
         if fit.converged and (not fit.singular or fit.rss < best.rss):
             best = fit
     trimmed = _trim_overlaps(joint, best)
     if trimmed is not None:  # an edge window ran into the next edge's response: refit without it
         joint = JointModel(form, trimmed, scaling, measured_input=measured_input, free_t0=free_t0,
                            max_points=max_points)
-        refit = fit_model(joint.evaluate, {k: best.values[k] for k in best.names}, None, joint.y,
-                          weights=joint.weights,
-                          fixed=fixed_int, tol=ENGINE_TOLERANCE,
-                          max_nfev=EVALUATIONS_PER_PARAMETER * (len(best.names) + 1))
+        refit = _run(joint, {k: best.values[k] for k in best.names}, fixed_int, project)
         best = refit if refit.converged or not best.converged else best
     best = _canonical(joint, best)
     w = joint.weights
     pieces = joint.split(w * best.residual)
     correction = correlated_residual_correction(best.jacobian * w[:, None], pieces, list(joint.bounds),
                                                 best.covariance, best.s2, correlation)
+    if joint.measured_input:
+        correction = _with_input_noise(joint, best, correction)
     dof = correction.dof if correction.applied and correction.dof is not None else best.dof
     return FormFit(form, joint, best, correction, t_quantile(int(round(dof))))
+
+
+def _run(joint: JointModel, params: Mapping[str, float], fixed: Mapping[str, float], project: bool) -> ModelFit:
+    """One nonlinear fit from ``params``: projected (levels solved linearly) or over all parameters."""
+    if project:
+        n_nonlinear = len([n for n in nonlinear_names(joint) if n not in fixed])
+        return fit_projected(joint, params, fixed, tol=ENGINE_TOLERANCE,
+                             max_nfev=EVALUATIONS_PER_PARAMETER * (n_nonlinear + 1))
+    return fit_model(joint.evaluate, dict(params), None, joint.y, weights=joint.weights, fixed=fixed,
+                     tol=ENGINE_TOLERANCE, max_nfev=EVALUATIONS_PER_PARAMETER * (len(params) + 1))
+
+
+def _with_input_noise(joint: JointModel, fit: ModelFit, correction: Correction) -> Correction:
+    """Add the measured input's own noise, carried through the model, to the covariance."""
+    if fit.singular or not np.all(np.isfinite(fit.covariance)) or not fit.s2 > 0:
+        return correction
+    extra = input_noise_covariance(joint, fit.jacobian, fit.covariance / fit.s2, dict(fit.values))
+    if not np.all(np.isfinite(extra)):
+        return correction
+    total = correction.covariance + extra
+    with np.errstate(all="ignore"):
+        widening = np.sqrt(np.diag(total) / np.diag(fit.covariance))
+        own = np.sqrt(np.diag(total) / np.diag(correction.covariance))
+    if not np.all(np.isfinite(widening)):
+        return correction
+    text = correction.description if correction.applied else "output noise treated as white"
+    text += (f"; plus the measured input's own noise carried through the model "
+             f"(widens up to x{float(np.max(own)):.2f})")
+    return replace(correction, covariance=total, widening=np.maximum(widening, 1.0), applied=True,
+                   description=text)
 
 
 def _trim_overlaps(joint: JointModel, fit: ModelFit) -> list[StepSegment] | None:
@@ -221,10 +256,27 @@ def _trim_overlaps(joint: JointModel, fit: ModelFit) -> list[StepSegment] | None
         if seg.time[-1] >= limit > seg.edge_time:
             keep = int(np.searchsorted(seg.time, limit, side="left"))
             if keep >= 8:
-                segs[i] = replace(seg, stop=seg.start + keep, time=seg.time[:keep], output=seg.output[:keep],
-                                  input=None if seg.input is None else seg.input[:keep])
+                segs[i] = _trimmed(seg, keep)
                 changed = True
     return segs if changed else None
+
+
+#: Trimmed segments kept for reuse, so the next candidate form finds the same
+#: objects (and the joint model's prepared-data cache hits).
+_TRIMMED: dict[tuple[int, int], tuple[StepSegment, StepSegment]] = {}
+
+
+def _trimmed(seg: StepSegment, keep: int) -> StepSegment:
+    """``seg`` cut to its first ``keep`` samples (the same object for the same cut)."""
+    hit = _TRIMMED.get((id(seg), keep))
+    if hit is not None and hit[0] is seg:
+        return hit[1]
+    out = replace(seg, stop=seg.start + keep, time=seg.time[:keep], output=seg.output[:keep],
+                  input=None if seg.input is None else seg.input[:keep])
+    if len(_TRIMMED) >= 64:
+        _TRIMMED.pop(next(iter(_TRIMMED)))
+    _TRIMMED[(id(seg), keep)] = (seg, out)
+    return out
 
 
 def _canonical(joint: JointModel, fit: ModelFit) -> ModelFit:

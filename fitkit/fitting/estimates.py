@@ -14,7 +14,6 @@ import math
 import warnings
 from typing import Mapping
 
-import lmfit
 import numpy as np
 
 from ..results import Estimate
@@ -25,9 +24,10 @@ from .uncertainty import MAX_LOG_STDERR, delta_method, log_interval, objective_i
 SIGNED_DERIVED = {"overshoot", "overshoot_pct", "step", "baseline", "gain"}
 
 
-def _method(widen: float, base: str) -> str:
+def _method(widen: float, base: str, measured_input: bool = False) -> str:
     if widen > 1.0 + 1e-9:
-        return f"{base}, widened x{widen:.2f} for correlated residuals"
+        why = "correlated residuals and the measured input's noise" if measured_input else "correlated residuals"
+        return f"{base}, widened x{widen:.2f} for {why}"
     return base
 
 
@@ -52,7 +52,7 @@ def shape_estimates(ff: FormFit, intervals: str = "auto") -> tuple[dict[str, Est
             out[spec.name] = Estimate(spec.name, value, None, None, spec.unit, "not determined", False)
             continue
         lo, hi = log_interval(value, s_log, ff.tq)
-        method = _method(widen, "covariance (log scale)")
+        method = _method(widen, "covariance (log scale)", ff.joint.measured_input)
         want_profile = intervals == "profile" or (
             intervals == "auto" and objective_is_asymmetric(
                 lambda th: _rss(ff, names, th), theta, fit.covariance, j, fit.s2, ff.tq))
@@ -63,7 +63,7 @@ def shape_estimates(ff: FormFit, intervals: str = "auto") -> tuple[dict[str, Est
                 c = fit.values[key]
                 lo = sc.shape_from_log_scaled(spec, c - widen * (c - lo_l))
                 hi = sc.shape_from_log_scaled(spec, c + widen * (hi_l - c))
-                method = _method(widen, "profile likelihood")
+                method = _method(widen, "profile likelihood", ff.joint.measured_input)
             else:
                 warnings.append(f"profile interval of {spec.name} failed; covariance interval shown")
         out[spec.name] = Estimate(spec.name, value, value * s_log, (lo, hi), spec.unit, method, True)
@@ -89,7 +89,7 @@ def level_estimates(ff: FormFit, edge: int = 0) -> dict[str, Estimate]:
         limit = (10.0 if unit == "s" else 1.0) * abs(to_phys_scale)
         ok = math.isfinite(se) and not fit.singular and se <= limit
         ci = (value - ff.tq * se, value + ff.tq * se) if ok else None
-        method = _method(float(ff.correction.widening[j]), "covariance") if ok else "not determined"
+        method = _method(float(ff.correction.widening[j]), "covariance", ff.joint.measured_input) if ok else "not determined"
         out[name] = Estimate(name, value, se if ok else None, ci, unit, method, ok)
 
     make("baseline", f"baseline_{edge}", sc.volt_unit, sc.volt_origin, "V")
@@ -138,11 +138,11 @@ def derived_estimates(ff: FormFit) -> dict[str, Estimate]:
             s_log = se / value
             ok = shapes_ok and s_log <= MAX_LOG_STDERR
             ci = log_interval(value, s_log, ff.tq) if ok else None
-            method = _method(widen, "delta method (log scale)")
+            method = _method(widen, "delta method (log scale)", ff.joint.measured_input)
         else:
             ok = shapes_ok or not depends
             ci = (value - ff.tq * se, value + ff.tq * se) if ok else None
-            method = _method(widen, "delta method")
+            method = _method(widen, "delta method", ff.joint.measured_input)
         out[name] = Estimate(name, value, se if ok else None, ci, unit, method if ok else "not determined", ok)
     return out
 
@@ -157,7 +157,18 @@ def _rss(ff: FormFit, names: list[str], theta: np.ndarray) -> float:
 
 def _profile_interval(ff: FormFit, key: str, centre: float, sigma: float) -> tuple[float, float] | None:
     """95 % profile-likelihood interval of one internal parameter via lmfit.conf_interval."""
-    minimizer, result = ff.fit._lmfit
+    import lmfit  # imported when a profile is needed (start-up time)
+
+    if ff.fit._lmfit is None:  # a projected fit: restart the full problem at its optimum
+        from .core import fit_model
+        fixed = {k: v for k, v in ff.fit.values.items() if k not in ff.fit.names}
+        full = fit_model(ff.joint.evaluate, {n: ff.fit.values[n] for n in ff.fit.names}, None, ff.joint.y,
+                         weights=ff.joint.weights, fixed=fixed, tol=1e-10)
+        if not full.converged or full._lmfit is None:
+            return None
+        minimizer, result = full._lmfit
+    else:
+        minimizer, result = ff.fit._lmfit
     for n in ff.fit.names:
         result.params[n].stderr = float(ff.fit.stderr.get(n, sigma)) or sigma
     try:

@@ -19,7 +19,11 @@ response while cutting the cost; each bin is weighted by the square root of
 its sample count, so the residual variance is that of one sample and the
 covariance accounts for the averaging. In measured-input
 mode the input is bin-averaged too and simulated at the bin resolution, with
-bins kept below 1/30 of the time scale (model error of order 1e-4 of the step).
+bins kept below 1/30 of the time scale (model error of order 1e-4 of the step);
+the level the input had before the record is the mean of its points before
+the edge (:func:`pre_edge_weights`), not its noisy, quantised first sample.
+Prepared segments are cached, so model selection (one fit per candidate
+form, same units) bins each segment once.
 """
 
 from __future__ import annotations
@@ -33,7 +37,7 @@ import numpy as np
 from ..conditioning.segment import StepSegment
 from ..errors import FitError
 from ..forms.base import Form
-from .measured_input import response_by_superposition, uniform_step
+from .measured_input import response_by_superposition, superposition_kernel, uniform_step
 from .scaling import Scaling
 
 #: Segments longer than this are bin-averaged before the nonlinear fit.
@@ -72,6 +76,16 @@ class SegmentData:
     dt: float
     t_point: np.ndarray  # representative scaled time of each point (bin centre)
     counts: np.ndarray
+    #: measured-input mode: weights a (summing to 1) forming the level the input
+    #: had before the record from its points, initial = a @ u (the pre-edge mean)
+    u_initial_weights: np.ndarray | None = None
+
+    @property
+    def u_initial(self) -> float | None:
+        """The level the input had always had before the record (normalised), or None."""
+        if self.u is None or self.u_initial_weights is None:
+            return None
+        return float(self.u_initial_weights @ self.u)
 
 
 def variable_bins(t_rel: np.ndarray, dt: float, max_points: int) -> np.ndarray:
@@ -103,6 +117,25 @@ def variable_bins(t_rel: np.ndarray, dt: float, max_points: int) -> np.ndarray:
     return starts
 
 
+def pre_edge_weights(t_point: np.ndarray, dt: float) -> np.ndarray | None:
+    """Averaging weights over the points clearly before the edge (at least 1.5
+    point intervals before it), or None when there are fewer than 3 of them.
+
+    Their mean is the level the measured input had before the record: one
+    sample alone carries the full noise and a quantisation step.
+    """
+    before = t_point < -1.5 * dt
+    count = int(np.count_nonzero(before))
+    if count < 3:
+        return None
+    return before / float(count)
+
+
+#: Prepared segments kept for reuse (oldest dropped first).
+PREPARED_CACHE_SIZE = 32
+_PREPARED: dict[tuple, tuple[StepSegment, "SegmentData"]] = {}
+
+
 class JointModel:
     """The model function and parameter bookkeeping of a joint fit."""
 
@@ -115,7 +148,7 @@ class JointModel:
         self.measured_input = measured_input
         self.free_t0 = free_t0 and not measured_input
         per_segment = min(max_points, max(MIN_POINTS_PER_SEGMENT, MAX_TOTAL_POINTS // len(self.segments)))
-        self.data = tuple(self._prepare(s, per_segment) for s in self.segments)
+        self.data = tuple(self._prepared(s, per_segment) for s in self.segments)
         self.y = np.concatenate([d.y for d in self.data])
         #: least-squares weights: a bin mean of k samples has 1/k of the variance
         self.weights = np.sqrt(np.concatenate([d.counts for d in self.data]).astype(float))
@@ -153,9 +186,22 @@ class JointModel:
         if self.measured_input:
             # d.u and d.dt are at the fitted resolution (bin means when binned)
             return response_by_superposition(lambda t: self.form.unit_step(t, **shape), d.u, d.dt,
-                                             getattr(self.form, "final_value", 1.0))
+                                             getattr(self.form, "final_value", 1.0), initial=d.u_initial,
+                                             kernel=self._kernel(shape, d.dt))
         nodes = self.form.unit_step(d.t_nodes - t0, **shape)
         return nodes @ d.node_weights
+
+    def _kernel(self, shape: Mapping[str, float], dt: float) -> np.ndarray:
+        """Superposition kernel for the longest edge, computed once per shape (the
+        edges of one evaluation share it)."""
+        key = (tuple(sorted(shape.items())), dt)
+        cached = getattr(self, "_kernel_cache", None)
+        if cached is not None and cached[0] == key:
+            return cached[1]
+        n = max(d.u.size for d in self.data if d.u is not None)
+        kernel = superposition_kernel(lambda t: self.form.unit_step(t, **shape), n, dt)
+        self._kernel_cache = (key, kernel)
+        return kernel
 
     def evaluate(self, _x: object = None, **values: float) -> np.ndarray:
         """Model over all points (scaled volts), for the least-squares core."""
@@ -174,6 +220,19 @@ class JointModel:
         return [vector[self.bounds[i]:self.bounds[i + 1]] for i in range(len(self.data))]
 
     # -- preparation ----------------------------------------------------------------
+    def _prepared(self, seg: StepSegment, max_points: int) -> SegmentData:
+        """The binned data of one segment, reused while the same segment is fitted
+        with another form in the same units (model selection fits several)."""
+        key = (id(seg), self.scaling, self.measured_input, max_points)
+        hit = _PREPARED.get(key)
+        if hit is not None and hit[0] is seg:
+            return hit[1]
+        data = self._prepare(seg, max_points)
+        if len(_PREPARED) >= PREPARED_CACHE_SIZE:
+            _PREPARED.pop(next(iter(_PREPARED)))
+        _PREPARED[key] = (seg, data)  # the segment is kept, so its id is not reused
+        return data
+
     def _prepare(self, seg: StepSegment, max_points: int) -> SegmentData:
         sc = self.scaling
         t_rel = (np.asarray(seg.time, dtype=float) - seg.edge_time) / sc.time_unit
@@ -189,8 +248,6 @@ class JointModel:
             dt = uniform_step(t_rel)
             u = (np.asarray(seg.input, dtype=float) - seg.input_before) / sc.input_unit
         ones = np.ones(t_rel.size)
-        if t_rel.size <= max_points:
-            return SegmentData(t_rel[:, None], np.ones(1), y, u, 1, dt, t_rel, ones)
         if u is not None:
             # the measured input is simulated at the bin resolution on a uniform
             # grid: uniform bins kept short against the time scale (model error
@@ -198,11 +255,15 @@ class JointModel:
             k = int(math.ceil(t_rel.size / max_points))
             k = max(1, min(k, int(1.0 / (MEASURED_INPUT_BINS_PER_UNIT * dt))))
             if k == 1:
-                return SegmentData(t_rel[:, None], np.ones(1), y, u, 1, dt, t_rel, ones)
+                return SegmentData(t_rel[:, None], np.ones(1), y, u, 1, dt, t_rel, ones,
+                                   pre_edge_weights(t_rel, dt))
             n = (t_rel.size // k) * k
             tb = t_rel[:n].reshape(-1, k).mean(axis=1)
             return SegmentData(tb[:, None], np.ones(1), y[:n].reshape(-1, k).mean(axis=1),
-                               u[:n].reshape(-1, k).mean(axis=1), k, k * dt, tb, np.full(tb.size, k))
+                               u[:n].reshape(-1, k).mean(axis=1), k, k * dt, tb, np.full(tb.size, k),
+                               pre_edge_weights(tb, k * dt))
+        if t_rel.size <= max_points:
+            return SegmentData(t_rel[:, None], np.ones(1), y, u, 1, dt, t_rel, ones)
         starts = variable_bins(t_rel, dt, max_points)
         counts = np.diff(np.append(starts, t_rel.size))
         yb = np.add.reduceat(y, starts) / counts

@@ -17,7 +17,7 @@ from typing import Mapping
 import numpy as np
 
 from .joint_model import JointModel
-from .scaling import reference_step
+from .scaling import decimated, reference_step
 
 #: Factors applied to each guessed shape parameter to build the grid.
 GRID_FACTORS = (1.0 / 3.0, 1.0, 3.0)
@@ -33,7 +33,7 @@ def _reference(joint: JointModel) -> tuple[np.ndarray, np.ndarray]:
     seg = max(joint.segments, key=lambda s: abs(reference_step(s, form)))
     t_rel = np.asarray(seg.time, dtype=float) - seg.edge_time
     y_norm = (np.asarray(seg.output, dtype=float) - seg.baseline) / reference_step(seg, form)
-    return t_rel, y_norm
+    return decimated(t_rel, y_norm)
 
 
 def trial_delays(t_rel: np.ndarray, y_norm: np.ndarray) -> list[float]:
@@ -46,7 +46,13 @@ def trial_delays(t_rel: np.ndarray, y_norm: np.ndarray) -> list[float]:
     """
     n = y_norm.size
     k = max(1, n // 200)
-    smooth = np.convolve(y_norm, np.ones(k) / k, mode="same") if k > 1 else y_norm
+    if k > 1:  # running mean of k samples (by cumulative sums: O(n))
+        c = np.concatenate([[0.0], np.cumsum(y_norm)])
+        lo = np.clip(np.arange(n) - k // 2, 0, n)
+        hi = np.clip(lo + k, 0, n)
+        smooth = (c[hi] - c[lo]) / np.maximum(hi - lo, 1)
+    else:
+        smooth = y_norm
     dt = float(np.median(np.diff(t_rel))) if n > 1 else 0.0
     above = np.nonzero(smooth >= 0.5)[0]
     out = [0.0]

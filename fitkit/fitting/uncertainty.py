@@ -29,7 +29,7 @@ from dataclasses import dataclass
 from typing import Callable, Mapping, Sequence
 
 import numpy as np
-from scipy import linalg, signal, stats
+from scipy import linalg, special
 
 #: Ljung-Box test level and number of lags.
 LJUNG_BOX_ALPHA = 0.01
@@ -41,8 +41,9 @@ MAX_LOG_STDERR = 1.0
 
 
 def t_quantile(dof: int, level: float = 0.95) -> float:
-    """Two-sided Student-t quantile (scipy.stats.t) for ``dof`` degrees of freedom."""
-    return float(stats.t.ppf(0.5 + level / 2.0, max(int(dof), 1)))
+    """Two-sided Student-t quantile for ``dof`` degrees of freedom (scipy.special.stdtrit,
+    the inverse of the t distribution function; the same as scipy.stats.t.ppf)."""
+    return float(special.stdtrit(max(int(dof), 1), 0.5 + level / 2.0))
 
 
 @dataclass(frozen=True)
@@ -72,18 +73,30 @@ class Correction:
 
 
 def residual_autocorrelation(pieces: Sequence[np.ndarray], max_lag: int) -> np.ndarray:
-    """Pooled autocorrelation rho(0..max_lag) of residual pieces (lags within each piece)."""
+    """Pooled autocorrelation rho(0..max_lag) of residual pieces (lags within each piece).
+
+    The lagged sums are taken by FFT (zero-padded, so no wrap-around): O(n log n).
+    """
     pieces = [np.asarray(p, dtype=float) for p in pieces if len(p) > 1]
     n = sum(p.size for p in pieces)
-    gamma0 = sum(float(p @ p) for p in pieces) / max(n, 1)
     rho = np.zeros(max_lag + 1)
     rho[0] = 1.0
-    if gamma0 <= 0:
+    acc = np.zeros(max_lag + 1)
+    for p in pieces:
+        acc += _lagged_sums(p, max_lag)
+    if not acc[0] > 0:
         return rho
-    for k in range(1, max_lag + 1):
-        acc = sum(float(p[:-k] @ p[k:]) for p in pieces if p.size > k)
-        rho[k] = acc / n / gamma0
-    return rho
+    return acc / acc[0]
+
+
+def _lagged_sums(x: np.ndarray, max_lag: int) -> np.ndarray:
+    """sum_t x[t] x[t + k] for k = 0..max_lag (zero beyond the length), by FFT."""
+    out = np.zeros(max_lag + 1)
+    m = min(max_lag, x.size - 1) + 1
+    size = 1 << int(math.ceil(math.log2(max(2 * x.size, 2))))
+    spec = np.fft.rfft(x, size)
+    out[:m] = np.fft.irfft(spec.real ** 2 + spec.imag ** 2, size)[:m]
+    return out
 
 
 def ljung_box_correlated(rho: np.ndarray, n: int, lags: int = LJUNG_BOX_LAGS,
@@ -94,7 +107,7 @@ def ljung_box_correlated(rho: np.ndarray, n: int, lags: int = LJUNG_BOX_LAGS,
         return False
     k = np.arange(1, m + 1)
     q = n * (n + 2) * np.sum(rho[1:m + 1] ** 2 / (n - k))
-    return bool(q > stats.chi2.ppf(1 - alpha, m))
+    return bool(q > special.chdtri(m, alpha))  # upper-tail chi-square quantile
 
 
 def autoregressive_autocorrelation(rho: np.ndarray, n: int, max_order: int = 24,
@@ -126,9 +139,24 @@ def autoregressive_autocorrelation(rho: np.ndarray, n: int, max_order: int = 24,
     roots = np.roots(np.concatenate([[1.0], -phi]))
     if roots.size and np.max(np.abs(roots)) >= 0.999:  # not stationary: keep the sample estimate
         return rho.copy(), order
-    impulse = signal.lfilter([1.0], np.concatenate([[1.0], -phi]), np.eye(1, 4 * max_lag + 1)[0])
-    acf = np.correlate(impulse, impulse, mode="full")[impulse.size - 1:impulse.size + max_lag]
+    impulse = _ar_impulse_response(phi, 4 * max_lag + 1)
+    acf = _lagged_sums(impulse, max_lag)
     return acf / acf[0], order
+
+
+def _ar_impulse_response(phi: np.ndarray, n: int) -> np.ndarray:
+    """h[0..n-1] of x[t] = e[t] + sum_i phi[i] x[t-1-i] for a unit impulse e (the
+    recursion scipy.signal.lfilter([1], [1, -phi]) runs)."""
+    p = phi.size
+    h = np.zeros(n + p)
+    h[p] = 1.0
+    rev = phi[::-1]
+    for t in range(p + 1, n + p):
+        h[t] = float(rev @ h[t - p:t])
+        # a stationary model decays geometrically: stop once it has died away
+        if t % 64 == 0 and t >= p + 64 and float(np.max(np.abs(h[t - 63:t + 1]))) < 1e-15:
+            break
+    return h[p:]
 
 
 def lagged_products(u: np.ndarray, v: np.ndarray, max_lag: int) -> np.ndarray:
@@ -206,13 +234,16 @@ def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequen
     # lags beyond which the model autocorrelation is negligible
     significant = np.nonzero(np.abs(model_rho) > 1e-3)[0]
     m_max = int(min(max_lag, significant[-1] if significant.size else 1))
+    # meat = sum over edges of J^T Sigma J, Sigma the Toeplitz matrix of gamma
+    # cut at m_max (= gamma_0 J^T J + sum_k gamma_k (C(k) + C(k)^T)), by FFT
     meat = np.zeros((p, p))
     for lo, hi in zip(jac_pieces_bounds[:-1], jac_pieces_bounds[1:]):
         j = jacobian[lo:hi]
-        meat += gamma[0] * (j.T @ j)
-        for k in range(1, min(m_max, j.shape[0] - 1) + 1):
-            c = j[:-k].T @ j[k:]
-            meat += gamma[k] * (c + c.T)
+        col = np.zeros(j.shape[0])
+        m = min(m_max, j.shape[0] - 1) + 1
+        col[:m] = gamma[:m]
+        meat += j.T @ linalg.matmul_toeplitz(col, j, check_finite=False)
+    meat = 0.5 * (meat + meat.T)
     variance_ratio = max(1.0, 1.0 + 2.0 * float(np.sum(model_rho[1:m_max + 1])))
     n_eff = n / variance_ratio
     dof = max(n_eff - p, 1.0)

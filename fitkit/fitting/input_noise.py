@@ -1,0 +1,89 @@
+"""The measured input's own noise, carried into the covariance of a fit.
+
+In measured-input mode the model is ``baseline + gain * L u``: a linear map
+L (superposition of the form's step response, see :mod:`.measured_input`)
+of the recorded input samples u. The recorded input carries the scope's
+noise n (band-limited, quantised). The fit therefore sees the output noise
+plus ``-gain * L n``. L is a low-pass of the circuit's own time scale, so
+``L n`` is tiny in rms yet holds as much low-frequency power as the output's
+own noise, and it is exactly the low frequencies that set the time constants
+and the gain. The residuals cannot reveal it (it is buried under the output's
+broadband noise), so it is added from a separate estimate of the input noise:
+
+    V_input = gain^2 B M^T Sigma_n M B,   M = L^T W^2 J,   B = (J^T W^2 J)^-1
+
+(first-order propagation of errors in the regressor, "errors in variables"),
+with Sigma_n the Toeplitz covariance of the input noise within each edge.
+The noise's autocovariance is estimated from the input's points before the
+edge (where the input is at rest), smoothed by an autoregressive model
+(Yule-Walker, order by AIC) so that its long-run variance is stable; with
+too few points before the edge the noise is taken as white with the variance
+of the input's first differences / 2. Sigma_n M is computed by FFT
+(scipy.linalg.matmul_toeplitz), L^T by the adjoint in :mod:`.measured_input`.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import linalg
+
+from .joint_model import JointModel
+from .measured_input import superposition_adjoint, superposition_kernel
+from .uncertainty import autoregressive_autocorrelation, residual_autocorrelation
+
+#: Fewest points before the edge for a coloured (autoregressive) noise estimate.
+MIN_PRE_EDGE_POINTS = 32
+
+
+def input_noise_autocovariance(joint: JointModel, i: int) -> np.ndarray:
+    """Autocovariance gamma(0..n-1) of the normalised input noise of edge i at the fit's resolution."""
+    d = joint.data[i]
+    n = d.u.size
+    before = d.u[d.u_initial_weights > 0] if d.u_initial_weights is not None else np.zeros(0)
+    gamma = np.zeros(n)
+    if before.size >= MIN_PRE_EDGE_POINTS:
+        e = before - before.mean()
+        var = float(e @ e) / max(e.size - 1, 1)
+        max_lag = int(min(e.size // 4, 200))
+        rho = residual_autocorrelation([e], max_lag)
+        model_rho, _ = autoregressive_autocorrelation(rho, e.size, max_lag=min(n - 1, 4 * max_lag) or 1)
+        m = min(model_rho.size, n)
+        gamma[:m] = var * model_rho[:m]
+        return gamma
+    diffs = np.diff(d.u)
+    if diffs.size:
+        # white noise: var(diff) = 2 var(noise); the median absolute deviation
+        # ignores the edge itself (1.4826 MAD = sigma for Gaussian noise)
+        mad = float(np.median(np.abs(diffs - np.median(diffs))))
+        gamma[0] = (1.4826 * mad) ** 2 / 2.0
+    return gamma
+
+
+def input_noise_covariance(joint: JointModel, jacobian: np.ndarray, bread: np.ndarray,
+                           values: dict[str, float]) -> np.ndarray:
+    """V_input (see the module docstring) over the fit's varied parameters.
+
+    jacobian: unweighted d(model)/d(parameter) at the optimum, (n, p).
+    bread: (J^T W^2 J)^-1, (p, p). values: the fitted internal values.
+    Returns a (p, p) covariance (zeros outside measured-input mode).
+    """
+    p = jacobian.shape[1]
+    extra = np.zeros((p, p))
+    if not joint.measured_input or p == 0:
+        return extra
+    gain = float(values.get("gain", 0.0))
+    shape = joint.shape_scaled(values)
+    dc = getattr(joint.form, "final_value", 1.0)
+    w2 = joint.weights ** 2
+    for i, d in enumerate(joint.data):
+        lo, hi = joint.bounds[i], joint.bounds[i + 1]
+        n = hi - lo
+        kernel = superposition_kernel(lambda t: joint.form.unit_step(t, **shape), n, d.dt)
+        weights = d.u_initial_weights if d.u_initial_weights is not None else np.eye(1, n)[0]
+        m = superposition_adjoint(kernel, dc, weights, w2[lo:hi, None] * jacobian[lo:hi])
+        gamma = input_noise_autocovariance(joint, i)
+        if not np.any(gamma):
+            continue
+        sm = linalg.matmul_toeplitz(gamma, m, check_finite=False)
+        extra += gain * gain * (m.T @ sm)
+    return bread @ extra @ bread

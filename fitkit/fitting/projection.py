@@ -1,0 +1,123 @@
+"""Variable projection: the levels solved linearly inside the objective.
+
+For a fixed shape (time constants, f0, Q, ...) and edge delays, the model of
+every edge is linear in its levels: ``baseline_i + step_i * f_i`` (ideal
+step) or ``baseline_i + gain * f_i`` (measured input, one shared gain). So
+the nonlinear search only needs the shape and the delays; for each trial
+the levels are the weighted linear least-squares solution (Golub & Pereyra,
+SIAM J. Numer. Anal. 10 (1973) 413-432: the minimiser of the projected sum of
+squares is the minimiser of the full one). That takes, for a four-edge
+capture, the nonlinear problem from 13 parameters to 5, and the cost of a
+Levenberg-Marquardt iteration (one model evaluation per parameter) with it.
+
+The covariance is not taken from the projected problem: after convergence
+the full parameter set (shape, delays and levels) gets its Jacobian and
+covariance at the optimum in :func:`.core.model_fit_at`, exactly as a fit
+over all parameters would.
+"""
+
+from __future__ import annotations
+
+from typing import Mapping
+
+import numpy as np
+from scipy import optimize
+
+from .core import ModelFit, model_fit_at
+from .joint_model import JointModel
+
+
+def nonlinear_names(joint: JointModel) -> tuple[str, ...]:
+    """The parameters searched nonlinearly: the shape logs and the free edge delays."""
+    delays = tuple(f"t0_{i}" for i in range(len(joint.segments))) if joint.free_t0 else ()
+    return joint.shape_names + delays
+
+
+def linear_levels(joint: JointModel, values: Mapping[str, float]) -> dict[str, float]:
+    """Weighted least-squares levels for the shape and delays in ``values`` (internal units)."""
+    return projected_model(joint, values)[0]
+
+
+def projected_model(joint: JointModel, values: Mapping[str, float]) -> tuple[dict[str, float], np.ndarray]:
+    """(levels, model over all points) for the shape and delays in ``values``, the
+    levels by weighted linear least squares; each edge's response is computed once."""
+    shape = joint.shape_scaled(values)
+    out: dict[str, float] = {}
+    if joint.measured_input:
+        # baseline_i = weighted mean of (y_i - gain f_i); gain from the pooled centred sums
+        sxy = sxx = 0.0
+        parts = []
+        for i, d in enumerate(joint.data):
+            w2 = d.counts.astype(float)
+            f = joint.unit_response(i, shape)
+            fm, ym = float(w2 @ f) / w2.sum(), float(w2 @ d.y) / w2.sum()
+            fc = f - fm
+            sxy += float((w2 * fc) @ (d.y - ym))
+            sxx += float((w2 * fc) @ fc)
+            parts.append((fm, ym, f))
+        gain = sxy / sxx if sxx > 0 else 0.0
+        out["gain"] = gain
+        for i, (fm, ym, _) in enumerate(parts):
+            out[f"baseline_{i}"] = ym - gain * fm
+        model = np.concatenate([out[f"baseline_{i}"] + gain * f for i, (_, _, f) in enumerate(parts)])
+        return out, model
+    pieces = []
+    for i, d in enumerate(joint.data):
+        w2 = d.counts.astype(float)
+        f = joint.unit_response(i, shape, values.get(f"t0_{i}", 0.0))
+        fm, ym = float(w2 @ f) / w2.sum(), float(w2 @ d.y) / w2.sum()
+        fc = f - fm
+        sxx = float((w2 * fc) @ fc)
+        step = float((w2 * fc) @ (d.y - ym)) / sxx if sxx > 0 else 0.0
+        out[f"baseline_{i}"] = ym - step * fm
+        out[f"step_{i}"] = step
+        pieces.append(out[f"baseline_{i}"] + step * f)
+    return out, np.concatenate(pieces)
+
+
+def fit_projected(joint: JointModel, start: Mapping[str, float], fixed: Mapping[str, float], *,
+                  tol: float, max_nfev: int) -> ModelFit:
+    """Levenberg-Marquardt over the nonlinear parameters only (levels projected out),
+    then the full-parameter :class:`ModelFit` at the optimum.
+
+    ``fixed`` may hold shape or delay values only (levels held fixed need the
+    full fit, :func:`.core.fit_model`).
+    """
+    names = tuple(n for n in nonlinear_names(joint) if n not in fixed)
+    w = joint.weights
+
+    def full_values(theta: np.ndarray) -> dict[str, float]:
+        vals = dict(fixed)
+        vals.update(zip(names, (float(v) for v in theta)))
+        vals.update(linear_levels(joint, vals))
+        return vals
+
+    def residual(theta: np.ndarray) -> np.ndarray:
+        vals = dict(fixed)
+        vals.update(zip(names, (float(v) for v in theta)))
+        try:
+            with np.errstate(all="ignore"):
+                r = w * (joint.y - projected_model(joint, vals)[1])
+        except (ArithmeticError, ValueError):
+            return np.full(joint.y.shape, 1e150)
+        return np.where(np.isfinite(r), r, 1e150)
+
+    theta0 = np.array([float(start.get(n, 0.0)) for n in names])
+    converged, message, nfev = True, "no nonlinear parameter", 0
+    if names:
+        # MINPACK lmdif, the same routine and settings the full fit uses through lmfit
+        x, _, info, message, ier = optimize.leastsq(residual, theta0, full_output=True, ftol=tol,
+                                                    xtol=tol, gtol=0.0, maxfev=max_nfev)
+        theta0 = np.atleast_1d(x)
+        converged = ier in (1, 2, 3, 4) and bool(np.all(np.isfinite(theta0)))
+        message, nfev = str(message), int(info["nfev"])
+    values = full_values(theta0)
+    varied = tuple(n for n in joint.names if n not in fixed)
+    return model_fit_at(joint.evaluate, values, varied, None, joint.y, w, converged=converged,
+                        message=message, nfev=nfev)
+
+
+def can_project(joint: JointModel, fixed: Mapping[str, float]) -> bool:
+    """True when no level is held fixed (then the levels can be projected out)."""
+    linear = set(joint.names) - set(nonlinear_names(joint))
+    return not (linear & set(fixed))
