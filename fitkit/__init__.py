@@ -6,7 +6,7 @@ The public API is short; names are imported lazily so that `import fitkit`
     from fitkit import load_capture, fit_capture
     cap = load_capture("board_017.csv")
     result = fit_capture(cap)
-    print(result.derived["tau"].ci95)
+    print(result.quantity("tau").ci95)   # (low, high) in seconds
 """
 
 from __future__ import annotations
@@ -26,6 +26,9 @@ _LAZY = {
     "load_capture": "fitkit.io",
     "find_edges": "fitkit.conditioning",
     "fit_capture": "fitkit.fitting",
+    "fit_circuit": "fitkit.partfit",
+    "check_capture": "fitkit.check",
+    "load_design": "fitkit.check",
     "FitResult": "fitkit.results",
     "Estimate": "fitkit.results",
 }
