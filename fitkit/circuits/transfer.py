@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from typing import Any, Mapping
 
 import numpy as np
-from scipy import linalg, signal
+from scipy import linalg
 
 from ..errors import CircuitError
 from ..results import json_number
@@ -161,6 +161,7 @@ class TransferFunction:
         k = np.arange(len(den) - 1, -1, -1)
         den_z = den / T ** k                       # polynomial in z = s T
         num_z = num / T ** np.arange(len(num) - 1, -1, -1)
+        from scipy import signal  # imported here: scipy.signal costs ~1 s at start-up
         A, B, Cm, Dm = signal.tf2ss(num_z, den_z)
         n = A.shape[0]
         M = np.zeros((n + 1, n + 1))
