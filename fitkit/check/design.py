@@ -39,14 +39,13 @@ from __future__ import annotations
 
 import math
 import re
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
 from ..circuits import Circuit, get_topology
 from ..circuits.preferred import SERIES
-from ..circuits.toml_format import _Reader
+from ..circuits.toml_format import _Reader, parse_toml, read_toml_text
 from ..errors import CircuitError, DesignError, OptionError
 from ..units import parse_value
 
@@ -126,26 +125,13 @@ class Design:
 
 def load_design(path: str | Path) -> Design:
     """Read a design file; DesignError (naming the file) when it cannot be used."""
-    path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise DesignError("design file not found", path=str(path), hint="check the path to the .toml file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise DesignError(f"cannot read design file ({exc.__class__.__name__})", path=str(path),
-                          hint="give a UTF-8 TOML text file") from None
+    text = read_toml_text(path, DesignError, "design file", "check the path to the .toml file")
     return loads_design(text, str(path))
 
 
 def loads_design(text: str, path: str = "<design>") -> Design:
     """Parse design TOML text; ``path`` is used in error messages."""
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        m = re.search(r"line (\d+)", str(exc))
-        raise DesignError(f"not valid TOML: {str(exc).split(' (at')[0]}", path=path,
-                          line=int(m.group(1)) if m else None,
-                          hint="see the fitkit.check.design docstring for the format") from None
+    data = parse_toml(text, path, DesignError, "see docs/design-format.md for the format")
     return _DesignReader(text, path).design(data)
 
 

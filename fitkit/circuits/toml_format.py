@@ -64,29 +64,39 @@ KIND_WORDS = {"resistor": "resistor", "capacitor": "capacitor", "inductor": "ind
               "amplifier": "amplifier"}
 
 
-def load_circuit(path: str | Path) -> Circuit:
-    """Read a circuit file; CircuitError (naming the file) when it cannot be used."""
+def read_toml_text(path: str | Path, error: type, what: str, hint_missing: str) -> str:
+    """The text of a TOML file, or ``error`` (a FitkitError class) naming the file.
+    ``what`` names the kind of file in the message ("circuit file")."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        return path.read_text(encoding="utf-8")
     except FileNotFoundError:
-        raise CircuitError("circuit file not found", path=str(path),
-                           hint="check the path, or use a library topology name") from None
+        raise error(f"{what} not found", path=str(path), hint=hint_missing) from None
     except (OSError, UnicodeDecodeError) as exc:
-        raise CircuitError(f"cannot read circuit file ({exc.__class__.__name__})", path=str(path),
-                           hint="give a UTF-8 TOML text file") from None
+        raise error(f"cannot read {what} ({exc.__class__.__name__})", path=str(path),
+                    hint="give a UTF-8 TOML text file") from None
+
+
+def parse_toml(text: str, path: str, error: type, hint: str) -> dict:
+    """Parse TOML text; ``error`` (a FitkitError class) with the file and line when it is not valid."""
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        m = re.search(r"line (\d+)", str(exc))
+        raise error(f"not valid TOML: {str(exc).split(' (at')[0]}", path=path,
+                    line=int(m.group(1)) if m else None, hint=hint) from None
+
+
+def load_circuit(path: str | Path) -> Circuit:
+    """Read a circuit file; CircuitError (naming the file) when it cannot be used."""
+    text = read_toml_text(path, CircuitError, "circuit file",
+                          "check the path, or use a library topology name")
     return loads_circuit(text, str(path))
 
 
 def loads_circuit(text: str, path: str = "<circuit>") -> Circuit:
     """Parse circuit TOML text; ``path`` is used in error messages."""
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        m = re.search(r"line (\d+)", str(exc))
-        raise CircuitError(f"not valid TOML: {str(exc).split(' (at')[0]}", path=path,
-                           line=int(m.group(1)) if m else None,
-                           hint="see docs/circuit-format.md for the format") from None
+    data = parse_toml(text, path, CircuitError, "see docs/circuit-format.md for the format")
     reader = _Reader(text, path)
     return reader.circuit(data)
 

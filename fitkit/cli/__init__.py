@@ -13,7 +13,6 @@ import sys
 
 import click
 
-from .. import exitcodes
 
 # command name -> (module, attribute, one-line help)
 COMMANDS: dict[str, tuple[str, str, str]] = {

@@ -2,14 +2,13 @@
 
 from __future__ import annotations
 
-import json
 
 import click
 
 from .. import exitcodes
 from ..units import parse_value
 from .capture_options import CaptureOptions, capture_options
-from .output_options import OutputRequest, output_options, quiet_text, write_outputs
+from .output_options import OutputRequest, emit_result, output_options
 
 STATUS = {"pass": exitcodes.OK, "fail": exitcodes.FAIL, "inconclusive": exitcodes.INCONCLUSIVE}
 
@@ -59,12 +58,5 @@ def check(file: str, out_file: str | None, design_path: str, edge_time: str | No
     t_edge = None if edge_time is None else parse_value(edge_time, "s")
     result = check_capture(capture, design, input=inp, output=out, average=average, envelope_trials=trials,
                            seed=seed, edge_time=t_edge)
-    write_outputs(outputs, result, capture)
-    if as_json:
-        click.echo(json.dumps(result.to_dict(), allow_nan=False))
-    elif outputs.quiet:
-        click.echo(quiet_text(result), nl=False)
-    else:
-        from ..report.check_text import render_check_text
-        click.echo(render_check_text(result))
+    emit_result(outputs, result, capture, as_json)
     return STATUS[result.verdict]

@@ -2,13 +2,12 @@
 
 from __future__ import annotations
 
-import json
 
 import click
 
 from ..units import parse_value
 from .capture_options import CaptureOptions, capture_options
-from .output_options import OutputRequest, output_options, quiet_text, write_outputs
+from .output_options import OutputRequest, emit_result, output_options
 
 # -- component values: --circuit / --topology (see fitkit.partfit) -------------------
 
@@ -148,7 +147,6 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
     When an input channel is present the model is driven by the measured input.
     """
     from ..fitting import fit_capture
-    from ..report.text import render_fit_text
 
     outputs = OutputRequest.pop(kwargs)
     outputs.validate([file, out_file, kwargs.get("circuit_file")], as_json=as_json)
@@ -163,10 +161,4 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
     else:
         result = fit_capture(capture, model=model, input=inp, output=out, edge_time=t_edge,
                              average=average, intervals=intervals)
-    write_outputs(outputs, result, capture)
-    if as_json:
-        click.echo(json.dumps(result.to_dict(), allow_nan=False))
-    elif outputs.quiet:
-        click.echo(quiet_text(result), nl=False)
-    else:
-        click.echo(render_fit_text(result), nl=False)
+    emit_result(outputs, result, capture, as_json)

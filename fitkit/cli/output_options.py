@@ -172,3 +172,22 @@ def quiet_text(result: Any) -> str:
         return render_fit_text(result, quiet=True)
     from ..report.check_tables import render_check_quiet
     return render_check_quiet(result)
+
+
+def emit_result(request: OutputRequest, result: Any, capture: Any, as_json: bool) -> None:
+    """Write the requested files, then print the result: one JSON object with
+    --json, the quiet lines with --quiet, else the full text table."""
+    import json
+    write_outputs(request, result, capture)
+    if as_json:
+        click.echo(json.dumps(result.to_dict(), allow_nan=False))
+    elif request.quiet:
+        click.echo(quiet_text(result), nl=False)
+    else:
+        from ..results import FitResult
+        if isinstance(result, FitResult):
+            from ..report.text import render_fit_text
+            click.echo(render_fit_text(result), nl=False)
+        else:
+            from ..report.check_text import render_check_text
+            click.echo(render_check_text(result))
