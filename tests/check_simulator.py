@@ -78,3 +78,37 @@ def simulate_board(topology: str, values: dict[str, float], *, n: int = 1500, sp
         w *= noise / w.std()
         return np.clip(np.round((x + w) / lsb) * lsb, lo, hi)
     return Capture.from_arrays(t, {"input": scope(u), "output": scope(y)})
+
+
+#: Design files used across the check tests (the formats of docs/design-format.md).
+RC_DESIGN_TOML = '''name = "RC test board"
+drive = "in"
+measure = "out"
+[circuit]
+topology = "rc-low-pass"
+[parts.R1]
+value = "10k"
+tolerance = "1%"
+[parts.C1]
+value = "100n"
+tolerance = "5%"
+'''
+
+SK_DESIGN_TOML = '''name = "Sallen-Key test board"
+drive = "in"
+measure = "out"
+[circuit]
+topology = "sallen-key-low-pass"
+[parts.R1]
+value = "10k"
+tolerance = "1%"
+[parts.R2]
+value = "10k"
+tolerance = "1%"
+[parts.C1]
+value = "22n"
+tolerance = "5%"
+[parts.C2]
+value = "10n"
+tolerance = "5%"
+'''

@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from check_simulator import simulate_board
+from check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML, simulate_board
 from fitkit.check import check_capture, loads_design
 from fitkit.io import load_capture
 from reference_paths import REAL_CAPTURES
@@ -28,36 +28,8 @@ ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "demo_captures"
 REAL_RL = REAL_CAPTURES / "rl-square-scope.csv"
 
-RC = '''name = "RC test board"
-drive = "in"
-measure = "out"
-[circuit]
-topology = "rc-low-pass"
-[parts.R1]
-value = "10k"
-tolerance = "1%"
-[parts.C1]
-value = "100n"
-tolerance = "5%"
-'''
-SK = '''name = "Sallen-Key test board"
-drive = "in"
-measure = "out"
-[circuit]
-topology = "sallen-key-low-pass"
-[parts.R1]
-value = "10k"
-tolerance = "1%"
-[parts.R2]
-value = "10k"
-tolerance = "1%"
-[parts.C1]
-value = "22n"
-tolerance = "5%"
-[parts.C2]
-value = "10n"
-tolerance = "5%"
-'''
+RC = RC_DESIGN_TOML
+SK = SK_DESIGN_TOML
 
 
 def check(capture, design, **kw):

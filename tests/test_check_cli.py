@@ -7,27 +7,14 @@ from pathlib import Path
 
 import numpy as np
 
-from check_simulator import simulate_board
+from check_simulator import RC_DESIGN_TOML, simulate_board
 from fitkit import exitcodes
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_captures"
 SK_DESIGN = str(DEMO / "designs" / "sallen_key_lowpass.toml")
-RC = '''name = "RC test board"
-drive = "in"
-measure = "out"
-[circuit]
-topology = "rc-low-pass"
-[parts.R1]
-value = "10k"
-tolerance = "1%"
-[parts.C1]
-value = "100n"
-tolerance = "5%"
-[limits]
-tau = "+-5%"
-'''
+RC = RC_DESIGN_TOML + '[limits]\ntau = "+-5%"\n'
 
 
 def run(capsys, *args):

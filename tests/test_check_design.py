@@ -9,21 +9,11 @@ import pytest
 from fitkit.check import load_design, loads_design
 from fitkit.check.design import resolve_limits
 from fitkit.errors import DesignError
+from check_simulator import RC_DESIGN_TOML
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_captures" / "designs"
 
-BASE = '''name = "test board"
-drive = "in"
-measure = "out"
-[circuit]
-topology = "rc-low-pass"
-[parts.R1]
-value = "10k"
-tolerance = "1%"
-[parts.C1]
-value = "100n"
-tolerance = "5%"
-'''
+BASE = RC_DESIGN_TOML
 
 
 def test_demo_designs_read_with_designators_tolerances_and_fixture():

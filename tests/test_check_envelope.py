@@ -11,36 +11,11 @@ from scipy import signal
 
 from fitkit.check import loads_design
 from fitkit.check.envelope import compare, tolerance_envelope
+from check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML
 
-RC = '''drive = "in"
-measure = "out"
-[circuit]
-topology = "rc-low-pass"
-[parts.R1]
-value = "10k"
-tolerance = "1%"
-[parts.C1]
-value = "100n"
-tolerance = "5%"
-'''
+RC = RC_DESIGN_TOML
 
-SK = '''drive = "in"
-measure = "out"
-[circuit]
-topology = "sallen-key-low-pass"
-[parts.R1]
-value = "10k"
-tolerance = "1%"
-[parts.R2]
-value = "10k"
-tolerance = "1%"
-[parts.C1]
-value = "22n"
-tolerance = "5%"
-[parts.C2]
-value = "10n"
-tolerance = "5%"
-'''
+SK = SK_DESIGN_TOML
 
 
 def test_rc_envelope_is_bounded_by_the_corner_time_constants():

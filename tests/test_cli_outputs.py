@@ -28,23 +28,13 @@ from fitkit import exitcodes
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 from fitkit.report.json_schema import check_result_schema, fit_result_schema
+from check_simulator import RC_DESIGN_TOML
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_captures"
 SK_DESIGN = DEMO / "designs" / "sallen_key_lowpass.toml"
 
 R_NOMINAL, C_NOMINAL = 10e3, 100e-9          # the design below: tau = RC = 1 ms
-RC_DESIGN = '''name = "RC test board for the output options"
-drive = "in"
-measure = "out"
-[circuit]
-topology = "rc-low-pass"
-[parts.R1]
-value = "10k"
-tolerance = "1%"
-[parts.C1]
-value = "100n"
-tolerance = "5%"
-'''
+RC_DESIGN = RC_DESIGN_TOML
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"         # ISO/IEC 15948, section 5.2
 

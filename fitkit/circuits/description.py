@@ -23,21 +23,13 @@ from dataclasses import dataclass, field, replace
 from typing import Any, Iterable, Mapping
 
 from ..errors import CircuitError
+from ..probes import PROBE_PRESETS  # noqa: F401  (re-exported: part of this module's API)
 
 #: Part kinds and the SI unit of their value.
 PART_UNITS: dict[str, str] = {"resistor": "Ohm", "capacitor": "F", "inductor": "H", "amplifier": ""}
 
 #: Names the ground node may have.
 GROUND_NAMES = ("0", "gnd")
-
-#: Probe presets: name -> (input resistance in ohms, input capacitance in farads).
-#: Typical figures of the trade (common practice, no source): a 10:1 passive
-#: probe loads about 10 MOhm || 12 pF, a 1:1 probe (or direct coax into a 1 MOhm
-#: input) about 1 MOhm || 20 pF. Use explicit values when the datasheet differs.
-PROBE_PRESETS: dict[str, tuple[float, float]] = {
-    "10x-passive": (10e6, 12e-12),
-    "1x-direct": (1e6, 20e-12),
-}
 
 #: Generator source resistance used when one is asked for without a value, ohms.
 DEFAULT_SOURCE_RESISTANCE = 50.0

@@ -13,7 +13,7 @@ from .output_options import OutputRequest, emit_result, output_options
 
 def circuit_options(f):
     """The options that turn `fitkit fit` into a solve for component values."""
-    from ..circuits.description import PROBE_PRESETS
+    from ..probes import PROBE_PRESETS
     opts = [
         click.option("--circuit", "circuit_file", metavar="FILE.toml", default=None,
                      help="Circuit file (see docs/circuit-format.md): solve its unknown parts."),

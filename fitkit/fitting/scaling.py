@@ -4,8 +4,8 @@ Time is measured from each edge in units of the first time-constant guess,
 volts from the first segment's baseline in units of its step. A form's shape
 parameters are fitted as the natural log of their scaled value, so they stay
 positive and a factor-of-two error is the same distance whether tau is 1 ns or
-10 s. (Working in scaled units is the design note's rule; see
-/work/shared/design.md "Numerics that matter".)
+10 s. (Parameters of order one keep the least-squares problem well
+conditioned; common practice, no source.)
 """
 
 from __future__ import annotations

@@ -78,7 +78,6 @@ def residual_autocorrelation(pieces: Sequence[np.ndarray], max_lag: int) -> np.n
     The lagged sums are taken by FFT (zero-padded, so no wrap-around): O(n log n).
     """
     pieces = [np.asarray(p, dtype=float) for p in pieces if len(p) > 1]
-    n = sum(p.size for p in pieces)
     rho = np.zeros(max_lag + 1)
     rho[0] = 1.0
     acc = np.zeros(max_lag + 1)
