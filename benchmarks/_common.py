@@ -234,3 +234,15 @@ def fmt(x, spec: str = ".3g") -> str:
     if x is None or (isinstance(x, float) and not np.isfinite(x)):
         return "-"
     return format(x, spec)
+
+
+def map_tasks(worker: Callable, tasks: Sequence, workers: int) -> list:
+    """worker(task) for every task, in order: in a process pool of ``workers``
+    (one task at a time per process, so long and short cells balance), or in
+    this process when workers <= 1."""
+    if workers > 1:
+        from multiprocessing import Pool
+
+        with Pool(workers) as pool:
+            return pool.map(worker, tasks, chunksize=1)
+    return [worker(tk) for tk in tasks]

@@ -46,16 +46,15 @@ import argparse
 import math
 import time
 import warnings
-from multiprocessing import Pool
 
 import numpy as np
 
 try:  # run as a script (python benchmarks/bench_accuracy.py) or imported by the smoke test
     from _common import (band_limited_autocorrelation, band_limited_noise, clean, fisher_bounds, fmt, jacobian,
-                         machine, write_results)
+                         machine, map_tasks, write_results)
 except ImportError:  # pragma: no cover
     from benchmarks._common import (band_limited_autocorrelation, band_limited_noise, clean, fisher_bounds, fmt,
-                                    jacobian, machine, write_results)
+                                    jacobian, machine, map_tasks, write_results)
 
 BASELINE, STEP = 0.5, 2.5
 GROSS = 0.5  # relative error above which an estimate counts as a gross error
@@ -208,6 +207,10 @@ def summarise_cell(response: str, cond: dict, setup: dict, records: list[dict]) 
         "response": response, "form": form_name, "condition": dict(cond), "label": describe(cond),
         "n_samples": setup["n"], "noise_rms": setup["sigma"], "lsb": setup["lsb"], "trials": n,
         "convergence_rate": len(ok) / n if n else None,
+        # a fit refused because a parameter is not determined did converge (the
+        # engine reports the undetermined parameter instead of a number)
+        "optimiser_convergence_rate": ((len(ok) + sum("fit_error" in r and "did not converge" not in r["fit_error"]
+                                                      for r in records)) / n if n else None),
         "crashes": sorted({r["crash"] for r in records if "crash" in r}),
         "fit_errors": sorted({r["fit_error"] for r in records if "fit_error" in r})[:5],
         "mean_fit_seconds": float(np.mean([r["fit_seconds"] for r in records])),
@@ -330,11 +333,7 @@ def run_study(trials: int, auto_trials: int, workers: int, quick: bool) -> dict:
              for i, resp, cond in cells for first in range(0, trials, chunk)]
     started = time.time()
     load_before = machine()["load_average_1_5_15min"]
-    if workers > 1:
-        with Pool(workers) as pool:
-            chunks = pool.map(run_trials, tasks, chunksize=1)
-    else:
-        chunks = [run_trials(tk) for tk in tasks]
+    chunks = map_tasks(run_trials, tasks, workers)
     by_cell: dict[int, list] = {}
     for tk, recs in zip(tasks, chunks):
         by_cell.setdefault(tk[0], []).extend(recs)
@@ -357,29 +356,45 @@ def run_study(trials: int, auto_trials: int, workers: int, quick: bool) -> dict:
 def check_targets(cells: list[dict], trials: int) -> dict:
     """Targets of issue 9, cell by cell: which are met and which missed."""
     missed = {"convergence": [], "efficiency": [], "coverage": []}
+    clear = {"convergence": [], "efficiency": [], "coverage": []}
     counted = {"convergence": 0, "efficiency": 0, "coverage": 0}
+    eff_rel = math.sqrt(2 / trials)  # relative sd of an MSE from `trials` squared errors (Gaussian errors)
+    cov_se = math.sqrt(0.95 * 0.05 / trials)
     for c in cells:
         label = f"{c['response']} / {c['label']}"
         counted["convergence"] += 1
         if c["convergence_rate"] < 1:
-            missed["convergence"].append(f"{label}: {c['convergence_rate']:.3f}")
+            text = (f"{label}: {c['convergence_rate']:.3f} (optimiser converged in "
+                    f"{c['optimiser_convergence_rate']:.3f}; the rest were reported 'not determined')")
+            missed["convergence"].append(text)
+            if c["optimiser_convergence_rate"] < 1:
+                clear["convergence"].append(text)
         band = c["condition"]["noise"] == "band"
         lo, hi = (0.90, 0.97) if band else (0.93, 0.97)
         for k, p in c["parameters"].items():
             if c["condition"]["snr_db"] >= 20 and c["condition"]["samples_per_tau"] >= 5 and p["efficiency"]:
                 counted["efficiency"] += 1
                 if p["efficiency"] < 0.9:
-                    missed["efficiency"].append(f"{label} {k}: {p['efficiency']:.2f}")
+                    text = f"{label} {k}: {p['efficiency']:.2f}"
+                    missed["efficiency"].append(text)
+                    if p["efficiency"] * (1 + 2 * eff_rel) < 0.9:
+                        clear["efficiency"].append(text)
             if p["coverage"] is not None:
                 counted["coverage"] += 1
                 if not lo <= p["coverage"] <= hi:
-                    missed["coverage"].append(f"{label} {k}: {p['coverage']:.3f}")
+                    text = f"{label} {k}: {p['coverage']:.3f}"
+                    missed["coverage"].append(text)
+                    if not lo - 2 * cov_se <= p["coverage"] <= hi + 2 * cov_se:
+                        clear["coverage"].append(text)
     return {
         "rules": {"convergence": "100 %", "efficiency": ">= 0.9 where SNR >= 20 dB and >= 5 samples per fastest tau",
-                  "coverage": "93-97 % white, 90-97 % band-limited"},
-        "checked": counted, "missed": missed,
-        "efficiency_relative_uncertainty": math.sqrt(2 / trials),
-        "coverage_standard_error": math.sqrt(0.95 * 0.05 / trials),
+                  "coverage": "93-97 % white, 90-97 % band-limited",
+                  "clear miss": "efficiency below 0.9 even at +2 Monte Carlo sd; coverage outside the band by more "
+                                "than 2 standard errors; the optimiser itself failing (not a refusal to report "
+                                "an undetermined parameter)"},
+        "checked": counted, "missed": missed, "clear_misses": clear,
+        "efficiency_relative_uncertainty": eff_rel,
+        "coverage_standard_error": cov_se,
     }
 
 # -- the Markdown tables --------------------------------------------------------------
@@ -423,11 +438,14 @@ def markdown(data: dict) -> str:
                          f"| {pct(h['gross_error_rate'])} | {pct(h['bias_rel'])} | {pct(h['rmse_rel'])} "
                          f"| {pct(ours)} |")
     lines += ["", "## Targets", ""]
-    for key, rule in tg["rules"].items():
+    for key in ("convergence", "efficiency", "coverage"):
+        rule = tg["rules"][key]
         miss = tg["missed"][key]
         lines.append(f"- {key} ({rule}): {tg['checked'][key] - len(miss)} of {tg['checked'][key]} met"
                      + (":" if miss else "."))
-        lines += [f"  - missed: {x}" for x in miss]
+        lines += [f"  - missed{' (clear)' if x in tg['clear_misses'][key] else ''}: {x}" for x in miss]
+    lines += ["", "A miss is marked clear when " + tg["rules"]["clear miss"] + "; the others lie within the "
+              "Monte Carlo error of the trial count."]
     crashes = sorted({x for c in data["cells"] for x in c["crashes"]})
     if crashes:
         lines += ["", "Engine crashes (exceptions other than FitError):", *[f"- {x}" for x in crashes]]

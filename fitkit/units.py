@@ -16,8 +16,6 @@ from __future__ import annotations
 import math
 import re
 
-from quantiphy import Quantity
-
 from .errors import OptionError
 
 # SI prefixes accepted in values and units. "u" and the micro sign both mean 1e-6.
@@ -65,6 +63,8 @@ def parse_value(text: str | float | int, unit: str | None = None) -> float:
         value = float(f"{whole}.{frac}e{exponent}")
         _check_unit(raw, suffix, unit)
         return value
+    from quantiphy import Quantity  # imported when used (start-up time of every command)
+
     try:
         q = Quantity(raw.replace("Ω", "Ohm").replace("μ", "u"))
     except Exception as exc:  # quantiphy raises its own types
@@ -123,6 +123,8 @@ def format_value(value: float | None, unit: str = "", digits: int = 4) -> str:
     if not unit:
         # Dimensionless numbers (Q, zeta, gain) read best without SI prefixes.
         return f"{value:.{digits}g}"
+    from quantiphy import Quantity
+
     return Quantity(value, unit).render(prec=max(digits - 1, 0), strip_zeros=True)
 
 

@@ -13,7 +13,6 @@ from __future__ import annotations
 import json
 import math
 import time
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -301,3 +300,18 @@ def test_one_million_samples_condition_quickly():
 
 def test_errors_are_fitkit_errors():
     assert issubclass(ConditioningError, FitkitError)
+
+
+@pytest.mark.parametrize("noise_codes, flagged", [(0.05, True), (1.5, False)])
+def test_noise_below_one_code_is_flagged(noise_codes, flagged):
+    # 8-bit trace of a first-order step (1 - exp(-t/tau), any circuit text):
+    # with noise far below a code the rounding error follows the signal
+    # (Widrow & Kollar, Quantization Noise, 2008, from memory), so the user is told.
+    rng = np.random.default_rng(12)
+    t = np.arange(-500, 4500) * 1e-6
+    code = 2.0 / 256
+    clean = np.where(t > 0, 1.0 - np.exp(-np.clip(t, 0, None) / 5e-4), 0.0)
+    v = code * np.round((clean + rng.normal(0.0, noise_codes * code, t.size)) / code)
+    analysis = analyse_steps(Capture.from_arrays(t, {"vout": v}, path="quantised.csv"))
+    said = any("below one quantisation code" in f for f in analysis.flags)
+    assert said == flagged

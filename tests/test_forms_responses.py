@@ -78,7 +78,9 @@ def test_unit_step_matches_scipy_step_of_its_transfer_function(name):
 def test_coincident_and_nearly_coincident_poles(name, ratio):
     # reference: scipy.signal.step; partial fractions would divide by (1 - ratio)
     form = FORMS[name]
-    shape = {k: 1e-3 * ratio ** i for i, k in enumerate(n for n in form.shape_names if n != "tz")}
+    # two-real-pole is fitted as (tau0, Q) but also takes its time constants by name
+    taus = [p.name for p in form.reported_shape] or [n for n in form.shape_names if n != "tz"]
+    shape = {k: 1e-3 * ratio ** i for i, k in enumerate(taus)}
     if "tz" in form.shape_names:
         shape["tz"] = 2.5e-3
     t = np.linspace(0.0, 0.05, 2000)

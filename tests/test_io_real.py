@@ -7,7 +7,6 @@ an independent reader).
 
 from __future__ import annotations
 
-from pathlib import Path
 
 import numpy as np
 import pandas as pd

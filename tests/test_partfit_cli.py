@@ -7,7 +7,6 @@ Captures are simulated by scipy.signal.lsim on handbook closed forms
 from __future__ import annotations
 
 import json
-import math
 
 import numpy as np
 import pytest

@@ -13,7 +13,6 @@ poorly determined.
 from __future__ import annotations
 
 import json
-from pathlib import Path
 
 import pytest
 

@@ -8,8 +8,8 @@ nothing that was finished, and a re-run takes every finished capture from disk
 ones are marked as duplicates of the first. The runner never prints: progress
 goes to a callback.
 
-One batch at a time per output folder: temporary files left in it by a killed
-run are removed when the next run starts.
+One batch at a time per output folder (a lock file, :mod:`.folder_lock`):
+temporary files left in it by a killed run are removed when the next run starts.
 """
 
 from __future__ import annotations
@@ -29,6 +29,7 @@ from .. import __version__
 from ..atomic import write_text_atomic
 from ..errors import OptionError
 from .discover import BatchInput, content_hash, discover_inputs
+from .folder_lock import output_folder_lock
 from .worker import BatchSettings, process_capture
 
 #: progress(done, total, record): called after each capture processed now
@@ -222,11 +223,23 @@ def run_batch(paths: Iterable[str | os.PathLike], settings: BatchSettings, out_d
         Dask workers must see the capture files under the same absolute paths).
     redo: process every capture again, even when a result for it exists in ``out_dir``.
     on_plan: called once with the BatchPlan before processing starts.
+    Holds the output folder's lock (:mod:`.folder_lock`) throughout.
     Raises OptionError when there are no inputs, the cluster cannot be reached,
+    another batch is writing to ``out_dir``,
     or check mode (a design in ``settings``) is not available; DesignError
     when the design file cannot be used.
     """
     out = Path(out_dir)
+    with output_folder_lock(out):
+        return _run_batch_locked(paths, settings, out, workers=workers, redo=redo, cluster=cluster,
+                                 progress=progress, on_plan=on_plan)
+
+
+def _run_batch_locked(paths: Iterable[str | os.PathLike], settings: BatchSettings, out: Path, *,
+                      workers: int | None, redo: bool, cluster: str | None,
+                      progress: ProgressCallback | None,
+                      on_plan: Callable[[BatchPlan], None] | None) -> BatchRun:
+    """run_batch with the output folder's lock held."""
     plan = plan_batch(paths, settings, out, redo=redo)
     try:
         (out / RESULTS_FOLDER).mkdir(parents=True, exist_ok=True)

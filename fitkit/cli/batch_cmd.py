@@ -89,6 +89,7 @@ def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plo
     """
     from ..batch import BatchSettings, batch_exit_status, run_batch, summary_frame, write_summary
     from ..batch.discover import content_hash
+    from ..batch.folder_lock import output_folder_lock
     from ..batch.summary import duplicate_reason
 
     options = CaptureOptions.pop(kwargs)
@@ -96,20 +97,21 @@ def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plo
                              average=average, design=design,
                              design_hash=content_hash(design) if design else None,
                              read_options=options.load_kwargs())
-    try:
-        run = run_batch(paths, settings, out_dir, workers=workers, redo=redo, cluster=cluster,
-                        progress=_progress_printer(sys.stderr), on_plan=_announce)
-    except KeyboardInterrupt:
-        click.echo(f"fitkit: the captures finished so far are saved in {out_dir}; "
-                   "run the same command again to resume", err=True)
-        raise
-    written = write_summary(run, out_dir)
-    plots = []
-    if not no_plots:
-        from ..batch.summary import batch_limits
-        from ..report.batch_plots import plot_batch_distributions
-        frame, units = summary_frame(run)
-        plots = plot_batch_distributions(frame, units, out_dir, limits=batch_limits(run))
+    with output_folder_lock(out_dir):  # the summary and plots too, not only the run
+        try:
+            run = run_batch(paths, settings, out_dir, workers=workers, redo=redo, cluster=cluster,
+                            progress=_progress_printer(sys.stderr), on_plan=_announce)
+        except KeyboardInterrupt:
+            click.echo(f"fitkit: the captures finished so far are saved in {out_dir}; "
+                       "run the same command again to resume", err=True)
+            raise
+        written = write_summary(run, out_dir)
+        plots = []
+        if not no_plots:
+            from ..batch.summary import batch_limits
+            from ..report.batch_plots import plot_batch_distributions
+            frame, units = summary_frame(run)
+            plots = plot_batch_distributions(frame, units, out_dir, limits=batch_limits(run))
 
     counts = ", ".join(f"{n} {s}" for s, n in _counts(run).items())
     dup = f", {run.duplicates} duplicate" if run.duplicates else ""

@@ -275,6 +275,14 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
             and out_noise.rms > 0.1 * levels.amplitude:
         flags.append(f"the output noise ({format_value(out_noise.rms, out_ch.unit)} rms) is more than a tenth "
                      "of the step; averaging several edges (average option) would help")
+    if out_noise.quantisation_step is not None and out_noise.method.startswith("quantisation noise floor"):
+        # with noise well under a code the rounding error follows the signal
+        # instead of averaging out (Widrow & Kollar, Quantization Noise, CUP
+        # 2008, ch. 4, from memory: the additive-noise model needs noise of about a code or more)
+        flags.append(f"the output noise is below one quantisation code "
+                     f"({format_value(out_noise.quantisation_step, out_ch.unit)}): rounding errors then do "
+                     "not average out and estimates can be biased by more than their intervals show; "
+                     "use a finer vertical scale or the scope's high-resolution (averaging) acquisition")
     for s in segments:
         flags.extend(f for f in s.flags if f not in flags)
     return StepAnalysis(input_channel=None if in_ch is None else in_ch.name, output_channel=out_ch.name,

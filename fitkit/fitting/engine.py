@@ -7,8 +7,11 @@ the best few starts with the levels solved linearly inside the objective
 (variable projection, :mod:`.projection`; the full problem through
 :mod:`.core` when a start is given or a level held fixed), keeps the lowest
 sum of squares, and measures the residual autocorrelation
-(:mod:`.uncertainty`). In measured-input mode the input's own noise is added
-to the covariance (:mod:`.input_noise`).
+(:mod:`.uncertainty`); when the residuals are correlated it refits by
+generalised least squares with the residuals whitened by their
+autoregressive model (:mod:`.whitening`; ideal-step mode, unbinned
+segments). In measured-input mode the input's own noise is added to the
+covariance (:mod:`.input_noise`).
 """
 
 from __future__ import annotations
@@ -29,6 +32,7 @@ from .projection import can_project, fit_projected, nonlinear_names
 from .scaling import Scaling, decimated, reference_step
 from .starts import best_starts, projected_levels
 from .uncertainty import Correction, correlated_residual_correction, t_quantile
+from .whitening import whitened_fit, whitening_applies
 
 #: How many of the best grid starts are refined by the nonlinear fit.
 STARTS_REFINED = 2
@@ -139,7 +143,8 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     start: optional physical starting values (the NIST tests use this);
         missing ones come from the data.
     fixed: physical values held fixed, e.g. {"baseline": 0.0, "t0": 0.0}.
-    correlation: "auto", "on" or "off" for the correlated-residual correction.
+    correlation: "auto", "on" or "off" for the correlated-residual correction
+        and the whitened refit (:mod:`.whitening`) that comes with it.
     """
     if not segments:
         raise FitError("no step segments to fit", hint="check that the capture holds at least one edge")
@@ -201,6 +206,11 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     pieces = joint.split(w * best.residual)
     correction = correlated_residual_correction(best.jacobian * w[:, None], pieces, list(joint.bounds),
                                                 best.covariance, best.s2, correlation)
+    if correction.applied and whitening_applies(joint):  # feasible GLS, see .whitening
+        searched = len(nonlinear_names(joint)) if project else len(best.names)
+        joint, best, correction = whitened_fit(
+            joint, best, fixed_int, correction, correlation, project=project, tol=ENGINE_TOLERANCE,
+            max_nfev=EVALUATIONS_PER_PARAMETER * (searched + 1), canonical=lambda f, j=joint: _canonical(j, f))
     if joint.measured_input:
         correction = _with_input_noise(joint, best, correction)
     dof = correction.dof if correction.applied and correction.dof is not None else best.dof

@@ -18,7 +18,7 @@ over all parameters would.
 
 from __future__ import annotations
 
-from typing import Mapping
+from typing import Callable, Mapping
 
 import numpy as np
 from scipy import optimize
@@ -49,7 +49,7 @@ def projected_model(joint: JointModel, values: Mapping[str, float]) -> tuple[dic
         parts = []
         for i, d in enumerate(joint.data):
             w2 = d.counts.astype(float)
-            f = joint.unit_response(i, shape)
+            f = joint.unit_response(i, shape) + joint.previous_tail(i, shape)
             fm, ym = float(w2 @ f) / w2.sum(), float(w2 @ d.y) / w2.sum()
             fc = f - fm
             sxy += float((w2 * fc) @ (d.y - ym))
@@ -65,14 +65,43 @@ def projected_model(joint: JointModel, values: Mapping[str, float]) -> tuple[dic
     for i, d in enumerate(joint.data):
         w2 = d.counts.astype(float)
         f = joint.unit_response(i, shape, values.get(f"t0_{i}", 0.0))
-        fm, ym = float(w2 @ f) / w2.sum(), float(w2 @ d.y) / w2.sum()
+        tail = joint.previous_tail(i, shape, values.get(f"t0_{i - 1}", 0.0))
+        target = d.y - tail
+        fm, ym = float(w2 @ f) / w2.sum(), float(w2 @ target) / w2.sum()
         fc = f - fm
         sxx = float((w2 * fc) @ fc)
-        step = float((w2 * fc) @ (d.y - ym)) / sxx if sxx > 0 else 0.0
+        step = float((w2 * fc) @ (target - ym)) / sxx if sxx > 0 else 0.0
         out[f"baseline_{i}"] = ym - step * fm
         out[f"step_{i}"] = step
-        pieces.append(out[f"baseline_{i}"] + step * f)
+        pieces.append(out[f"baseline_{i}"] + step * f + tail)
     return out, np.concatenate(pieces)
+
+
+def least_squares_search(residual: Callable[[np.ndarray], np.ndarray], theta0: np.ndarray,
+                         shape: tuple[int, ...], *, tol: float, max_nfev: int
+                         ) -> tuple[np.ndarray, bool, str, int]:
+    """Levenberg-Marquardt (MINPACK lmdif, the routine and settings the full fit
+    uses through lmfit) on ``residual`` from ``theta0``: (theta, converged,
+    message, number of evaluations).
+
+    A residual that raises an arithmetic error or is not finite counts as a
+    huge residual, so the search backs away from it instead of failing.
+    """
+    def guarded(theta: np.ndarray) -> np.ndarray:
+        try:
+            with np.errstate(all="ignore"):
+                r = residual(theta)
+        except (ArithmeticError, ValueError, np.linalg.LinAlgError):
+            return np.full(shape, 1e150)
+        return np.where(np.isfinite(r), r, 1e150)
+
+    if theta0.size == 0:
+        return theta0, True, "no nonlinear parameter", 0
+    x, _, info, message, ier = optimize.leastsq(guarded, theta0, full_output=True, ftol=tol,
+                                                xtol=tol, gtol=0.0, maxfev=max_nfev)
+    theta = np.atleast_1d(x)
+    converged = ier in (1, 2, 3, 4) and bool(np.all(np.isfinite(theta)))
+    return theta, converged, str(message), int(info["nfev"])
 
 
 def fit_projected(joint: JointModel, start: Mapping[str, float], fixed: Mapping[str, float], *,
@@ -95,22 +124,11 @@ def fit_projected(joint: JointModel, start: Mapping[str, float], fixed: Mapping[
     def residual(theta: np.ndarray) -> np.ndarray:
         vals = dict(fixed)
         vals.update(zip(names, (float(v) for v in theta)))
-        try:
-            with np.errstate(all="ignore"):
-                r = w * (joint.y - projected_model(joint, vals)[1])
-        except (ArithmeticError, ValueError):
-            return np.full(joint.y.shape, 1e150)
-        return np.where(np.isfinite(r), r, 1e150)
+        return w * (joint.y - projected_model(joint, vals)[1])
 
     theta0 = np.array([float(start.get(n, 0.0)) for n in names])
-    converged, message, nfev = True, "no nonlinear parameter", 0
-    if names:
-        # MINPACK lmdif, the same routine and settings the full fit uses through lmfit
-        x, _, info, message, ier = optimize.leastsq(residual, theta0, full_output=True, ftol=tol,
-                                                    xtol=tol, gtol=0.0, maxfev=max_nfev)
-        theta0 = np.atleast_1d(x)
-        converged = ier in (1, 2, 3, 4) and bool(np.all(np.isfinite(theta0)))
-        message, nfev = str(message), int(info["nfev"])
+    theta0, converged, message, nfev = least_squares_search(residual, theta0, joint.y.shape, tol=tol,
+                                                             max_nfev=max_nfev)
     values = full_values(theta0)
     varied = tuple(n for n in joint.names if n not in fixed)
     return model_fit_at(joint.evaluate, values, varied, None, joint.y, w, converged=converged,

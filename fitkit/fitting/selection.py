@@ -8,15 +8,17 @@ model in Burnham & Anderson, Model Selection and Multimodel Inference, 2nd ed.,
 Springer 2002, section 2.6), and only when its extra shape parameters are
 determined by the data: a second time constant shorter than one sample
 interval, or a Q whose interval reaches down to 0.5 (no ringing resolved), is
-never claimed. With correlated residuals the likelihood part is divided by
-the residuals' long-run variance ratio (fewer effective samples), so
-band-limited noise is not mistaken for evidence.
+never claimed; nor is a two-real-pole fit whose Q lies above 1/2 by more than
+its interval (ringing resolved: the underdamped form's case). With correlated
+residuals the likelihood part is divided by the residuals' long-run variance
+ratio (fewer effective samples), so band-limited noise is not mistaken for
+evidence.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Sequence
 
 from ..errors import FitError
@@ -24,15 +26,16 @@ from ..forms import FORMS
 from ..forms.base import Form
 from ..results import CandidateScore, Estimate
 from .engine import FormFit
+from .estimates import OUTSIDE_RANGE, beyond_range_sigmas
 
 #: AICc advantage a more complex form needs to be preferred.
 MARGIN = 10.0
 CRITERION = "AICc"
 #: Default candidates, simplest first, used when they exist in FORMS.
 DEFAULT_CANDIDATES = ("first-order", "first-order-decay", "two-real-pole", "underdamped", "three-real-pole")
-#: Tried as well when neither two-real-pole nor underdamped is supported by the data:
-#: at exactly equal poles two-real-pole cannot separate its time constants and
-#: underdamped cannot resolve Q > 1/2, while the one-parameter double pole fits.
+#: Tried as well when neither two-real-pole nor underdamped is supported by the data
+#: (neither converged, or neither is determined): the one-parameter double pole.
+#: (two-real-pole is fitted in tau0 and Q, so equal poles alone no longer need it.)
 FALLBACK_CANDIDATES = ("critically-damped",)
 
 
@@ -71,6 +74,8 @@ def needs_fallback(candidates: Sequence[Candidate]) -> bool:
 def admissibility(form: Form, shape: dict[str, Estimate], sample_interval: float) -> tuple[bool, str]:
     """Whether a converged candidate's shape is supported by the data, with the reason if not."""
     for est in shape.values():
+        if not est.determined and est.interval_method.startswith(OUTSIDE_RANGE):
+            return False, est.interval_method
         if not est.determined:
             return False, f"{est.name} is not determined by the data"
     for spec in form.shape:
@@ -91,6 +96,7 @@ def admissibility(form: Form, shape: dict[str, Estimate], sample_interval: float
 
 def choose(candidates: Sequence[Candidate]) -> tuple[Candidate, tuple[CandidateScore, ...], str, list[str]]:
     """Pick the form; return (chosen, scores, reason in plain words, warnings)."""
+    candidates = _set_aside_beyond_range(candidates)
     usable = [c for c in candidates if c.fit is not None and c.fit.converged]
     if not usable:
         raise FitError("no candidate form converged",
@@ -134,6 +140,28 @@ def choose(candidates: Sequence[Candidate]) -> tuple[Candidate, tuple[CandidateS
             rms_residual=_rms(c.fit) if ok else math.nan,
             note=("chosen" if c is chosen else c.note or "")))
     return chosen, tuple(scores), reason, warnings
+
+
+def _set_aside_beyond_range(candidates: Sequence[Candidate]) -> list[Candidate]:
+    """Candidates whose fit lies beyond their form's range by more than its interval (a
+    two-real-pole fit whose Q is clearly above 1/2: the response rings) marked inadmissible,
+    when another candidate is admissible.
+
+    Such a fit reports the nearest point of its range (equal poles) but scores
+    the sum of squares of the ringing fit, which belongs to the underdamped
+    form. Alone (a form asked for by name) it is kept, with its warning.
+    """
+    out = list(candidates)
+    for i, c in enumerate(out):
+        if c.fit is None or not c.admissible:
+            continue
+        beyond = beyond_range_sigmas(c.fit) if c.fit.converged else 0.0
+        others = any(o.admissible for o in out if o is not c)
+        if beyond > c.fit.tq and others:
+            out[i] = replace(c, admissible=False,
+                             note=f"its fit lies {beyond:.1f} standard errors beyond the form's range "
+                                  "(Q above 1/2: the response rings)")
+    return out
 
 
 def _rms(ff: FormFit) -> float:

@@ -20,6 +20,11 @@ the "VARHAC" approach of den Haan & Levin, Handbook of Statistics 15 (1997)
 when a Ljung-Box portmanteau test (Ljung & Box, Biometrika 65 (1978) 297-303)
 finds the residuals correlated at the 1 % level, and it never narrows an
 interval, so under white noise the intervals stay the textbook ones.
+
+The autoregressive model (:func:`autoregressive_model`) and the noise
+autocovariance with the projection bias added back
+(:func:`noise_autocovariance`) also give the whitening filter of the
+generalised least-squares refit in :mod:`.whitening`.
 """
 
 from __future__ import annotations
@@ -109,38 +114,84 @@ def ljung_box_correlated(rho: np.ndarray, n: int, lags: int = LJUNG_BOX_LAGS,
     return bool(q > special.chdtri(m, alpha))  # upper-tail chi-square quantile
 
 
+@dataclass(frozen=True)
+class AutoregressiveModel:
+    """An autoregressive model x[t] = sum_k phi[k] x[t-1-k] + e[t] of a stationary series.
+
+    coefficients: phi[0..p-1] of the chosen order p (Yule-Walker).
+    partial: the Yule-Walker predictors of every lower order, ``partial[m]`` of
+        length m for m = 0..p (``partial[p]`` equals ``coefficients``).
+    innovation: innovation variance over the series' variance, for every order
+        0..p (``innovation[0]`` = 1); decreasing.
+    """
+
+    coefficients: np.ndarray
+    partial: tuple[np.ndarray, ...]
+    innovation: np.ndarray
+
+    @property
+    def order(self) -> int:
+        return int(self.coefficients.size)
+
+    @property
+    def stationary(self) -> bool:
+        roots = np.roots(np.concatenate([[1.0], -self.coefficients]))
+        return not (roots.size and np.max(np.abs(roots)) >= 0.999)
+
+
+def autoregressive_model(rho: np.ndarray, n: int, max_order: int = 24) -> AutoregressiveModel:
+    """The AR model of a series from its autocorrelation ``rho``: Yule-Walker
+    coefficients, order 1..max_order (at most n // 10) chosen by AIC
+    (n ln(innovation variance) + 2 order).
+
+    The Yule-Walker equations of all orders are solved by the Levinson-Durbin
+    recursion (Levinson, J. Math. Phys. 25 (1947) 261-278; Durbin, Rev. Inst.
+    Int. Stat. 28 (1960) 233-244), which also gives the lower-order predictors
+    that whitening needs at the start of a record.
+    """
+    max_order = int(max(1, min(max_order, rho.size - 1, n // 10)))
+    partial = [np.zeros(0)]
+    innovation = [1.0]
+    best_aic, best_order = math.inf, 1
+    phi = np.zeros(0)
+    for order in range(1, max_order + 1):
+        # reflection coefficient of the next order (Levinson-Durbin step)
+        k = (rho[order] - float(phi @ rho[order - 1:0:-1])) / innovation[-1] if order > 1 else rho[1]
+        if not abs(k) < 1.0:
+            break
+        phi = np.concatenate([phi - k * phi[::-1], [k]])
+        v = innovation[-1] * (1.0 - k * k)
+        if not v > 0:
+            break
+        partial.append(phi)
+        innovation.append(v)
+        aic = n * math.log(v) + 2 * order
+        if aic < best_aic:
+            best_aic, best_order = aic, order
+    best_order = min(best_order, len(partial) - 1) or 1
+    if len(partial) < 2:  # not even order 1 is admissible (|rho(1)| >= 1): a degenerate series
+        return AutoregressiveModel(np.zeros(1), (np.zeros(0), np.zeros(1)), np.array([1.0, 1.0]))
+    return AutoregressiveModel(partial[best_order], tuple(partial[:best_order + 1]),
+                               np.array(innovation[:best_order + 1]))
+
+
 def autoregressive_autocorrelation(rho: np.ndarray, n: int, max_order: int = 24,
                                    max_lag: int | None = None) -> tuple[np.ndarray, int]:
     """Autocorrelation implied by an AR model of the residuals, and the model order.
 
-    The order (1..max_order) is chosen by AIC, the coefficients by the
-    Yule-Walker equations (scipy.linalg.solve_toeplitz); the implied
-    autocorrelation is computed from the model's impulse response out to
+    The model is :func:`autoregressive_model` (Yule-Walker, order by AIC); the
+    implied autocorrelation is computed from the model's impulse response out to
     ``max_lag``. This smooth, model-based autocorrelation replaces the noisy
     sample autocorrelation at long lags (the AR-based "VARHAC" idea of den Haan
     & Levin, Handbook of Statistics 15 (1997) 299-342, from memory).
     """
-    max_order = int(max(1, min(max_order, rho.size - 1, n // 10)))
-    best = (math.inf, 1, np.zeros(1), 1.0)
-    for order in range(1, max_order + 1):
-        try:
-            phi = linalg.solve_toeplitz(rho[:order], rho[1:order + 1])
-        except (np.linalg.LinAlgError, ValueError):
-            break
-        innovation = 1.0 - float(phi @ rho[1:order + 1])
-        if not innovation > 0:
-            break
-        aic = n * math.log(innovation) + 2 * order
-        if aic < best[0]:
-            best = (aic, order, phi, innovation)
-    _, order, phi, innovation = best
+    model = autoregressive_model(rho, n, max_order)
     max_lag = max_lag or rho.size - 1
-    roots = np.roots(np.concatenate([[1.0], -phi]))
-    if roots.size and np.max(np.abs(roots)) >= 0.999:  # not stationary: keep the sample estimate
-        return rho.copy(), order
-    impulse = _ar_impulse_response(phi, 4 * max_lag + 1)
+    if not model.stationary:  # not stationary: keep the sample estimate
+        return rho.copy(), model.order
+    impulse = _ar_impulse_response(model.coefficients, 4 * max_lag + 1)
     acf = _lagged_sums(impulse, max_lag)
-    return acf / acf[0], order
+    return acf / acf[0], model.order
 
 
 def _ar_impulse_response(phi: np.ndarray, n: int) -> np.ndarray:
@@ -197,6 +248,52 @@ def projection_bias(gamma: np.ndarray, jacobian: np.ndarray, bounds: Sequence[in
     return bias / n
 
 
+@dataclass(frozen=True)
+class NoiseAutocovariance:
+    """The noise's autocovariance as estimated from a fit's residuals.
+
+    sample_rho: pooled sample autocorrelation of the residuals, lags 0..max_lag.
+    autocovariance: the residual autocovariance with the projection bias added
+        back (:func:`projection_bias`): the estimate of the noise's own.
+    model_rho: autocorrelation of the AR model of ``autocovariance`` (order ``order``).
+    model_autocovariance: model_rho scaled to the noise variance.
+    """
+
+    sample_rho: np.ndarray
+    autocovariance: np.ndarray
+    model_rho: np.ndarray
+    order: int
+    model_autocovariance: np.ndarray
+
+
+def noise_autocovariance(jacobian: np.ndarray, residual_pieces: Sequence[np.ndarray], bounds: Sequence[int],
+                         bread: np.ndarray, max_lag: int) -> NoiseAutocovariance:
+    """Autocovariance of the noise from the residuals of a least-squares fit.
+
+    The residual autocovariance falls short of the noise's by the projection
+    bias (the fit's parameters absorb part of the slow noise); it is added back
+    in :data:`PROJECTION_PASSES` passes, each with the bias computed from the
+    AR model of the previous estimate (:func:`autoregressive_autocorrelation`).
+    jacobian: weighted Jacobian (n, p); bread: (J^T J)^-1.
+    """
+    n = int(sum(len(r) for r in residual_pieces))
+    p = jacobian.shape[1]
+    rho = residual_autocorrelation(residual_pieces, max_lag)
+    gamma0 = sum(float(np.dot(r, r)) for r in residual_pieces) / n
+    model_rho, order = autoregressive_autocorrelation(rho, n, max_lag=max_lag)
+    gamma = model_rho * gamma0 * n / max(n - p, 1)
+    acov = rho * gamma0
+    for _ in range(PROJECTION_PASSES):
+        bias = projection_bias(gamma, jacobian, bounds, bread, max_lag)
+        corrected_acov = rho * gamma0 + bias
+        if not corrected_acov[0] > 0:
+            break
+        acov = corrected_acov
+        model_rho, order = autoregressive_autocorrelation(acov / acov[0], n, max_lag=max_lag)
+        gamma = model_rho * acov[0]
+    return NoiseAutocovariance(rho, acov, model_rho, order, gamma)
+
+
 def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequence[np.ndarray],
                                    jac_pieces_bounds: Sequence[int], covariance: np.ndarray,
                                    s2: float, mode: str = "auto") -> Correction:
@@ -219,17 +316,8 @@ def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequen
     if mode == "auto" and not ljung_box_correlated(rho, n):
         return none
     bread = covariance / s2
-    gamma0 = sum(float(np.dot(r, r)) for r in residual_pieces) / n
-    model_rho, order = autoregressive_autocorrelation(rho, n, max_lag=max_lag)
-    gamma = model_rho * gamma0 * n / max(n - p, 1)
-    for _ in range(PROJECTION_PASSES):
-        bias = projection_bias(gamma, jacobian, jac_pieces_bounds, bread, max_lag)
-        corrected_acov = rho * gamma0 + bias
-        if not corrected_acov[0] > 0:
-            break
-        model_rho, order = autoregressive_autocorrelation(corrected_acov / corrected_acov[0], n,
-                                                          max_lag=max_lag)
-        gamma = model_rho * corrected_acov[0]
+    noise = noise_autocovariance(jacobian, residual_pieces, jac_pieces_bounds, bread, max_lag)
+    model_rho, order, gamma = noise.model_rho, noise.order, noise.model_autocovariance
     # lags beyond which the model autocorrelation is negligible
     significant = np.nonzero(np.abs(model_rho) > 1e-3)[0]
     m_max = int(min(max_lag, significant[-1] if significant.size else 1))

@@ -86,6 +86,19 @@ class Form:
     canonical: f(shape) -> shape in canonical order (for example
         tau1 >= tau2), for forms whose unit_step is symmetric in some
         parameters; None when the shape is already canonical.
+
+    Optional attributes for a form fitted in internal coordinates (added for
+    "two-real-pole", which is fitted as tau0 and Q, regular at equal poles,
+    and reported as tau1 and tau2):
+
+    reported_shape: the parameters a fit reports in place of ``shape`` (the
+        fit coordinates); empty when ``shape`` itself is reported.
+    region_quantities: f(**shape with numpy arrays) -> {name: array}, closed
+        forms of (at least) every ``reported_shape`` parameter, vectorised and
+        cheap; their intervals are the range over the confidence region of
+        the fit coordinates within the form's bounds (fitkit.fitting.estimates),
+        honest where the map is singular. Names it also gives that are among
+        ``derived`` get the same treatment. None for ordinary forms.
     """
 
     name: str
@@ -100,6 +113,8 @@ class Form:
     final_value: float = 1.0
     auto_candidate: bool = True
     canonical: Callable[[Mapping[str, float]], dict[str, float]] | None = None
+    reported_shape: tuple[ParamSpec, ...] = ()
+    region_quantities: Callable[..., Mapping[str, np.ndarray]] | None = None
 
     def canonical_shape(self, shape: Mapping[str, float]) -> dict[str, float]:
         """The shape with symmetric parameters put in the form's canonical order."""

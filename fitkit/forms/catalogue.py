@@ -27,7 +27,10 @@ def describe_form(form: Form) -> dict[str, Any]:
         "name": form.name,
         "summary": form.summary,
         "poles": form.order,
-        "parameters": [describe_parameter(p) for p in form.shape],
+        # the parameters results report (a form fitted in other coordinates,
+        # such as two-real-pole in tau0 and Q, reports tau1 and tau2)
+        "parameters": [describe_parameter(p) for p in (form.reported_shape or form.shape)],
+        **({"fitted_as": [describe_parameter(p) for p in form.shape]} if form.reported_shape else {}),
         "derived": [{"name": k, "unit": u} for k, u in form.derived_units.items()],
         "settles_to": form.final_value,
         "automatic": form.auto_candidate,

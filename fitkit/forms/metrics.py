@@ -33,7 +33,6 @@ import math
 from typing import Callable
 
 import numpy as np
-from scipy.optimize import brentq
 
 UnitStep = Callable[[np.ndarray], np.ndarray]
 
@@ -220,5 +219,7 @@ def half_power_frequency(num: np.ndarray, den: np.ndarray, *, scale: float,
         if k == log_w.size - 1:
             return math.nan
         a, b = log_w[k], log_w[k + 1]
+    from scipy.optimize import brentq  # imported when used: scipy.optimize costs start-up time
+
     root = brentq(excess, a, b, xtol=1e-14, rtol=1e-15, maxiter=200)
     return math.exp(root) / (2.0 * math.pi)

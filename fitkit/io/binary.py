@@ -65,7 +65,10 @@ def read_npz(path: str | Path, *, sample_interval: float | None = None,
             arrays = {k: np.asarray(data[k]) for k in data.files}
     except FileNotFoundError:
         raise CaptureError("file not found", path=path, hint="check the file name") from None
-    except (OSError, ValueError, zipfile.BadZipFile, zlib.error, EOFError, KeyError) as exc:
+    # zipfile raises RuntimeError for a member flagged encrypted and NotImplementedError
+    # for an unknown compression method (both seen on corrupted files)
+    except (OSError, ValueError, zipfile.BadZipFile, zlib.error, EOFError, KeyError, RuntimeError,
+            NotImplementedError) as exc:
         raise CaptureError(f"not a readable .npz file ({type(exc).__name__})", path=path,
                            hint="write it with numpy.savez or fitkit.io.save_npz") from None
     units = _json(arrays.pop(_UNITS_KEY, None))

@@ -1,9 +1,10 @@
-"""Read a delimited text capture: sniff the first lines, parse the bulk with pandas.
+"""Read a delimited text capture: sniff the first lines, then parse the numeric bulk.
 
 The layout is decided from the first few KB (:mod:`fitkit.io.sniff`,
-:mod:`fitkit.io.layouts`); the numeric block is then handed to pandas'
-C parser from the byte where the data starts (:mod:`fitkit.io.bulk`), so a
-million-row file reads about as fast as ``pandas.read_csv`` alone. The checks of :mod:`fitkit.io.checks`
+:mod:`fitkit.io.layouts`); the numeric block is then parsed from the byte
+where the data starts (:mod:`fitkit.io.bulk`: numpy's reader for a plain
+block, pandas' C parser otherwise), so a million-row file reads about as fast
+as ``pandas.read_csv`` alone. The checks of :mod:`fitkit.io.checks`
 run on the result. The input file is only ever opened for reading.
 """
 
@@ -35,7 +36,8 @@ def read_delimited(path: str | Path, *, delimiter: str | None = None, decimal: s
     shape = decide_shape(sample, delimiter=delimiter, decimal=decimal,
                          skip_rows=skip_rows, header_rows=header_rows)
     plan = plan_read(sample, shape, **plan_options)
-    # pandas' comment option halves its speed, so it is used only when needed:
+    # the comment option halves pandas' speed (and numpy's reader does not take it),
+    # so it is used only when needed:
     # when the sample shows comment lines among the data, or when a first
     # pass without it meets rows it cannot read.
     comments_seen = any(is_comment(ln.text) for ln in sample.lines if ln.number > shape.data_line.number)

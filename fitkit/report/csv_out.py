@@ -1,7 +1,8 @@
 """Fits as tables for spreadsheets and pandas.
 
 * ``fit_result_csv(result)``: one row per quantity of one fit, columns
-  kind, name, value, stderr, ci95_low, ci95_high, unit, determined.
+  kind, name, value, stderr, ci95_low, ci95_high, unit, determined (a
+  derived quantity that repeats a parameter, such as tau, is listed once).
 * ``quantity_frame(result)``: the same rows as a pandas DataFrame
   (``FitResult.to_frame()``).
 * ``results_table(results)``: one row per capture, one column per quantity
@@ -34,7 +35,7 @@ def _number(x: float | None) -> float | None:
 
 def _quantity_records(result: FitResult) -> list[dict]:
     records = []
-    for row in quantity_rows(result):
+    for row in quantity_rows(result, skip_repeated=True):
         est = row.estimate
         shown = is_reportable(est)
         lo, hi = est.ci95 if (shown and est.ci95 is not None) else (None, None)

@@ -31,6 +31,7 @@ LABELS: dict[str, str] = {
     "tau": "time constant",
     "tau1": "slower time constant",
     "tau2": "faster time constant",
+    "tau0": "geometric mean of the two time constants, 1/omega0",
     "tau3": "third time constant",
     "tau4": "fourth time constant",
     "tau5": "fifth time constant",
