@@ -28,7 +28,8 @@ from ..forms.base import Form, rise_time_scale
 from .core import ModelFit, fit_model
 from .input_noise import input_noise_covariance
 from .joint_model import MAX_POINTS_PER_SEGMENT, JointModel
-from .projection import can_project, fit_projected, nonlinear_names
+from .projection import (ProjectedSearch, can_project, finish_projected, nonlinear_names,
+                         search_projected)
 from .scaling import Scaling, decimated, reference_step
 from .starts import best_starts, projected_levels
 from .uncertainty import Correction, correlated_residual_correction, t_quantile
@@ -179,13 +180,21 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     # or a level is held fixed
     project = not start and can_project(joint, fixed_int)
     best: ModelFit | None = None
+    best_search: ProjectedSearch | None = None
     for s in starts:
         params = {k: s.get(k, 0.0) for k in joint.names if k not in fixed_int}
         if not params:
             continue
+        if project:  # the Jacobian and covariance only for the best start (below)
+            found = _search(joint, params, fixed_int)
+            if best_search is None or _better(found, best_search):
+                best_search = found
+            continue
         fit = _run(joint, params, fixed_int, project)
         if best is None or _better(fit, best):
             best = fit
+    if best_search is not None:
+        best = finish_projected(joint, best_search, fixed_int)
     assert best is not None
     if best.singular:
         # A start on a symmetry line (e.g. tau1 = tau2) gives identical Jacobian
@@ -217,12 +226,17 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     return FormFit(form, joint, best, correction, t_quantile(int(round(dof))))
 
 
+def _search(joint: JointModel, params: Mapping[str, float], fixed: Mapping[str, float]) -> ProjectedSearch:
+    """One projected search (levels solved linearly) from ``params``, without its covariance."""
+    n_nonlinear = len([n for n in nonlinear_names(joint) if n not in fixed])
+    return search_projected(joint, params, fixed, tol=ENGINE_TOLERANCE,
+                            max_nfev=EVALUATIONS_PER_PARAMETER * (n_nonlinear + 1))
+
+
 def _run(joint: JointModel, params: Mapping[str, float], fixed: Mapping[str, float], project: bool) -> ModelFit:
     """One nonlinear fit from ``params``: projected (levels solved linearly) or over all parameters."""
     if project:
-        n_nonlinear = len([n for n in nonlinear_names(joint) if n not in fixed])
-        return fit_projected(joint, params, fixed, tol=ENGINE_TOLERANCE,
-                             max_nfev=EVALUATIONS_PER_PARAMETER * (n_nonlinear + 1))
+        return finish_projected(joint, _search(joint, params, fixed), fixed)
     return fit_model(joint.evaluate, dict(params), None, joint.y, weights=joint.weights, fixed=fixed,
                      tol=ENGINE_TOLERANCE, max_nfev=EVALUATIONS_PER_PARAMETER * (len(params) + 1))
 
@@ -319,7 +333,7 @@ def _canonical(joint: JointModel, fit: ModelFit) -> ModelFit:
                    stderr={n: fit.stderr[names[k]] for n, k in zip(names, order)})
 
 
-def _better(a: ModelFit, b: ModelFit) -> bool:
+def _better(a: ModelFit | ProjectedSearch, b: ModelFit | ProjectedSearch) -> bool:
     if a.converged != b.converged:
         return a.converged
     return a.rss < b.rss

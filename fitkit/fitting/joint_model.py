@@ -280,11 +280,13 @@ class JointModel:
         delta, step = prev
         d = self.data[i]
         final = getattr(self.form, "final_value", 1.0)
-        if self.measured_input:
-            return step * (self.form.unit_step(d.t_point + delta, **shape) - final)
-        nodes = self.form.unit_step(d.t_nodes + delta - previous_t0, **shape)
-        mean = np.einsum("ij,ij->i", nodes, d.node_weights) if d.node_weights.ndim == 2 else nodes @ d.node_weights
-        return step * (mean - final)
+        # The tail is the smooth late part of a step response, so each point's
+        # value at its mean time stands for its mean: in a bin of width w the
+        # error is w^2 s'' / 24, under 1 % of the (already small) tail for the
+        # widest bins (half a time unit), and the model costs one evaluation per
+        # point instead of three.
+        shift = delta if self.measured_input else delta - previous_t0
+        return step * (self.form.unit_step(d.t_point + shift, **shape) - final)
 
     def _kernel(self, shape: Mapping[str, float], dt: float) -> np.ndarray:
         """Superposition kernel for the longest edge, computed once per shape (the

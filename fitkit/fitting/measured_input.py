@@ -102,10 +102,10 @@ def superposition_kernel(unit_step: Callable[[np.ndarray], np.ndarray], n: int, 
     The response at sample t to an input moving linearly by d between samples
     j - 1 and j is d * k[t - j + 1]. Interval means by Simpson's rule.
     """
-    m = np.arange(1, n + 1, dtype=float)
-    s_end = unit_step(m * dt)
-    s_mid = unit_step((m - 0.5) * dt)
-    s_start = unit_step((m - 1.0) * dt)
+    m = np.arange(0, n + 1, dtype=float)
+    s_edges = unit_step(m * dt)  # s(0), s(dt), ..., s(n dt): each interval's start is the previous one's end
+    s_start, s_end = s_edges[:-1], s_edges[1:]
+    s_mid = unit_step((m[1:] - 0.5) * dt)
     return np.concatenate([[0.0], (s_start + 4.0 * s_mid + s_end) / 6.0])
 
 

@@ -18,6 +18,8 @@ over all parameters would.
 
 from __future__ import annotations
 
+import math
+from dataclasses import dataclass
 from typing import Callable, Mapping
 
 import numpy as np
@@ -104,35 +106,59 @@ def least_squares_search(residual: Callable[[np.ndarray], np.ndarray], theta0: n
     return theta, converged, str(message), int(info["nfev"])
 
 
-def fit_projected(joint: JointModel, start: Mapping[str, float], fixed: Mapping[str, float], *,
-                  tol: float, max_nfev: int) -> ModelFit:
-    """Levenberg-Marquardt over the nonlinear parameters only (levels projected out),
-    then the full-parameter :class:`ModelFit` at the optimum.
+@dataclass(frozen=True)
+class ProjectedSearch:
+    """Where one projected search ended: all parameter values (levels solved
+    linearly), the weighted residual sum of squares there, and MINPACK's verdict."""
+
+    values: dict[str, float]
+    rss: float
+    converged: bool
+    message: str
+    nfev: int
+
+
+def search_projected(joint: JointModel, start: Mapping[str, float], fixed: Mapping[str, float], *,
+                     tol: float, max_nfev: int) -> ProjectedSearch:
+    """Levenberg-Marquardt over the nonlinear parameters only (levels projected out).
 
     ``fixed`` may hold shape or delay values only (levels held fixed need the
-    full fit, :func:`.core.fit_model`).
+    full fit, :func:`.core.fit_model`). The Jacobian and covariance are left to
+    :func:`finish_projected`, so of several starts only the best pays for them.
     """
     names = tuple(n for n in nonlinear_names(joint) if n not in fixed)
     w = joint.weights
 
-    def full_values(theta: np.ndarray) -> dict[str, float]:
+    def values_and_model(theta: np.ndarray) -> tuple[dict[str, float], np.ndarray]:
         vals = dict(fixed)
         vals.update(zip(names, (float(v) for v in theta)))
-        vals.update(linear_levels(joint, vals))
-        return vals
+        levels, model = projected_model(joint, vals)
+        vals.update(levels)
+        return vals, model
 
     def residual(theta: np.ndarray) -> np.ndarray:
-        vals = dict(fixed)
-        vals.update(zip(names, (float(v) for v in theta)))
-        return w * (joint.y - projected_model(joint, vals)[1])
+        return w * (joint.y - values_and_model(theta)[1])
 
     theta0 = np.array([float(start.get(n, 0.0)) for n in names])
-    theta0, converged, message, nfev = least_squares_search(residual, theta0, joint.y.shape, tol=tol,
-                                                             max_nfev=max_nfev)
-    values = full_values(theta0)
+    theta, converged, message, nfev = least_squares_search(residual, theta0, joint.y.shape, tol=tol,
+                                                           max_nfev=max_nfev)
+    with np.errstate(all="ignore"):
+        values, model = values_and_model(theta)
+        rss = float(np.sum((w * (joint.y - model)) ** 2))
+    return ProjectedSearch(values, rss if math.isfinite(rss) else math.inf, converged, message, nfev)
+
+
+def finish_projected(joint: JointModel, search: ProjectedSearch, fixed: Mapping[str, float]) -> ModelFit:
+    """The full-parameter :class:`ModelFit` (Jacobian, covariance) where a search ended."""
     varied = tuple(n for n in joint.names if n not in fixed)
-    return model_fit_at(joint.evaluate, values, varied, None, joint.y, w, converged=converged,
-                        message=message, nfev=nfev)
+    return model_fit_at(joint.evaluate, search.values, varied, None, joint.y, joint.weights,
+                        converged=search.converged, message=search.message, nfev=search.nfev)
+
+
+def fit_projected(joint: JointModel, start: Mapping[str, float], fixed: Mapping[str, float], *,
+                  tol: float, max_nfev: int) -> ModelFit:
+    """:func:`search_projected` then :func:`finish_projected`."""
+    return finish_projected(joint, search_projected(joint, start, fixed, tol=tol, max_nfev=max_nfev), fixed)
 
 
 def can_project(joint: JointModel, fixed: Mapping[str, float]) -> bool:
