@@ -253,8 +253,8 @@ class BoundedRegion:
     beyond: standard errors from the centre to ``point`` (0 within the range).
     bound: (name, physical bound) the fit lies beyond, or None.
     touches: names of the bounds the region reaches.
-    determined: False when the covariance is unusable or a coordinate's
-        log standard error exceeds MAX_LOG_STDERR.
+    determined: False when the covariance is unusable (each quantity's own
+        range then decides whether it is determined, see :func:`region_ranges`).
     """
 
     keys: tuple[str, ...]
@@ -295,7 +295,10 @@ def bounded_region(ff: FormFit) -> BoundedRegion | None:
     if free:
         cov[np.ix_(free, free)] = cov_all[np.ix_(idx, idx)]
     usable = (not fit.singular) and bool(np.all(np.isfinite(cov))) and all(cov[i, i] > 0 for i in free)
-    determined = usable and all(math.sqrt(cov[i, i]) <= MAX_LOG_STDERR for i in free)
+    # Each reported quantity is judged by its own range (region_ranges): a
+    # poorly determined coordinate does not make every quantity undetermined
+    # (with tau2 << tau1, Q and tau0 are both loose while tau1 = tau0/Q is tight).
+    determined = usable
     if not usable:
         cov = np.zeros((2, 2))
     bounds = _internal_bounds(ff)
