@@ -58,8 +58,8 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         chosen_form = form if isinstance(form, Form) else get_form(form)
         ff = fit_form(segments, chosen_form, **kwargs)
         if not ff.converged:
-            raise FitError(f"the {chosen_form.name} fit did not converge ({ff.fit.message})", path=file or None,
-                           hint="try --model auto or another form")
+            raise FitError(f"the {chosen_form.name} fit did not converge ({ff.fit.message})"
+                           + _runaway_note(ff, dt), path=file or None, hint="try --model auto or another form")
         shape, notes = shape_estimates(ff, intervals)
         ok, why = admissibility(chosen_form, shape, dt)
         if not ok and "outside this form's range" in why:
@@ -219,6 +219,25 @@ def _fitted_segments(ff: FormFit) -> tuple[FittedSegment, ...]:
         out.append(FittedSegment(time=time, data=data, fitted=sc.volt_origin + piece * sc.volt_unit,
                                  edge_time=seg.edge_time, direction=seg.direction))
     return tuple(out)
+
+
+def _runaway_note(ff: FormFit, dt: float) -> str:
+    """Plain words when a time constant of a fit that did not converge was
+    running below the sample interval (a pole the data do not show), else ''."""
+    sc = ff.joint.scaling
+    shape = {p.name: sc.shape_from_log_scaled(p, ff.fit.values["log_" + p.name]) for p in ff.form.shape}
+    quantities = getattr(ff.form, "region_quantities", None)
+    if quantities is not None:
+        with np.errstate(all="ignore"):
+            shape.update({k: float(np.asarray(v)) for k, v in quantities(**shape).items()})
+    units = {**{p.name: p.unit for p in ff.form.shape}, **{p.name: p.unit for p in ff.form.reported_shape},
+             **dict(ff.form.derived_units)}
+    fast = [k for k, v in shape.items() if units.get(k) == "s" and k.startswith("tau") and math.isfinite(v)
+            and 0 < v < dt]
+    if not fast or not math.isfinite(dt):
+        return ""
+    return (f"; {fast[0]} was running below the sample interval ({shape[fast[0]]:.3g} s < {dt:.3g} s): "
+            "the data show no such time constant")
 
 
 def _sample_interval(segments: Sequence[StepSegment]) -> float:
