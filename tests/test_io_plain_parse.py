@@ -131,3 +131,34 @@ def test_large_block_goes_to_pandas(tmp_path, monkeypatch):
     cap = load_capture(path)
     assert calls == [] and cap.n_points == 3000
     np.testing.assert_array_equal(cap.channels[0].values, np.arange(3000) * 0.5)
+
+
+@pytest.mark.parametrize("text", [
+    "Time (s),A (V),B (mV)\n" + "".join(f"{k * 1e-6:.6e},{k % 7 - 3.5:.4f},{k % 5:.3f}\n" for k in range(3000)),
+    "x-axis,1\n\nsecond,Volt\n" + "".join(f"{k * 4e-8 - 1e-5:.5e},{(k % 50) / 25 - 1:.3f}\n" for k in range(2000)),
+    "t,v\r\n" + "".join(f"{k},{'' if k == 100 else k * 0.5}\r\n" for k in range(500)),  # CR LF, one empty cell
+])
+def test_reading_by_path_equals_reading_in_slices(tmp_path, monkeypatch, text):
+    """pandas on the path itself (fast) and the sliced reader (exact error lines) agree value for value."""
+    path = tmp_path / "c.csv"
+    path.write_bytes(text.encode())
+    monkeypatch.setattr(bulk, "PLAIN_PARTS", 0)  # not numpy's reader
+    by_path = _capture_arrays(path)
+    monkeypatch.setattr(bulk, "_read_whole_by_path", lambda *a, **k: None)
+    sliced = _capture_arrays(path)
+    assert by_path[1:] == sliced[1:]
+    for a, b in zip(by_path[0], sliced[0]):
+        np.testing.assert_array_equal(a, b)
+
+
+def test_reading_by_path_is_declined_when_the_first_row_does_not_match(tmp_path):
+    # an offset that lands on the header instead of the first data line: the
+    # check against the first line parsed on its own refuses the result
+    path = tmp_path / "c.csv"
+    path.write_text("t,v\n" + "".join(f"{k},{k * 0.5}\n" for k in range(50)))
+    kwargs = bulk.read_options(2, [0, 1], ",", ".", None)
+    assert bulk._read_whole_by_path(str(path), encoding="utf-8", offset=0, columns=[0, 1], kwargs=kwargs,
+                                    delimiter=",", decimal=".") is None
+    got = bulk._read_whole_by_path(str(path), encoding="utf-8", offset=4, columns=[0, 1], kwargs=kwargs,
+                                   delimiter=",", decimal=".")
+    np.testing.assert_array_equal(got[1], np.arange(50) * 0.5)

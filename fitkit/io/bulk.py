@@ -1,26 +1,33 @@
 """Parse the numeric block of a text capture: numpy for plain blocks, else pandas.
 
-The block starts at a known byte offset (found by sniffing). A block of up
-to PLAIN_PARTS parts in which every cell is a plain decimal number (the
-usual oscilloscope export) is read by ``numpy.loadtxt`` in one pass, so a
-`fitkit fit` of such a file never imports pandas (about 0.2 s of start-up).
-Anything else (empty or quoted cells, text, a comment character, a decimal
-comma, runs of whitespace as separator, a larger file) goes to pandas' C
-parser. Large files are cut at line boundaries into parts of a few MB parsed
-on threads (the C tokenizer releases the GIL), which keeps the speed of
-pandas' own parallel reader (pandas >= 3 reads local paths in parallel)
-while holding less memory: each part streams from its own file handle and
-only the float arrays are kept. Both readers give the same float64 values
-(correctly rounded decimal conversion; checked in tests/test_io_plain_parse.py).
-Returns float64 arrays per file column; cells that are not numbers come back
-as NaN for the caller to judge.
+The block starts at a known byte offset (found by sniffing). Three readers,
+chosen by speed and memory (figures in BENCHMARKS.md, "Import"):
+
+* a block of up to PLAIN_PARTS parts in which every cell is a plain decimal
+  number (the usual oscilloscope export) is read by ``numpy.loadtxt`` while
+  pandas is not yet loaded, so a `fitkit fit` of such a file never imports
+  pandas (about 0.3 s of start-up); numpy's reader is single-threaded, so
+  once pandas is loaded its reader is the faster one;
+* otherwise a block up to WHOLE_READ_MAX_BYTES goes to one
+  ``pandas.read_csv`` on the path itself (pandas' parallel C reader), trusted
+  only when its first row equals the first data line parsed on its own;
+* larger blocks, and anything the first two decline, are cut at line
+  boundaries into parts of a few MB parsed on threads, each streaming from
+  its own file handle; this holds about 2x the arrays (pandas' own reader
+  peaks at 3.6x) and names the file line of a bad row.
+
+All give the same float64 values (correctly rounded decimal conversion;
+checked in tests/test_io_plain_parse.py). Returns float64 arrays per file
+column; cells that are not numbers come back as NaN for the caller to judge.
 """
 
 from __future__ import annotations
 
 import io
+import math
 import os
 import re
+import sys
 import warnings as pywarnings
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
@@ -44,6 +51,12 @@ MAX_WORKERS = 4
 #: (measured here: numpy's reader about 0.25 s per 20 MB on one core, pandas'
 #: about 0.13 s on two cores plus about 0.2 s to import it).
 PLAIN_PARTS = 8
+#: Blocks up to this size go to one pandas.read_csv on the path (pandas' own
+#: parallel reader: 1.2x its bare time on a 33 MB file, but a transient peak of
+#: 3.6x the arrays, as pandas alone has); larger ones are read in slices, which
+#: holds about 2x the arrays and so keeps huge captures within memory
+#: (benchmarks/bench_import.py, benchmarks/bench_speed.py).
+WHOLE_READ_MAX_BYTES = 64 * 1024 * 1024
 #: Separators numpy's reader splits exactly as pandas does (not runs of whitespace).
 PLAIN_DELIMITERS = (",", ";", "\t")
 #: File name endings numpy.loadtxt would decompress: such files never take the plain path.
@@ -146,7 +159,11 @@ def parse_numeric_block(path: str, *, encoding: str, offset: int, first_line: in
     line of a row the parser cannot split (more fields than expected).
     """
     size = os.path.getsize(path)
-    if size - offset <= PLAIN_PARTS * PART_BYTES:
+    # numpy's reader is single-threaded (about 165 MB/s here) and pandas' about
+    # 600 MB/s, but importing pandas costs about 0.3 s: numpy's reader wins for a
+    # block of up to PLAIN_PARTS parts only while pandas is not loaded yet (a
+    # fresh `fitkit fit`); measured in benchmarks/bench_import.py and bench_speed.py.
+    if size - offset <= PLAIN_PARTS * PART_BYTES and "pandas" not in sys.modules:
         plain = parse_plain_block(path, encoding=encoding, offset=offset, n_fields=n_fields,
                                   columns=columns, delimiter=delimiter, decimal=decimal, comment=comment)
         if plain is not None:
@@ -155,6 +172,11 @@ def parse_numeric_block(path: str, *, encoding: str, offset: int, first_line: in
 
     kwargs = read_options(n_fields, columns, delimiter, decimal, comment)
     wide = encoding.startswith("utf-16")
+    if not wide and not path.lower().endswith(_COMPRESSED) and size - offset <= WHOLE_READ_MAX_BYTES:
+        whole = _read_whole_by_path(path, encoding=encoding, offset=offset, columns=columns, kwargs=kwargs,
+                                    delimiter=delimiter, decimal=decimal)
+        if whole is not None:
+            return whole
     workers = min(MAX_WORKERS, _cpu_count())
     parts = min(MAX_PARTS, (size - offset) // PART_BYTES)
     if wide or parts < 2 or workers < 2:
@@ -193,6 +215,45 @@ def parse_numeric_block(path: str, *, encoding: str, offset: int, first_line: in
     out = {}
     for j in columns:
         out[j] = np.concatenate([p.pop(j) for p in pieces])
+    return out
+
+
+def _read_whole_by_path(path: str, *, encoding: str, offset: int, columns: list[int], kwargs: dict,
+                        delimiter: str, decimal: str) -> dict[int, np.ndarray] | None:
+    """The block read by one pandas.read_csv call on the path itself (pandas
+    reads a path in C, far faster than through a Python file object: 0.11 s
+    against 0.17 s for 1M rows, measured), skipping the header lines; or None
+    when that cannot be trusted or fails (the caller then reads in slices and
+    reports a bad row by its file line).
+
+    Trusted only when the first parsed row equals the first data line parsed
+    on its own, so a miscounted header can never shift the data.
+    """
+    import pandas as pd
+
+    skip = _lines_before(path, offset, encoding)
+    if skip is None:
+        return None
+    with open(path, "rb") as fh:
+        fh.seek(offset)
+        first = fh.readline().decode(encoding, errors="replace").strip()
+    sep = None if delimiter == " " else delimiter
+    cells = first.split(sep)
+    try:
+        expected = [float(cells[j].strip().replace(decimal, ".")) for j in columns]
+    except (ValueError, IndexError):
+        return None
+    try:
+        with pywarnings.catch_warnings():
+            pywarnings.simplefilter("ignore")
+            frame = pd.read_csv(path, skiprows=skip, encoding=encoding, encoding_errors="replace", **kwargs)
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError, IndexError, OverflowError,
+            UnicodeError):
+        return None
+    out = {j: as_float(frame[j]) for j in columns}
+    if not out or any(v.size == 0 or not (v[0] == e or (np.isnan(v[0]) and math.isnan(e)))
+                      for v, e in zip((out[j] for j in columns), expected)):
+        return None
     return out
 
 
