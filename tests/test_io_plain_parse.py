@@ -112,6 +112,7 @@ def _capture_arrays(path):
 def test_capture_is_the_same_with_either_reader(tmp_path, monkeypatch, text):
     path = tmp_path / "c.csv"
     path.write_text(text)
+    monkeypatch.setattr(bulk, "_pandas_loaded", lambda: False)  # as in a fresh `fitkit fit`
     plain = _capture_arrays(path)
     monkeypatch.setattr(bulk, "PLAIN_PARTS", 0)  # forces pandas' reader
     ref = _capture_arrays(path)

@@ -150,6 +150,11 @@ def as_float(series: pd.Series) -> np.ndarray:
     return pd.to_numeric(text, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
 
 
+def _pandas_loaded() -> bool:
+    """True when pandas is already imported in this process (its reader is then the faster)."""
+    return "pandas" in sys.modules
+
+
 def parse_numeric_block(path: str, *, encoding: str, offset: int, first_line: int, n_fields: int,
                         columns: list[int], delimiter: str, decimal: str,
                         comment: str | None) -> dict[int, np.ndarray]:
@@ -163,7 +168,7 @@ def parse_numeric_block(path: str, *, encoding: str, offset: int, first_line: in
     # 600 MB/s, but importing pandas costs about 0.3 s: numpy's reader wins for a
     # block of up to PLAIN_PARTS parts only while pandas is not loaded yet (a
     # fresh `fitkit fit`); measured in benchmarks/bench_import.py and bench_speed.py.
-    if size - offset <= PLAIN_PARTS * PART_BYTES and "pandas" not in sys.modules:
+    if size - offset <= PLAIN_PARTS * PART_BYTES and not _pandas_loaded():
         plain = parse_plain_block(path, encoding=encoding, offset=offset, n_fields=n_fields,
                                   columns=columns, delimiter=delimiter, decimal=decimal, comment=comment)
         if plain is not None:
