@@ -17,7 +17,7 @@ from fitkit.conditioning.segment import StepSegment
 from fitkit.fitting.core import fit_model
 from fitkit.fitting.engine import fit_form, make_scaling
 from fitkit.fitting.joint_model import JointModel
-from fitkit.fitting.projection import fit_projected, nonlinear_names
+from fitkit.fitting.projection import finish_projected, nonlinear_names, search_projected
 from fitkit.fitting.uncertainty import autoregressive_autocorrelation, residual_autocorrelation
 from fitkit.forms import FORMS
 
@@ -52,7 +52,7 @@ def test_projected_fit_matches_the_full_fit(with_input):
     if not with_input:
         for i in range(2):
             start[f"step_{i}"] = 1.0 if i == 0 else -1.0
-    projected = fit_projected(joint, start, {}, tol=1e-12, max_nfev=2000)
+    projected = finish_projected(joint, search_projected(joint, start, {}, tol=1e-12, max_nfev=2000), {})
     full = fit_model(joint.evaluate, start, None, joint.y, weights=joint.weights, tol=1e-12)
     assert projected.converged and full.converged
     assert projected.names == full.names

@@ -259,3 +259,36 @@ def test_the_objective_seen_after_the_fit_is_the_one_minimised():
         # a minimum: both sides rise, by nearly the same amount (no linear term)
         assert up > 0 and down > 0, name
         assert up == pytest.approx(down, rel=0.2), name
+
+
+def test_whitened_levels_carry_the_previous_edges_tail():
+    # Two consecutive edges ten time constants apart (a square wave): the second
+    # window starts while the first response is still settling. The whitened
+    # projected model must be the whitened full model (JointModel.evaluate, which
+    # holds that tail), or the whitened search minimises a different objective.
+    # Simulator: the first-order response 1 - exp(-t/tau) (any circuit text).
+    from fitkit.conditioning import analyse_steps
+    from fitkit.capture import Capture
+    from fitkit.fitting.joint_model import JointModel
+    from fitkit.fitting.engine import make_scaling
+    from fitkit.fitting.whitening import _whitened_levels
+
+    tau, dt = 1e-3, 2.5e-5
+    t = np.arange(0, 0.05, dt)
+    edges = [0.01, 0.02, 0.03, 0.04]
+    y = np.zeros_like(t)
+    for k, e in enumerate(edges):
+        y += (-1) ** k * np.where(t > e, 1 - np.exp(-np.clip(t - e, 0, None) / tau), 0.0)
+    y += np.random.default_rng(2).normal(0, 1e-3, t.size)
+    segments = analyse_steps(Capture.from_arrays(t, {"vout": y}, path="square.csv")).segments
+    form = get_form("first-order")
+    joint = JointModel(form, segments, make_scaling(segments, form, False), measured_input=False, free_t0=True)
+    assert any(p is not None for p in joint.previous_steps)
+    values = {"log_tau": 0.3, **{f"t0_{i}": -0.2 for i in range(len(segments))}}
+    rho = 0.8 ** np.arange(10)
+    whitener = Whitener(autoregressive_model(rho, 10**6, max_order=3), rho[1])
+    w, bounds = joint.weights, list(joint.bounds)
+    levels, model_w = _whitened_levels(joint, values, whitener, whitener.apply(w * joint.y, bounds),
+                                       whitener.apply(w, bounds))
+    full = whitener.apply(w * joint.evaluate(None, **values, **levels), bounds)
+    np.testing.assert_allclose(model_w, full, rtol=0, atol=1e-12)

@@ -159,6 +159,18 @@ def _equilibrate(G: np.ndarray, C: np.ndarray, w0: float) -> tuple[np.ndarray, n
     return rows, cols
 
 
+def _circle_matrices(system: MnaSystem, w0: float, n_points: int
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(z, rows, cols, A): the points z_j = exp(2 pi i (j + 1/2) / M), the row and
+    column scalings of :func:`_equilibrate`, and the equilibrated system matrices
+    A_j = rows (G + w0 z_j C) cols, shape (M, n, n)."""
+    z = np.exp(2j * np.pi * (np.arange(n_points) + 0.5) / n_points)
+    rows, cols = _equilibrate(system.G, system.C, w0)
+    Gs = rows[:, None] * system.G * cols[None, :]
+    Cs = rows[:, None] * system.C * cols[None, :] * w0
+    return z, rows, cols, Gs[None, :, :] + z[:, None, None] * Cs[None, :, :]
+
+
 def sample_on_circle(system: MnaSystem, w0: float, n_points: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Evaluate at z_j = exp(2 pi i (j + 1/2) / M), s = w0 z_j.
 
@@ -169,11 +181,7 @@ def sample_on_circle(system: MnaSystem, w0: float, n_points: int) -> tuple[np.nd
     scaled by a common real factor, and H the transfer function at s. A point
     where the matrix is singular gives D = 0 and H = nan (the caller decides).
     """
-    z = np.exp(2j * np.pi * (np.arange(n_points) + 0.5) / n_points)
-    rows, cols = _equilibrate(system.G, system.C, w0)
-    Gs = rows[:, None] * system.G * cols[None, :]
-    Cs = rows[:, None] * system.C * cols[None, :] * w0
-    A = Gs[None, :, :] + z[:, None, None] * Cs[None, :, :]
+    z, rows, cols, A = _circle_matrices(system, w0, n_points)
     sign, logabs = np.linalg.slogdet(A)
     finite = np.isfinite(logabs)
     ref = logabs[finite].max() if finite.any() else 0.0
@@ -198,11 +206,7 @@ def unnormalised_polynomials(system: MnaSystem, w0: float, n_points: int,
     capacitance C and inductance L: the property circuits.parametric builds on.
     Returns (num, den, log_reference); raises ValueError when the system is singular.
     """
-    z = np.exp(2j * np.pi * (np.arange(n_points) + 0.5) / n_points)
-    rows, cols = _equilibrate(system.G, system.C, w0)
-    Gs = rows[:, None] * system.G * cols[None, :]
-    Cs = rows[:, None] * system.C * cols[None, :] * w0
-    A = Gs[None, :, :] + z[:, None, None] * Cs[None, :, :]
+    z, rows, cols, A = _circle_matrices(system, w0, n_points)
     sign, logabs = np.linalg.slogdet(A)
     if not np.all(np.isfinite(logabs)):
         raise ValueError("singular")

@@ -275,7 +275,7 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
             and out_noise.rms > 0.1 * levels.amplitude:
         flags.append(f"the output noise ({format_value(out_noise.rms, out_ch.unit)} rms) is more than a tenth "
                      "of the step; averaging several edges (average option) would help")
-    if out_noise.quantisation_step is not None and out_noise.method.startswith("quantisation noise floor"):
+    if out_noise.below_one_code:
         # with noise well under a code the rounding error follows the signal
         # instead of averaging out (Widrow & Kollar, Quantization Noise, CUP
         # 2008, ch. 4, from memory: the additive-noise model needs noise of about a code or more)

@@ -46,11 +46,14 @@ class NoiseEstimate:
     rms: estimated noise standard deviation (V).
     quantisation_step: step between codes (V), or None when not visibly quantised.
     method: plain words on how ``rms`` was obtained.
+    below_one_code: the measured noise was under the quantisation floor
+        q / sqrt(12), so ``rms`` is that floor (rounding is then not random).
     """
 
     rms: float
     quantisation_step: float | None
     method: str
+    below_one_code: bool = False
 
     def to_dict(self) -> dict[str, Any]:
         return {"rms": json_number(self.rms), "quantisation_step": json_number(self.quantisation_step),
@@ -117,8 +120,7 @@ def estimate_noise(values: np.ndarray) -> NoiseEstimate:
     """Noise standard deviation and quantisation step of a trace (both V)."""
     q = quantisation_step(values)
     sigma = noise_from_differences(values)
-    method = "median absolute deviation of first differences"
     if q is not None and not (sigma >= q / math.sqrt(12.0)):
-        sigma = q / math.sqrt(12.0)
-        method = "quantisation noise floor (step / sqrt 12): the noise is below one code"
-    return NoiseEstimate(sigma, q, method)
+        return NoiseEstimate(q / math.sqrt(12.0), q,
+                             "quantisation noise floor (step / sqrt 12): the noise is below one code", True)
+    return NoiseEstimate(sigma, q, "median absolute deviation of first differences")

@@ -232,8 +232,8 @@ class JointModel:
                 # inside a bin (tests/test_fitting_recovery.py).
                 y[1:-1] -= (y[2:] - 2.0 * y[1:-1] + y[:-2]) / 12.0
             return y
-        nodes = self.form.unit_step(d.t_nodes - t0, **shape)
-        return np.einsum("ij,ij->i", nodes, d.node_weights) if d.node_weights.ndim == 2 else nodes @ d.node_weights
+        # weights (k,) or (n, k): either broadcasts against the (n, k) node values
+        return (self.form.unit_step(d.t_nodes - t0, **shape) * d.node_weights).sum(axis=1)
 
     # -- the previous edge's tail ------------------------------------------------
     def _previous_step(self, i: int) -> tuple[float, float] | None:
@@ -268,12 +268,13 @@ class JointModel:
         delta = (seg.edge_time - prev.edge_time) / sc.time_unit
         return (delta, step) if math.isfinite(step) and step != 0.0 and delta > 0 else None
 
-    def previous_tail(self, i: int, shape: Mapping[str, float], previous_t0: float = 0.0) -> np.ndarray | float:
+    def previous_tail(self, i: int, shape: Mapping[str, float], values: Mapping[str, float]) -> np.ndarray | float:
         """The previous edge's still-settling response over edge i's points (see
         :meth:`_previous_step`): scaled volts in ideal-step mode, normalised input
         units (times the gain) in measured-input mode; 0.0 when there is none.
-        ``previous_t0``: the previous edge's fitted delay (scaled) from its
-        reported time, when delays are free."""
+        ``values``: the internal parameter values, for the previous edge's fitted
+        delay (scaled, from its reported time) when delays are free."""
+        previous_t0 = values.get(f"t0_{i - 1}", 0.0)
         prev = self.previous_steps[i]
         if prev is None:
             return 0.0
@@ -305,7 +306,7 @@ class JointModel:
         shape = self.shape_scaled(values)
         parts = []
         for i in range(len(self.data)):
-            tail = self.previous_tail(i, shape, values.get(f"t0_{i - 1}", 0.0))
+            tail = self.previous_tail(i, shape, values)
             if self.measured_input:
                 parts.append(values[f"baseline_{i}"] + values["gain"] * (self.unit_response(i, shape) + tail))
             else:

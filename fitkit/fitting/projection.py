@@ -51,7 +51,7 @@ def projected_model(joint: JointModel, values: Mapping[str, float]) -> tuple[dic
         parts = []
         for i, d in enumerate(joint.data):
             w2 = d.counts.astype(float)
-            f = joint.unit_response(i, shape) + joint.previous_tail(i, shape)
+            f = joint.unit_response(i, shape) + joint.previous_tail(i, shape, values)
             fm, ym = float(w2 @ f) / w2.sum(), float(w2 @ d.y) / w2.sum()
             fc = f - fm
             sxy += float((w2 * fc) @ (d.y - ym))
@@ -67,7 +67,7 @@ def projected_model(joint: JointModel, values: Mapping[str, float]) -> tuple[dic
     for i, d in enumerate(joint.data):
         w2 = d.counts.astype(float)
         f = joint.unit_response(i, shape, values.get(f"t0_{i}", 0.0))
-        tail = joint.previous_tail(i, shape, values.get(f"t0_{i - 1}", 0.0))
+        tail = joint.previous_tail(i, shape, values)
         target = d.y - tail
         fm, ym = float(w2 @ f) / w2.sum(), float(w2 @ target) / w2.sum()
         fc = f - fm
@@ -153,12 +153,6 @@ def finish_projected(joint: JointModel, search: ProjectedSearch, fixed: Mapping[
     varied = tuple(n for n in joint.names if n not in fixed)
     return model_fit_at(joint.evaluate, search.values, varied, None, joint.y, joint.weights,
                         converged=search.converged, message=search.message, nfev=search.nfev)
-
-
-def fit_projected(joint: JointModel, start: Mapping[str, float], fixed: Mapping[str, float], *,
-                  tol: float, max_nfev: int) -> ModelFit:
-    """:func:`search_projected` then :func:`finish_projected`."""
-    return finish_projected(joint, search_projected(joint, start, fixed, tol=tol, max_nfev=max_nfev), fixed)
 
 
 def can_project(joint: JointModel, fixed: Mapping[str, float]) -> bool:

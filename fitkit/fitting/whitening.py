@@ -247,11 +247,14 @@ def _whitened_levels(joint: JointModel, values: Mapping[str, float], whitener: W
     model_w = np.empty_like(y_w)
     for i in range(len(joint.data)):
         lo, hi = joint.bounds[i], joint.bounds[i + 1]
-        f = joint.unit_response(i, shape, values.get(f"t0_{i}", 0.0)) * joint.weights[lo:hi]
+        w = joint.weights[lo:hi]
+        f = joint.unit_response(i, shape, values.get(f"t0_{i}", 0.0)) * w
+        # the previous edge's tail is a known part of the model (as in projection.projected_model)
+        tail_w = whitener.apply(np.broadcast_to(joint.previous_tail(i, shape, values), w.shape) * w, [0, hi - lo])
         cols = np.column_stack([ones_w[lo:hi], whitener.apply(f, [0, hi - lo])])
-        coef, *_ = np.linalg.lstsq(cols, y_w[lo:hi], rcond=None)
+        coef, *_ = np.linalg.lstsq(cols, y_w[lo:hi] - tail_w, rcond=None)
         out[f"baseline_{i}"], out[f"step_{i}"] = float(coef[0]), float(coef[1])
-        model_w[lo:hi] = cols @ coef
+        model_w[lo:hi] = cols @ coef + tail_w
     return out, model_w
 
 

@@ -14,12 +14,13 @@ from pathlib import Path
 from typing import Iterable
 
 from ..capture import Capture
-from ..errors import CaptureError, OptionError
+from ..errors import OptionError
 from ..units import parse_value
 from .binary import read_npz, read_parquet, save_npz, save_parquet
 from .checks import robust_noise_sigma
 from .delimited import read_delimited
 from .join import INPUT_KEY, OUTPUT_KEY, join_input_output
+from .sniff import read_head
 
 TEXT_SUFFIXES = (".csv", ".txt", ".tsv", ".dat", ".asc", ".prn")
 
@@ -100,15 +101,7 @@ def _load_one(path: Path, options: dict) -> Capture:
 
 def _file_kind(path: Path) -> str:
     """'npz', 'parquet' or 'text', from the first bytes (the suffix only breaks ties)."""
-    try:
-        with open(path, "rb") as fh:
-            head = fh.read(4)
-    except FileNotFoundError:
-        raise CaptureError("file not found", path=str(path), hint="check the file name") from None
-    except IsADirectoryError:
-        raise CaptureError("is a directory, not a capture file", path=str(path)) from None
-    except OSError as exc:
-        raise CaptureError(f"cannot read the file ({exc.strerror})", path=str(path)) from None
+    head = read_head(path, 4)
     suffix = path.suffix.lower()
     if head.startswith(b"PK") or suffix == ".npz":
         return "npz"

@@ -94,22 +94,30 @@ class TextShape:
 
 # -- reading the sample -------------------------------------------------------
 
-def read_sample(path: str | Path, *, encoding: str | None = None) -> TextSample:
-    """Read and decode the first SAMPLE_BYTES of ``path`` (never writes).
+def read_head(path: str | Path, nbytes: int) -> bytes:
+    """The first ``nbytes`` bytes of a file (never writes).
 
-    Raises CaptureError for a missing, empty or binary file.
+    Raises CaptureError, naming the file, when it is missing, a directory or unreadable.
     """
-    p = Path(path)
     try:
-        size = p.stat().st_size
-        with open(p, "rb") as fh:
-            raw = fh.read(SAMPLE_BYTES)
+        with open(path, "rb") as fh:
+            return fh.read(nbytes)
     except FileNotFoundError:
         raise CaptureError("file not found", path=str(path), hint="check the file name") from None
     except IsADirectoryError:
         raise CaptureError("is a directory, not a capture file", path=str(path)) from None
     except OSError as exc:
         raise CaptureError(f"cannot read the file ({exc.strerror})", path=str(path)) from None
+
+
+def read_sample(path: str | Path, *, encoding: str | None = None) -> TextSample:
+    """Read and decode the first SAMPLE_BYTES of ``path`` (never writes).
+
+    Raises CaptureError for a missing, empty or binary file.
+    """
+    p = Path(path)
+    raw = read_head(p, SAMPLE_BYTES)
+    size = p.stat().st_size
     if size == 0 or not raw.strip():
         raise CaptureError("the file is empty", path=str(path),
                            hint="export the capture again; the file holds no data")
