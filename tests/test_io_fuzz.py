@@ -14,7 +14,7 @@ import tempfile
 from pathlib import Path
 
 import numpy as np
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from fitkit.capture import Capture
@@ -33,7 +33,10 @@ for _writer in layouts.ALL_WRITERS + [layouts.write_no_header]:
     _SEEDS.append(_path.read_bytes()[:3000])  # keep inputs small: speed
 _SEEDS.append((Path(__file__).parent / "fixtures" / "captures" / "semicolon_decimal_comma.csv").read_bytes())
 
-SETTINGS = dict(deadline=None, suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+# derandomize: the same examples on every run, so the suite never flakes; a
+# failure found by a randomised run is pinned below with @example.
+SETTINGS = dict(deadline=None, derandomize=True,
+                suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
 _counter = iter(range(10**9))
 OUTCOMES = {"capture": 0, "error": 0}
 
@@ -195,6 +198,7 @@ _BINARY_SEEDS = _binary_seeds()
 @settings(max_examples=300, **SETTINGS)
 @given(st.sampled_from(range(len(_BINARY_SEEDS))), st.floats(0.0, 1.0),
        st.lists(st.tuples(st.floats(0.0, 1.0), st.integers(0, 255)), max_size=4))
+@example(seed=1, keep=1.0, flips=[(0.611328125, 128)])  # a Parquet column name no longer UTF-8 (found 2026-12-02)
 def test_truncated_and_mutated_npz_and_parquet(seed, keep, flips):
     data, suffix = _BINARY_SEEDS[seed]
     data = bytearray(data[: max(1, int(keep * len(data)))] if keep < 0.95 else data)

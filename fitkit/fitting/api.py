@@ -146,6 +146,8 @@ def _build(cand: Candidate, scores: tuple, reason: str, warnings: list[str], fil
     params = dict(shape)
     params.update(level_estimates(ff, 0))
     derived = derived_estimates(ff) if with_derived else {}
+    # a reported parameter listed among the derived quantities too is one estimate
+    derived.update({name: shape[name] for name in derived if name in shape})
     _add_gain(ff, params, derived)
     for name, est in list(params.items()) + list(derived.items()):
         if not est.determined:

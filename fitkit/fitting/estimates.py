@@ -26,6 +26,7 @@ from dataclasses import dataclass
 from ..forms.base import ParamSpec
 from ..results import Estimate
 from .engine import FormFit
+from .region_profile import profile_interval, profile_wanted
 from .uncertainty import MAX_LOG_STDERR, delta_method, log_interval, objective_is_asymmetric
 
 #: Derived quantities that may be zero or negative (linear intervals).
@@ -44,10 +45,11 @@ def shape_estimates(ff: FormFit, intervals: str = "auto") -> tuple[dict[str, Est
 
     For a form with ``reported_shape`` these are the reported parameters (e.g.
     tau1 and tau2) with intervals from the confidence region of the fit
-    coordinates (:func:`region_estimates`; ``intervals`` does not apply).
+    coordinates, or their profile likelihood where they are loosely determined
+    (:func:`region_estimates`; "covariance" skips the profile).
     """
     if getattr(ff.form, "region_quantities", None) is not None and getattr(ff.form, "reported_shape", ()):
-        return region_estimates(ff)
+        return region_estimates(ff, profile=intervals != "covariance")
     fit, sc, cov = ff.fit, ff.joint.scaling, ff.correction.covariance
     names = list(fit.names)
     theta = np.array([fit.values[n] for n in names])
@@ -409,14 +411,23 @@ def region_ranges(ff: FormFit, region: BoundedRegion) -> dict[str, Estimate]:
     return out
 
 
-def region_estimates(ff: FormFit) -> tuple[dict[str, Estimate], list[str]]:
+def region_estimates(ff: FormFit, profile: bool = True) -> tuple[dict[str, Estimate], list[str]]:
     """The reported parameters (``Form.reported_shape``) of a form fitted in internal
-    coordinates, from the confidence region, and plain-words warnings."""
+    coordinates, from the confidence region, and plain-words warnings.
+
+    profile: replace the region's range of a loosely determined parameter by its
+    profile-likelihood interval (:mod:`.region_profile`); False for the quick
+    look model selection takes at each candidate.
+    """
     region = bounded_region(ff)
     assert region is not None
     ranged = region_ranges(ff, region)
     out = {p.name: ranged[p.name] for p in ff.form.reported_shape}
     warnings: list[str] = []
+    if profile and region.beyond <= OUTSIDE_RANGE_SIGMAS:
+        at = {name: est.value for name, est in out.items()}
+        for name, est in list(out.items()):
+            out[name] = _profiled(ff, est, at, region.bound is not None)
     reported = " = ".join(p.name for p in ff.form.reported_shape)
     if region.beyond > OUTSIDE_RANGE_SIGMAS:
         pass  # reported as not determined, outside the form's range (selection and the caller say so)
@@ -429,12 +440,48 @@ def region_estimates(ff: FormFit) -> tuple[dict[str, Estimate], list[str]]:
                         f"(equal poles), so {reported} is reported; f0, Q and tau0 are measured, and the "
                         f"intervals of {' and '.join(p.name for p in ff.form.reported_shape)} cover every "
                         "pair the data allow")
-    elif region.touches and all(e.determined for e in out.values()):
+    elif region.touches and all(e.determined for e in out.values()) and _overlap(out):
         spec = next(p for p in region.specs if p.name == region.touches[0])
         limit = spec.upper if spec.upper is not None else spec.lower
         warnings.append(f"the data cannot rule out equal poles: the 95 % interval of {spec.name} reaches "
                         f"{limit:g}, so the intervals of {' and '.join(out)} overlap")
+    for est in out.values():
+        if est.ci95 is not None and est.ci95[0] == 0.0:
+            warnings.append(f"the data cannot rule out a single pole: the 95 % interval of {est.name} reaches 0 "
+                            "(a first-order fit may describe this response as well)")
     return out, warnings
+
+
+def _overlap(estimates: Mapping[str, Estimate]) -> bool:
+    """True when the 95 % intervals of the reported pair overlap (or one is missing)."""
+    slow, fast = estimates.values()
+    if slow.ci95 is None or fast.ci95 is None:
+        return True
+    return fast.ci95[1] >= slow.ci95[0]
+
+
+def _profiled(ff: FormFit, est: Estimate, reported: Mapping[str, float], at_bound: bool) -> Estimate:
+    """``est`` with its profile-likelihood interval where the region's range is
+    not to be trusted (a loosely determined quantity, see :mod:`.region_profile`)."""
+    log_se = None
+    if est.determined and est.ci95 is not None and est.ci95[0] > 0:
+        log_se = math.log(est.ci95[1] / est.ci95[0]) / (2.0 * ff.tq)
+    if not profile_wanted(log_se, est.determined):
+        return est
+    half = ff.tq * log_se if log_se is not None else 0.5
+    prof = profile_interval(ff, est.name, reported, half, at_bound)
+    if prof is None or not prof.closed or not prof.low <= est.value <= prof.high:
+        return est
+    widen = float(max((ff.correction.widening[list(ff.fit.names).index(k)]
+                       for k in ff.fit.names if k.startswith("log_")), default=1.0))
+    pair = " and ".join(p.name for p in ff.form.reported_shape)
+    if prof.one_sided:
+        method = _method(widen, f"profile likelihood over {pair}; the data allow {est.name} down to 0 "
+                                "(a single pole)", ff.joint.measured_input)
+        return Estimate(est.name, est.value, None, (0.0, prof.high), est.unit, method, True)
+    s_log = math.log(prof.high / prof.low) / (2.0 * ff.tq)
+    method = _method(widen, f"profile likelihood over {pair}", ff.joint.measured_input)
+    return Estimate(est.name, est.value, est.value * s_log, (prof.low, prof.high), est.unit, method, True)
 
 
 def beyond_range_sigmas(ff: FormFit) -> float:

@@ -99,6 +99,11 @@ class Form:
         the fit coordinates within the form's bounds (fitkit.fitting.estimates),
         honest where the map is singular. Names it also gives that are among
         ``derived`` get the same treatment. None for ordinary forms.
+    fit_coordinates: f(**reported_shape values) -> {shape name: value}, the
+        map from the reported parameters back to the fit coordinates, used to
+        follow a reported parameter's profile likelihood
+        (fitkit.fitting.region_profile). The first reported parameter is the
+        larger of the pair. None for ordinary forms.
     """
 
     name: str
@@ -115,6 +120,7 @@ class Form:
     canonical: Callable[[Mapping[str, float]], dict[str, float]] | None = None
     reported_shape: tuple[ParamSpec, ...] = ()
     region_quantities: Callable[..., Mapping[str, np.ndarray]] | None = None
+    fit_coordinates: Callable[..., Mapping[str, float]] | None = None
 
     def canonical_shape(self, shape: Mapping[str, float]) -> dict[str, float]:
         """The shape with symmetric parameters put in the form's canonical order."""

@@ -195,4 +195,5 @@ TWO_REAL_POLE = Form(
     reported_shape=(ParamSpec("tau1", "s", "time", "slower time constant"),
                     ParamSpec("tau2", "s", "time", "faster time constant")),
     region_quantities=region_quantities,
+    fit_coordinates=fit_coordinates,
 )

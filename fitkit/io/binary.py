@@ -85,6 +85,7 @@ def read_parquet(path: str | Path, *, sample_interval: float | None = None,
     path = str(path)
     try:
         table = pq.read_table(path)
+        names = table.column_names  # decodes the stored names (a corrupt one raises here)
     except FileNotFoundError:
         raise CaptureError("file not found", path=path, hint="check the file name") from None
     except (OSError, pa.ArrowException, ValueError) as exc:
@@ -94,7 +95,7 @@ def read_parquet(path: str | Path, *, sample_interval: float | None = None,
     units = _json(schema_meta.get(_UNITS_KEY.encode()))
     meta = _json(schema_meta.get(_META_KEY.encode()))
     arrays = {}
-    for name in table.column_names:
+    for name in names:
         try:
             arrays[name] = table.column(name).to_numpy(zero_copy_only=False)
         except (pa.ArrowException, ValueError):
