@@ -17,7 +17,9 @@ Grid (one factor at a time around a base condition, for each of 7 responses):
 * variations: SNR 20 / 60 dB; 5 / 40 samples per fastest time constant;
   record of 3 slowest time constants; 8 / 12 / 16-bit quantisation
   (and 8-bit at 60 dB, where the quantisation step exceeds the noise);
-  band-limited noise.
+  band-limited noise; band-limited noise with a separate quiet record of
+  NOISE_RECORD_SAMPLES samples of the same noise given to the fit
+  (``fitkit fit --noise-record``), whose CRLB is the band-limited one.
 
 Definitions. SNR = 20 log10(|step| / noise rms). Fastest / slowest time
 constant: tau (first-order); tau2 / tau1 (two-real-pole); 1/(2 pi f0) /
@@ -77,11 +79,14 @@ ACCEPTED = {"first-order": {"first-order"}, "two-pole 0.02": {"two-real-pole"}, 
             "two-pole 1": {"two-real-pole", "critically-damped"}, "underdamped Q 0.7": {"underdamped"},
             "underdamped Q 5": {"underdamped"}, "underdamped Q 30": {"underdamped"}}
 
-BASE = {"snr_db": 40.0, "samples_per_tau": 10.0, "record_taus": 6.0, "bits": None, "noise": "white"}
+#: Samples in the separate quiet record of the band-limited noise (fitkit fit --noise-record).
+NOISE_RECORD_SAMPLES = 4096
+BASE = {"snr_db": 40.0, "samples_per_tau": 10.0, "record_taus": 6.0, "bits": None, "noise": "white",
+        "noise_record": None}
 VARIATIONS = [
     {}, {"snr_db": 20.0}, {"snr_db": 60.0}, {"samples_per_tau": 5.0}, {"samples_per_tau": 40.0},
     {"record_taus": 3.0}, {"bits": 8}, {"bits": 12}, {"bits": 16},
-    {"bits": 8, "snr_db": 60.0}, {"noise": "band"},
+    {"bits": 8, "snr_db": 60.0}, {"noise": "band"}, {"noise": "band", "noise_record": NOISE_RECORD_SAMPLES},
 ]
 QUICK_RESPONSES = ("first-order", "underdamped Q 5")
 QUICK_VARIATIONS = [{}, {"noise": "band"}]
@@ -133,6 +138,7 @@ def run_trials(task: tuple) -> list[dict]:
     from fitkit.conditioning.segment import StepSegment
     from fitkit.errors import FitError
     from fitkit.fitting import fit_segments
+    from fitkit.fitting.noise_record import noise_record_from_samples
 
     cell_index, response, cond, first, count, n_auto = task
     form_name, shape, fast, slow, hand_target = RESPONSES[response]
@@ -147,6 +153,10 @@ def run_trials(task: tuple) -> list[dict]:
             y = y0 + rng.normal(0.0, sigma, t.size)
         if lsb:
             y = lsb * np.round(y / lsb)
+        record = None
+        if cond.get("noise_record"):  # the same noise process, recorded with the circuit quiet
+            record = noise_record_from_samples(band_limited_noise(rng, cond["noise_record"], sigma),
+                                               float(t[1] - t[0]))
         pre = y[t < 0]
         tail = y[-max(5, t.size // 10):]
         seg = StepSegment(0, t.size, t, y, None, 0.0, 1, float(pre.mean()), float(tail.mean()),
@@ -156,7 +166,7 @@ def run_trials(task: tuple) -> list[dict]:
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
-                r = fit_segments([seg], form_name, intervals="auto", derived=False)
+                r = fit_segments([seg], form_name, intervals="auto", derived=False, noise_record=record)
             rec["fitkit"] = {k: r.parameters[k].value for k in shape}
             rec["covered"] = {k: bool(r.parameters[k].contains(v)) for k, v in shape.items()}
         except FitError as err:
@@ -168,7 +178,8 @@ def run_trials(task: tuple) -> list[dict]:
             try:
                 with warnings.catch_warnings():
                     warnings.simplefilter("ignore")
-                    rec["auto_model"] = fit_segments([seg], "auto", intervals="covariance", derived=False).model
+                    rec["auto_model"] = fit_segments([seg], "auto", intervals="covariance", derived=False,
+                                                     noise_record=record).model
             except Exception as err:
                 rec["auto_model"] = f"error: {type(err).__name__}"
         if hand_target:

@@ -136,11 +136,14 @@ class CircuitArgs:
 @click.option("--average", is_flag=True, help="Average the edges coherently before fitting.")
 @click.option("--intervals", type=click.Choice(["auto", "covariance", "profile"]), default="auto",
               show_default=True, help="How 95 % intervals of the shape parameters are found.")
+@click.option("--noise-record", metavar="FILE", default=None, type=click.Path(dir_okay=False),
+              help="A capture of the output channel's noise alone (circuit quiet, same scope settings): "
+                   "its noise model is used to fit under band-limited noise.")
 @click.option("--json", "as_json", is_flag=True, help="Print the result as one JSON object.")
 @output_options
 @circuit_options
 def fit(file: str, out_file: str | None, model: str, edge_time: str | None, average: bool,
-        intervals: str, as_json: bool, **kwargs) -> None:
+        intervals: str, noise_record: str | None, as_json: bool, **kwargs) -> None:
     """Fit the step response in FILE: time constants, f0, Q and gain with 95 % intervals.
 
     With OUT_FILE, FILE holds the input (drive) and OUT_FILE the output.
@@ -155,10 +158,18 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
     inp, out = options.roles(capture)
     t_edge = None if edge_time is None else parse_value(edge_time, "s")
     circuit_args = CircuitArgs.pop(kwargs)
+    noise = None
+    if noise_record is not None:
+        from ..errors import OptionError
+        from ..fitting.noise_record import noise_record_from_capture
+        if circuit_args.wanted:
+            raise OptionError("--noise-record cannot be combined with --circuit or --topology",
+                              hint="fit the form with the noise record, or the circuit without it")
+        noise = noise_record_from_capture(options.load(noise_record), out)
     if circuit_args.wanted:
         result = circuit_args.fit(capture, model=model, input=inp, output=out, edge_time=t_edge,
                                   average=average, intervals=intervals)
     else:
         result = fit_capture(capture, model=model, input=inp, output=out, edge_time=t_edge,
-                             average=average, intervals=intervals)
+                             average=average, intervals=intervals, noise_record=noise)
     emit_result(outputs, result, capture, as_json)

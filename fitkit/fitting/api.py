@@ -20,6 +20,7 @@ from ..forms.base import Form
 from ..results import Estimate, FitDiagnostics, FitResult, FittedSegment
 from .engine import FormFit, fit_form
 from .estimates import derived_estimates, level_estimates, shape_estimates
+from .noise_record import NoiseRecord
 from .selection import (CRITERION, FALLBACK_CANDIDATES, Candidate, admissibility, choose,
                         default_candidates, needs_fallback)
 
@@ -34,7 +35,8 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
                  candidates: Iterable[str | Form] | None = None, intervals: str = "auto",
                  correlation: str = "auto", measured_input: bool | None = None,
                  start: Mapping[str, float] | None = None, fixed: Mapping[str, float] | None = None,
-                 file: str = "", warnings: Iterable[str] = (), derived: bool = True) -> FitResult:
+                 file: str = "", warnings: Iterable[str] = (), derived: bool = True,
+                 noise_record: NoiseRecord | None = None) -> FitResult:
     """Fit step segments with a named form, or choose among candidates ("auto").
 
     intervals: "auto" (covariance on the log scale, profile likelihood where
@@ -44,6 +46,9 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         every segment has an input channel).
     start, fixed: physical values by trade name (see engine.fit_form).
     derived: False skips the derived quantities (faster, for Monte Carlo studies).
+    noise_record: the noise model of a separate quiet record of the output
+        channel (fitkit.fitting.noise_record): generalised least squares with
+        it, for band-limited noise on short captures.
     Raises FitError when the chosen form does not converge or nothing is determined.
     """
     segments = tuple(segments)
@@ -53,7 +58,11 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
     if intervals not in ("auto", "covariance", "profile"):
         raise FitError(f"unknown interval method {intervals!r}", hint="use auto, covariance or profile")
     dt = _sample_interval(segments)
-    kwargs = dict(measured_input=measured_input, start=start, fixed=fixed, correlation=correlation)
+    if noise_record is not None and correlation != "off" and not noise_record.matches(dt):
+        raise FitError(f"the noise record is sampled every {noise_record.sample_interval:.4g} s, the capture "
+                       f"every {dt:.4g} s", path=file or None, hint="record the noise at the capture's timebase")
+    kwargs = dict(measured_input=measured_input, start=start, fixed=fixed, correlation=correlation,
+                  noise_record=noise_record)
     if form != "auto":
         chosen_form = form if isinstance(form, Form) else get_form(form)
         ff = fit_form(segments, chosen_form, **kwargs)
@@ -109,13 +118,15 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
 
 def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = None,
                 output: str | None = None, edge_time: float | None = None, average: bool = False,
-                candidates: Iterable[str] | None = None, intervals: str = "auto") -> FitResult:
+                candidates: Iterable[str] | None = None, intervals: str = "auto",
+                noise_record: NoiseRecord | None = None) -> FitResult:
     """Find the steps in a capture (fitkit.conditioning.analyse_steps) and fit them.
 
     model: a form name or "auto" (model selection among ``candidates``).
     input, output: channel names/positions (default: conditioning's choice).
     edge_time: seconds, to fit only the edge nearest this time.
     average: coherently average the edges before fitting.
+    noise_record: see :func:`fit_segments`.
     """
     from ..conditioning import analyse_steps  # written alongside; imported when used
 
@@ -126,7 +137,7 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
     path = capture.provenance.path
     try:
         return fit_segments(analysis.segments, model, candidates=candidates, intervals=intervals,
-                            file=path, warnings=warnings)
+                            file=path, warnings=warnings, noise_record=noise_record)
     except FitError as err:
         if err.path is None and path:
             raise FitError(err.message, path=path, hint=err.hint) from None
@@ -143,6 +154,7 @@ def _build(cand: Candidate, scores: tuple, reason: str, warnings: list[str], fil
     if not any(e.determined for e in shape.values()) and shape:
         raise FitError(f"the {ff.form.name} fit converged but none of its parameters is determined by the data",
                        path=file or None, hint="capture more of the response or reduce the noise")
+    warnings = list(warnings) + [n for n in ff.notes if n not in warnings]
     params = dict(shape)
     params.update(level_estimates(ff, 0))
     derived = derived_estimates(ff) if with_derived else {}

@@ -84,11 +84,14 @@ class Whitener:
     model: the AR model (Yule-Walker coefficients, lower-order predictors).
     lag1: lag-1 autocorrelation of the residuals the model was fitted to.
     autocorrelation: the autocorrelation (lags 0..order at least) the model was fitted to.
+    record_samples: samples of the separate noise record the model comes from
+        (:mod:`.noise_record`); None when it was fitted to the fit's own residuals.
     """
 
     model: AutoregressiveModel
     lag1: float
     autocorrelation: np.ndarray | None = None
+    record_samples: int | None = None
 
     @property
     def order(self) -> int:
@@ -129,10 +132,12 @@ class Whitener:
         return y
 
 
-def whitening_applies(joint: JointModel) -> bool:
+def whitening_applies(joint: JointModel, min_points: int = MIN_WHITENING_POINTS) -> bool:
     """True when prewhitening is valid for this joint model: ideal-step mode,
-    unbinned points, uniformly sampled segments."""
-    if joint.measured_input or joint.y.size < MIN_WHITENING_POINTS:
+    unbinned points, uniformly sampled segments, at least ``min_points`` points
+    (the default is for a noise model fitted to the residuals; a separate
+    noise record needs none)."""
+    if joint.measured_input or joint.y.size < min_points:
         return False
     for seg, d in zip(joint.segments, joint.data):
         if d.bin_size != 1 or d.y.size < MIN_PIECE_POINTS:
@@ -190,7 +195,8 @@ def whitened_problem(joint: JointModel, fit: ModelFit, whitener: Whitener) -> Wh
     w = joint.weights
     jac = whitener.apply(fit.jacobian * w[:, None], joint.bounds)
     res = whitener.apply(w * fit.residual, joint.bounds)
-    dof = fit.dof - whitener.order
+    # the AR coefficients cost degrees of freedom when fitted to these residuals
+    dof = fit.dof - (whitener.order if whitener.record_samples is None else 0)
     s2 = float(res @ res) / dof if dof > 0 else math.nan
     cov, singular, _ = covariance_from_jacobian(jac, s2)
     return WhitenedProblem(jac, res, cov, s2, dof, singular)
@@ -272,19 +278,24 @@ def whitened_correction(fit: ModelFit, whitener: Whitener, problem: WhitenedProb
         the noise model (:func:`standard_error_dof`).
 
     The t quantile's degrees of freedom are the fewest of: the whitened
-    problem's, the ordinary fit's effective ones, those of the check on the
-    whitened residuals, and ``noise_dof``.
+    problem's, the ordinary fit's effective ones (unless the noise model comes
+    from a separate record), those of the check on the whitened residuals, and
+    ``noise_dof``.
     """
     cov = left.covariance
     with np.errstate(all="ignore"):
         widening = np.sqrt(np.diag(cov) / np.diag(fit.covariance))
+    source = "" if whitener.record_samples is None else f" of the noise record ({whitener.record_samples} samples)"
     text = (f"generalised least squares: residuals whitened by an order-{whitener.order} autoregressive "
-            f"model (lag-1 autocorrelation {ordinary.lag1:.2f} before whitening, {left.lag1:.2f} after)")
+            f"model{source} (lag-1 autocorrelation {ordinary.lag1:.2f} before whitening, {left.lag1:.2f} after)")
     if left.applied and float(np.max(left.widening, initial=1.0)) > 1.0 + LEFT_OVER_NOTED:
         text += "; for the correlation left after whitening, " + left.description
     else:
         text += "; no correlation left after whitening"
-    dof = min(d for d in (left.dof, ordinary.dof, problem.dof, noise_dof) if d is not None)
+    # the ordinary fit's effective degrees of freedom bound those of a noise
+    # model fitted to its residuals, not those of a separate record's
+    ordinary_dof = ordinary.dof if whitener.record_samples is None else None
+    dof = min(d for d in (left.dof, ordinary_dof, problem.dof, noise_dof) if d is not None)
     return Correction(cov, widening, ordinary.lag1, ordinary.correlation_lags, True, text,
                       ordinary.variance_ratio, dof)
 
@@ -374,7 +385,8 @@ class WhitenedJointModel:
 
 def whitened_fit(joint: JointModel, fit: ModelFit, fixed: Mapping[str, float], ordinary: Correction,
                  correlation: str, *, project: bool, tol: float, max_nfev: int,
-                 canonical: Callable[[ModelFit], ModelFit] = lambda f: f
+                 canonical: Callable[[ModelFit], ModelFit] = lambda f: f,
+                 whitener: Whitener | None = None
                  ) -> tuple[JointModel | WhitenedJointModel, ModelFit, Correction]:
     """Feasible generalised least squares after an ordinary fit with correlated residuals.
 
@@ -391,7 +403,8 @@ def whitened_fit(joint: JointModel, fit: ModelFit, fixed: Mapping[str, float], o
     ``fit`` and ``ordinary`` when the refit fails, is singular or lands far
     from ``fit`` (:data:`MAX_SHIFT`; said in the correction text).
     """
-    whitener = whitener_for_fit(joint, fit)
+    if whitener is None:
+        whitener = whitener_for_fit(joint, fit)
     refit = fit_whitened(joint, fit, fixed, whitener, project=project, tol=tol, max_nfev=max_nfev)
     if not refit.converged:
         return joint, fit, ordinary
@@ -411,7 +424,7 @@ def whitened_fit(joint: JointModel, fit: ModelFit, fixed: Mapping[str, float], o
                                       ordinary.variance_ratio, ordinary.dof)
     left = correlated_residual_correction(problem.jacobian, joint.split(problem.residual), list(joint.bounds),
                                           problem.covariance, problem.s2, "on" if correlation != "off" else "off")
-    noise_dof = standard_error_dof(joint, refit, whitener, refit.n)
+    noise_dof = standard_error_dof(joint, refit, whitener, whitener.record_samples or refit.n)
     fewest = float(np.min(noise_dof[shape])) if shape else math.inf
     stderr = {n: math.sqrt(problem.covariance[i, i]) for i, n in enumerate(refit.names)}
     gls = replace(refit, covariance=problem.covariance, stderr=stderr)
