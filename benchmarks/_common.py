@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import json
+import math
 import os
 import platform
 import subprocess
@@ -161,8 +162,39 @@ def jacobian(model: Callable[[Mapping[str, float]], np.ndarray], theta: Mapping[
     return np.column_stack(cols)
 
 
-def fisher_bounds(J: np.ndarray, sigma: float, correlation: np.ndarray | None = None
-                  ) -> tuple[np.ndarray, np.ndarray]:
+def quantised_information(mean: np.ndarray, sigma: float, lsb: float) -> np.ndarray:
+    """Fisher information about each sample's mean (1/V^2) when Gaussian noise of
+    rms ``sigma`` (V) is added and the result rounded to a multiple of ``lsb`` (V).
+
+    Each sample then falls in code c with probability
+    P_c = Phi(b_c+1) - Phi(b_c), b_c = ((c - 1/2) lsb - mean) / sigma, and its
+    information is sum_c (dP_c/dmean)^2 / P_c = sum_c (phi(b_c) - phi(b_c+1))^2
+    / (sigma^2 P_c) (the Fisher information of a multinomial observation,
+    Kay 1993, ch. 3, applied to the interval-censored Gaussian; common
+    practice, no source for the quantiser model beyond rounding to the nearest
+    code). Where sigma >= 2 lsb the additive approximation 1 / (sigma^2 +
+    lsb^2 / 12) (Widrow & Kollar, Quantization Noise, 2008, ch. 4, from
+    memory) is used: it is then exact to a fraction of a per cent.
+    """
+    from scipy import stats
+
+    mean = np.asarray(mean, dtype=float)
+    if sigma >= 2.0 * lsb:
+        return np.full(mean.shape, 1.0 / (sigma**2 + lsb**2 / 12.0))
+    span = int(math.ceil(8.0 * sigma / lsb)) + 2
+    centre = np.round(mean / lsb)
+    codes = centre[:, None] + np.arange(-span, span + 1)[None, :]
+    lower = ((codes - 0.5) * lsb - mean[:, None]) / sigma
+    upper = ((codes + 0.5) * lsb - mean[:, None]) / sigma
+    prob = stats.norm.cdf(upper) - stats.norm.cdf(lower)
+    slope = (stats.norm.pdf(lower) - stats.norm.pdf(upper)) / sigma
+    with np.errstate(divide="ignore", invalid="ignore"):
+        terms = np.where(prob > 1e-300, slope**2 / prob, 0.0)
+    return terms.sum(axis=1)
+
+
+def fisher_bounds(J: np.ndarray, sigma: float, correlation: np.ndarray | None = None,
+                  information: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
     """(CRLB variances, unweighted-least-squares variances) of each parameter, from the Jacobian J.
 
     White noise (correlation None): Fisher information F = J^T J / sigma^2 and
@@ -175,6 +207,11 @@ def fisher_bounds(J: np.ndarray, sigma: float, correlation: np.ndarray | None = 
     variance (J^T J)^-1 J^T C J (J^T J)^-1 (the Gauss-Markov argument; the
     same book, ch. 6). The second array is that sandwich (= the CRLB for white noise).
     Both in the parameter units squared; NaN where F is singular.
+    information: per-sample Fisher information about the mean (1/V^2), for
+    white noise that is not Gaussian at the sample (quantised, see
+    :func:`quantised_information`): then F = J^T diag(information) J, and
+    ``sigma`` only sets the second array (least squares under the additive
+    approximation).
     """
     from scipy import linalg
 
@@ -189,6 +226,9 @@ def fisher_bounds(J: np.ndarray, sigma: float, correlation: np.ndarray | None = 
     A = np.linalg.inv(JTJ)
     if correlation is None:
         var = np.diag(A) * sigma**2 / scale**2
+        if information is not None:
+            F = Js.T @ (np.asarray(information, dtype=float)[:, None] * Js)
+            return np.diag(np.linalg.inv(F)) / scale**2, var
         return var, var.copy()
     r = np.asarray(correlation, dtype=float)
     CinvJ = linalg.solve_toeplitz(r, Js) / sigma**2

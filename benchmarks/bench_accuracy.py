@@ -30,8 +30,10 @@ range / 2^bits. Band-limited noise: see _common.band_limited_noise.
 Per cell and parameter: relative bias and RMSE, the Cramer-Rao bound (Fisher
 information of the same model - shape, baseline, step and edge time t0, all
 free as in fitkit - and the same noise: J^T J / sigma^2, or J^T C^-1 J for
-band-limited noise; quantisation enters as extra white variance LSB^2/12,
-Widrow & Kollar, Quantization Noise, Cambridge UP 2008, ch. 4 - from memory),
+band-limited noise; for quantised captures the exact information of
+Gaussian noise rounded to the nearest code, _common.quantised_information,
+which equals the additive model LSB^2/12 of Widrow & Kollar, Quantization
+Noise, Cambridge UP 2008, ch. 4 - from memory - once the noise exceeds two codes),
 efficiency = CRLB / MSE, coverage of fitkit's 95 % intervals, convergence
 rate, gross-error rate (|error| > 50 %), and on the first AUTO trials the rate
 at which automatic model selection picks the true form. Hand methods on the
@@ -53,9 +55,11 @@ import numpy as np
 
 try:  # run as a script (python benchmarks/bench_accuracy.py) or imported by the smoke test
     from _common import (band_limited_autocorrelation, band_limited_noise, clean, fisher_bounds, fmt, jacobian,
+                         quantised_information,
                          machine, map_tasks, write_results)
 except ImportError:  # pragma: no cover
     from benchmarks._common import (band_limited_autocorrelation, band_limited_noise, clean, fisher_bounds, fmt,
+                                    quantised_information,
                                     jacobian, machine, map_tasks, write_results)
 
 BASELINE, STEP = 0.5, 2.5
@@ -126,7 +130,10 @@ def cell_setup(response: str, cond: dict) -> dict:
              "t0": 1e-6 * fast}
     J = jacobian(model, theta, steps)
     corr = band_limited_autocorrelation(t.size) if cond["noise"] == "band" else None
-    crlb, ols = fisher_bounds(J, sigma_eff, corr)
+    # quantised white noise: the exact information of the rounded Gaussian (matters
+    # where the noise is below one code; elsewhere it equals the additive model's)
+    information = quantised_information(y0, sigma, lsb) if lsb and corr is None else None
+    crlb, ols = fisher_bounds(J, sigma_eff, corr, information)
     names = list(steps)
     return {"t": t, "clean": y0, "sigma": sigma, "sigma_eff": sigma_eff, "lsb": lsb, "n": int(t.size),
             "crlb": {k: float(crlb[names.index(k)]) for k in shape},

@@ -21,6 +21,7 @@ from ..results import Estimate, FitDiagnostics, FitResult, FittedSegment
 from .engine import FormFit, fit_form
 from .estimates import derived_estimates, level_estimates, shape_estimates
 from .noise_record import NoiseRecord
+from .quantised import ROUNDED_GAUSSIAN, quantised_refit
 from .selection import (CRITERION, FALLBACK_CANDIDATES, Candidate, admissibility, choose,
                         default_candidates, needs_fallback)
 
@@ -69,6 +70,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         if not ff.converged:
             raise FitError(f"the {chosen_form.name} fit did not converge ({ff.fit.message})"
                            + _runaway_note(ff, dt), path=file or None, hint="try --model auto or another form")
+        ff = quantised_refit(ff) or ff
         shape, notes = shape_estimates(ff, intervals)
         ok, why = admissibility(chosen_form, shape, dt)
         if not ok and "outside this form's range" in why:
@@ -111,6 +113,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         refit = fit_form(segments, chosen.form, **kwargs)
         if refit.converged:
             final = refit
+    final = quantised_refit(final) or final
     shape, notes = shape_estimates(final, intervals)
     chosen = Candidate(chosen.form, final, shape, True, "")
     return _build(chosen, scores, reason, sel_warn + notes + list(warnings), file, segments, derived)
@@ -155,6 +158,10 @@ def _build(cand: Candidate, scores: tuple, reason: str, warnings: list[str], fil
         raise FitError(f"the {ff.form.name} fit converged but none of its parameters is determined by the data",
                        path=file or None, hint="capture more of the response or reduce the noise")
     warnings = list(warnings) + [n for n in ff.notes if n not in warnings]
+    if ff.objective == ROUNDED_GAUSSIAN:  # the bias the conditioning warned of is what the refit removes
+        warnings = [w for w in warnings if not w.startswith(BELOW_ONE_CODE)]
+        warnings.append("the output noise is below one quantisation code: fitted by maximum likelihood for a "
+                        "trace rounded to codes (see diagnostics), not by least squares")
     params = dict(shape)
     params.update(level_estimates(ff, 0))
     derived = derived_estimates(ff) if with_derived else {}
@@ -233,6 +240,10 @@ def _fitted_segments(ff: FormFit) -> tuple[FittedSegment, ...]:
         out.append(FittedSegment(time=time, data=data, fitted=sc.volt_origin + piece * sc.volt_unit,
                                  edge_time=seg.edge_time, direction=seg.direction))
     return tuple(out)
+
+
+#: How the conditioning's warning of noise below one code begins (conditioning.analysis).
+BELOW_ONE_CODE = "the output noise is below one quantisation code"
 
 
 def _runaway_note(ff: FormFit, dt: float) -> str:

@@ -64,6 +64,10 @@ class FormFit:
     correction: Correction
     tq: float
     notes: tuple[str, ...] = ()
+    #: "least squares", or "rounded Gaussian" for the maximum-likelihood refit of
+    #: a trace whose noise is below one code (:mod:`.quantised`); the sum of
+    #: squares checks (profile likelihood) apply to least squares only
+    objective: str = "least squares"
 
     @property
     def converged(self) -> bool:

@@ -49,7 +49,7 @@ def shape_estimates(ff: FormFit, intervals: str = "auto") -> tuple[dict[str, Est
     (:func:`region_estimates`; "covariance" skips the profile).
     """
     if getattr(ff.form, "region_quantities", None) is not None and getattr(ff.form, "reported_shape", ()):
-        return region_estimates(ff, profile=intervals != "covariance")
+        return region_estimates(ff, profile=intervals != "covariance" and ff.objective == "least squares")
     fit, sc, cov = ff.fit, ff.joint.scaling, ff.correction.covariance
     names = list(fit.names)
     theta = np.array([fit.values[n] for n in names])
@@ -70,8 +70,8 @@ def shape_estimates(ff: FormFit, intervals: str = "auto") -> tuple[dict[str, Est
             continue
         lo, hi = log_interval(value, s_log, ff.tq)
         method = _method(widen, "covariance (log scale)", ff.joint.measured_input)
-        want_profile = intervals == "profile" or (
-            intervals == "auto" and objective_is_asymmetric(
+        want_profile = ff.objective == "least squares" and intervals == "profile" or (
+            ff.objective == "least squares" and intervals == "auto" and objective_is_asymmetric(
                 lambda th: _rss(ff, names, th), theta, fit.covariance, j, fit.s2, ff.tq))
         if want_profile and intervals != "covariance":
             prof = _profile_interval(ff, key, fit.values[key], math.sqrt(fit.covariance[j, j]))
