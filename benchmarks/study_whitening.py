@@ -11,6 +11,12 @@ fresh noise (fixed seeds) and fits the true form three ways:
                 covariance, whitening switched off (the behaviour before
                 fitkit.fitting.whitening);
 * "whitened":   fitkit's default: feasible GLS by prewhitening.
+* "record":     GLS with the noise model of a separate quiet record of
+                RECORD_SAMPLES samples of the same noise (fitkit fit
+                --noise-record), whatever the capture's length;
+* "exact":      GLS with an AR model fitted to the exact autocorrelation
+                (_common.band_limited_autocorrelation): what a perfectly
+                known noise model gives, the finite-sample limit of GLS.
 
 Reported per parameter: efficiency (Cramer-Rao bound of the known noise
 correlation / MSE; bound from _common.fisher_bounds: Kay, Fundamentals of
@@ -31,10 +37,11 @@ import warnings
 import numpy as np
 
 try:
-    from _common import band_limited_noise, clean, fmt, machine, map_tasks, write_results
+    from _common import band_limited_autocorrelation, band_limited_noise, clean, fmt, machine, map_tasks, write_results
     from bench_accuracy import BASE, RESPONSES, cell_setup
 except ImportError:  # pragma: no cover
-    from benchmarks._common import band_limited_noise, clean, fmt, machine, map_tasks, write_results
+    from benchmarks._common import (band_limited_autocorrelation, band_limited_noise, clean, fmt, machine,
+                                    map_tasks, write_results)
     from benchmarks.bench_accuracy import BASE, RESPONSES, cell_setup
 
 #: (response, samples per fastest time constant)
@@ -42,7 +49,10 @@ CELLS = [("first-order", 10.0), ("first-order", 20.0), ("first-order", 40.0),
          ("two-pole 0.2", 10.0), ("underdamped Q 0.7", 10.0), ("underdamped Q 0.7", 20.0),
          ("underdamped Q 5", 10.0)]
 QUICK_CELLS = [("first-order", 40.0), ("underdamped Q 5", 10.0)]
-ARMS = ("ordinary", "sandwich", "whitened")
+ARMS = ("ordinary", "sandwich", "whitened", "record", "exact")
+#: Samples in the quiet record of the "record" arm, and the AR order limit of the "exact" arm.
+RECORD_SAMPLES = 4096
+EXACT_ORDER = 80
 
 
 def run_trials(task: tuple) -> list[dict]:
@@ -51,7 +61,9 @@ def run_trials(task: tuple) -> list[dict]:
     from fitkit.conditioning.segment import StepSegment
     from fitkit.errors import FitError
     from fitkit.fitting import fit_segments
-    from fitkit.fitting.whitening import whitening_applies
+    from fitkit.fitting.noise_record import NoiseRecord, noise_record_from_samples
+    from fitkit.fitting.uncertainty import autoregressive_model
+    from fitkit.fitting.whitening import Whitener, whitening_applies
 
     cell_index, response, samples, arm, first, count = task
     form_name, shape, *_ = RESPONSES[response]
@@ -59,10 +71,19 @@ def run_trials(task: tuple) -> list[dict]:
     t, y0, sigma = setup["t"], setup["clean"], setup["sigma"]
     # the "sandwich" arm: the engine as it was before whitening (a study-only switch)
     engine.whitening_applies = (lambda joint: False) if arm == "sandwich" else whitening_applies
+    dt = float(t[1] - t[0])
+    exact = None
+    if arm == "exact":
+        rho = band_limited_autocorrelation(EXACT_ORDER + 1)
+        model = autoregressive_model(rho, 10**9, max_order=EXACT_ORDER)
+        exact = NoiseRecord(Whitener(model, float(rho[1]), rho, record_samples=10**9), dt, 10**9, sigma, "exact")
     records = []
     for trial in range(first, first + count):
         rng = np.random.default_rng([cell_index, trial, 20261202])
         y = y0 + band_limited_noise(rng, t.size, sigma)
+        record = exact
+        if arm == "record":
+            record = noise_record_from_samples(band_limited_noise(rng, RECORD_SAMPLES, sigma), dt)
         seg = StepSegment(0, t.size, t, y, None, 0.0, 1, float(y[t < 0].mean()),
                           float(y[-max(5, t.size // 10):].mean()), noise_rms=sigma)
         rec: dict = {"trial": trial}
@@ -70,7 +91,7 @@ def run_trials(task: tuple) -> list[dict]:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
                 r = fit_segments([seg], form_name, intervals="auto", derived=False,
-                                 correlation="off" if arm == "ordinary" else "auto")
+                                 correlation="off" if arm == "ordinary" else "auto", noise_record=record)
             rec["value"] = {k: r.parameters[k].value for k in shape}
             rec["stderr"] = {k: r.parameters[k].stderr for k in shape}
             rec["covered"] = {k: bool(r.parameters[k].contains(v)) for k, v in shape.items()}

@@ -113,3 +113,26 @@ def test_speed_script_quick_run(tmp_path):
     assert tau_only < fit["tau_crlb_sd"] < 1.3 * tau_only
     assert abs(fit["tau_error_in_crlb_sd"]) < 5  # fixed seed; a fit this far off would be a bug
     assert data["help"]["wall_s"] > 0
+
+
+def test_quantised_information_of_the_benchmark():
+    # the bound for quantised captures: per-sample information of a rounded Gaussian,
+    # against a direct computation with scipy.stats (multinomial information
+    # sum_c (dP_c/dm)^2 / P_c, central differences of the cdf), and the additive
+    # model 1 / (sigma^2 + q^2 / 12) (Widrow & Kollar 2008, ch. 4, from memory) above two codes
+    import scipy.stats
+
+    quantised_information = _common.quantised_information
+    q = 1.0
+    codes = np.arange(-30, 31)
+    for sigma in (0.2, 0.6):
+        for m in (0.0, 0.3, 0.5):
+            def probs(mu):
+                return (scipy.stats.norm.cdf(((codes + 0.5) * q - mu) / sigma)
+                        - scipy.stats.norm.cdf(((codes - 0.5) * q - mu) / sigma))
+            p = probs(m)
+            dp = (probs(m + 1e-6) - probs(m - 1e-6)) / 2e-6
+            keep = p > 1e-300
+            direct = float(np.sum(dp[keep] ** 2 / p[keep]))
+            assert quantised_information(np.array([m]), sigma, q)[0] == pytest.approx(direct, rel=1e-5)
+    assert quantised_information(np.array([0.2]), 3.0, q)[0] == pytest.approx(1 / (9 + 1 / 12))

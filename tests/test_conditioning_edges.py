@@ -171,3 +171,25 @@ def test_forced_edge_window_stops_before_the_next_edge():
     assert len(a.segments) == 1 and seg.edge_time == truth[2]
     assert truth[1] < seg.time[0] < truth[2] < seg.time[-1] < truth[3]
     assert a.edges[0].direction == 1 and a.metrics[0].rise_time is not None  # starts low: third edge rises
+
+
+@pytest.mark.parametrize("q_factor", [3.0, 5.0, 10.0])
+def test_one_ringing_step_is_one_edge(q_factor):
+    # A single step into a resonant low-pass, output only, recorded while it
+    # still rings: its histogram shows no clear second level and its ringing
+    # swings are as steep as the edge. It ends at another level than it
+    # started, so it is one step, not a train of jumps. Response:
+    # scipy.signal.step of w0^2 / (s^2 + (w0/Q) s + w0^2).
+    f0 = 10e3
+    w0 = 2 * math.pi * f0
+    dt = 1 / w0 / 10
+    t = np.arange(-144, 720) * dt
+    clean = np.zeros(t.size)
+    _, clean[t >= 0] = scipy.signal.step(([w0**2], [1, w0 / q_factor, w0**2]), T=t[t >= 0])
+    y = 0.5 + 2.5 * clean + np.random.default_rng(1).normal(0, 0.0025, t.size)
+    analysis = analyse_steps(Capture.from_arrays(t, {"vout": y}))
+    assert len(analysis.segments) == 1
+    # the edge time is the 50 % crossing (IEEE Std 181), which a second-order
+    # response reaches about 1-2 / w0 after the step
+    assert 0.0 < analysis.segments[0].edge_time < 3.0 / w0
+    assert analysis.segments[0].direction == 1

@@ -11,7 +11,10 @@ Two ways, chosen from the trace itself:
   only briefly (the voltage across an inductor or the output of a high-pass
   filter: a spike at each edge that decays back). An edge is a group of
   consecutive first differences larger than half the largest one and well
-  above the noise.
+  above the noise. A trace that ends at another level than it started is a
+  step, not jumps, even when its histogram shows no clear second level (a
+  resonant response still ringing): its ringing swings are as steep as its
+  edge, so it is read by level crossings.
 
 In both, the edge time is the interpolated 50 % crossing of the transition
 (IEEE Std 181's mid reference level instant, with linear interpolation
@@ -46,6 +49,9 @@ from .levels import StateLevels
 #: Hysteresis thresholds as fractions of the way from the low to the high level.
 LOW_THRESHOLD = 0.25
 HIGH_THRESHOLD = 0.75
+#: A trace whose first and last tenths differ by more than this fraction of its
+#: range is a step (levels), not a trace of jumps that returns to its level.
+ENDS_APART = 0.3
 #: A state held for fewer samples than this (or a fifth of the median edge spacing) is noise.
 MIN_DWELL_SAMPLES = 5
 
@@ -237,13 +243,30 @@ def detect_edges(time: np.ndarray, values: np.ndarray, levels: StateLevels,
     """
     if is_two_level(levels, noise_rms):
         return edges_by_levels(time, values, levels, noise_rms)
-    jumps = edges_by_jumps(time, values, noise_rms)
     noise = noise_rms if np.isfinite(noise_rms) else 0.0
     spread = levels.maximum - levels.minimum
-    if jumps.edges or not (levels.amplitude > 6 * noise and levels.amplitude >= 0.3 * spread > 0):
+    levels_usable = levels.amplitude > 6 * noise and levels.amplitude >= 0.3 * spread > 0
+    if levels_usable and ends_apart(values, spread):
+        # a step that rings: it ends at another level than it started, which a
+        # trace of jumps (leaving one level and returning to it) does not; its
+        # ringing swings are as steep as the edge and would pass for jumps
+        found = edges_by_levels(time, values, levels, noise_rms)
+        return EdgeSearch(found.edges, found.method + " (the trace does not settle at its levels)")
+    jumps = edges_by_jumps(time, values, noise_rms)
+    if jumps.edges or not levels_usable:
         return jumps
     found = edges_by_levels(time, values, levels, noise_rms)
     return EdgeSearch(found.edges, found.method + " (the trace does not settle at its levels)")
+
+
+def ends_apart(values: np.ndarray, spread: float) -> bool:
+    """True when the trace's first and last tenths rest at levels more than
+    :data:`ENDS_APART` of its range apart (medians; common practice, no source)."""
+    v = np.asarray(values, dtype=float)
+    k = max(5, v.size // 10)
+    if v.size < 2 * k or not spread > 0:
+        return False
+    return bool(abs(float(np.nanmedian(v[-k:])) - float(np.nanmedian(v[:k]))) > ENDS_APART * spread)
 
 
 def forced_edge(time: np.ndarray, values: np.ndarray, edge_time: float) -> Edge:
