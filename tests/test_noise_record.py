@@ -72,7 +72,15 @@ def test_record_model_whitens_the_same_process():
     phi = rec.whitener.model.coefficients
     assert phi[0] == pytest.approx(1.2, abs=0.1) and phi[1] == pytest.approx(-0.5, abs=0.1)
     assert rec.rms == pytest.approx(1e-3 * float(np.std(x)), rel=0.01)
-    assert "20000 samples" in rec.describe() and "quiet.csv" in rec.describe()
+    assert rec.n_samples == 20000 and rec.source == "quiet.csv"
+
+
+def test_record_with_a_gap_uses_its_longest_stretch():
+    rng = np.random.default_rng(12)
+    x = band_noise(rng, 3000, SIGMA)
+    x[700] = np.nan  # a dropped sample: the stretch after it (2299 samples) is used, not both joined
+    rec = noise_record_from_samples(x, DT)
+    assert rec.n_samples == 2299
 
 
 def test_short_capture_with_a_record_reaches_the_bound():

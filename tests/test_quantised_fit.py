@@ -47,17 +47,18 @@ def test_log_likelihood_is_the_sum_of_code_probabilities():
     assert math.isfinite(log_likelihood(np.array([0.0]), np.array([3.0]), 0.1, 0.1))
 
 
-@pytest.mark.parametrize("sigma_codes", [0.1, 0.3, 1.0])
-def test_sample_information_matches_scipy(sigma_codes):
+@pytest.mark.parametrize("sigma_codes,origin", [(0.1, 0.0), (0.3, 0.0), (1.0, 0.0), (0.1, 0.37), (0.3, -2.81)])
+def test_sample_information_matches_scipy(sigma_codes, origin):
+    # codes at origin + k q: in the engine's scaled volts the lattice sits anywhere
     q = 1.0
     sigma = sigma_codes * q
-    mean = np.linspace(-0.5, 0.5, 7)
-    info_mm, _, info_ss = sample_information(mean, sigma, q)
-    codes = np.arange(-20, 21)
+    mean = origin + np.linspace(-0.5, 0.5, 7)
+    info_mm, _, info_ss = sample_information(mean, sigma, q, origin)
+    codes = origin + np.arange(-20, 21) * q
     h = 1e-6
     for k, m in enumerate(mean):
         def probs(mu, s=sigma):
-            return scipy.stats.norm.cdf(((codes + 0.5) * q - mu) / s) - scipy.stats.norm.cdf(((codes - 0.5) * q - mu) / s)
+            return scipy.stats.norm.cdf((codes + 0.5 * q - mu) / s) - scipy.stats.norm.cdf((codes - 0.5 * q - mu) / s)
         p = probs(m)
         dp_dm = (probs(m + h) - probs(m - h)) / (2 * h)
         dp_dls = (probs(m, sigma * math.exp(h)) - probs(m, sigma * math.exp(-h))) / (2 * h)

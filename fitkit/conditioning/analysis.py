@@ -29,6 +29,11 @@ from .segment import StepSegment
 from .segments import average_segments, cut_segments, window_bounds
 
 
+#: How the warning of noise below one quantisation code begins (the fit, which
+#: then refits by maximum likelihood for rounding, replaces it).
+BELOW_ONE_CODE = "the output noise is below one quantisation code"
+
+
 @dataclass(frozen=True)
 class StepAnalysis:
     """What conditioning found in a capture.
@@ -279,7 +284,7 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
         # with noise well under a code the rounding error follows the signal
         # instead of averaging out (Widrow & Kollar, Quantization Noise, CUP
         # 2008, ch. 4, from memory: the additive-noise model needs noise of about a code or more)
-        flags.append(f"the output noise is below one quantisation code "
+        flags.append(f"{BELOW_ONE_CODE} "
                      f"({format_value(out_noise.quantisation_step, out_ch.unit)}): rounding errors then do "
                      "not average out and estimates can be biased by more than their intervals show; "
                      "use a finer vertical scale or the scope's high-resolution (averaging) acquisition")

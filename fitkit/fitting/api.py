@@ -13,12 +13,13 @@ from typing import Iterable, Mapping, Sequence
 import numpy as np
 
 from ..capture import Capture
+from ..conditioning.analysis import BELOW_ONE_CODE
 from ..conditioning.segment import StepSegment
 from ..errors import FitError
 from ..forms import FORMS, get_form
 from ..forms.base import Form
 from ..results import Estimate, FitDiagnostics, FitResult, FittedSegment
-from .engine import FormFit, fit_form
+from .engine import FormFit, fit_form, sample_interval
 from .estimates import derived_estimates, level_estimates, shape_estimates
 from .noise_record import NoiseRecord
 from .quantised import ROUNDED_GAUSSIAN, quantised_refit
@@ -58,10 +59,9 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
                        hint="check that the capture holds at least one edge")
     if intervals not in ("auto", "covariance", "profile"):
         raise FitError(f"unknown interval method {intervals!r}", hint="use auto, covariance or profile")
-    dt = _sample_interval(segments)
-    if noise_record is not None and correlation != "off" and not noise_record.matches(dt):
-        raise FitError(f"the noise record is sampled every {noise_record.sample_interval:.4g} s, the capture "
-                       f"every {dt:.4g} s", path=file or None, hint="record the noise at the capture's timebase")
+    dt = sample_interval(segments)
+    if noise_record is not None and correlation != "off":
+        noise_record.require_timebase(dt, file)
     kwargs = dict(measured_input=measured_input, start=start, fixed=fixed, correlation=correlation,
                   noise_record=noise_record)
     if form != "auto":
@@ -242,10 +242,6 @@ def _fitted_segments(ff: FormFit) -> tuple[FittedSegment, ...]:
     return tuple(out)
 
 
-#: How the conditioning's warning of noise below one code begins (conditioning.analysis).
-BELOW_ONE_CODE = "the output noise is below one quantisation code"
-
-
 def _runaway_note(ff: FormFit, dt: float) -> str:
     """Plain words when a time constant of a fit that did not converge was
     running below the sample interval (a pole the data do not show), else ''."""
@@ -263,11 +259,6 @@ def _runaway_note(ff: FormFit, dt: float) -> str:
         return ""
     return (f"; {fast[0]} was running below the sample interval ({shape[fast[0]]:.3g} s < {dt:.3g} s): "
             "the data show no such time constant")
-
-
-def _sample_interval(segments: Sequence[StepSegment]) -> float:
-    d = np.diff(np.asarray(segments[0].time, dtype=float))
-    return float(np.median(d)) if d.size else math.nan
 
 
 def _returns_to_baseline(segments: Sequence[StepSegment]) -> bool:

@@ -40,8 +40,12 @@ from .whitening import whitened_fit, whitening_applies
 STARTS_REFINED = 2
 #: Relative tolerance of the engine's fits (the NIST checks use the core's tighter default).
 ENGINE_TOLERANCE = 1e-10
-#: Model evaluations allowed per free parameter; a form whose extra poles run
-#: away (not supported by the data) stops here and is reported as not converged.
+#: Model evaluations allowed per free parameter in one search. A form whose
+#: extra pole runs away (not supported by the data) stops here; it is then
+#: continued (see _continued) and reported as converged in the objective when
+#: the sum of squares has stopped falling (its runaway parameter is then
+#: loosely determined, and model selection refuses such a form), else as not
+#: converged.
 EVALUATIONS_PER_PARAMETER = 150
 #: A search stopped by its budget has converged in the objective when a further
 #: budget lowers the sum of squares by less than this fraction of the noise
@@ -112,6 +116,12 @@ def make_scaling(segments: Sequence[StepSegment], form: Form, measured_input: bo
         in_unit = abs(seg.input_after - seg.input_before) or 1.0
     return Scaling(time_unit=t_unit, volt_origin=float(segments[0].baseline), volt_unit=v_unit,
                    input_unit=in_unit)
+
+
+def sample_interval(segments: Sequence[StepSegment]) -> float:
+    """Median sample interval of the first segment (s), NaN with fewer than two samples."""
+    d = np.diff(np.asarray(segments[0].time, dtype=float))
+    return float(np.median(d)) if d.size else math.nan
 
 
 def to_internal(joint: JointModel, physical: Mapping[str, float]) -> dict[str, float]:
@@ -237,11 +247,7 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     whiten = dict(project=project, tol=ENGINE_TOLERANCE, max_nfev=EVALUATIONS_PER_PARAMETER * (searched + 1),
                   canonical=lambda f, j=joint: _canonical(j, f))
     if noise_record is not None and correlation != "off":
-        dt = float(np.median(np.diff(np.asarray(segments[0].time, dtype=float)))) if segments[0].n_points > 1 \
-            else math.nan
-        if not noise_record.matches(dt):
-            raise FitError(f"the noise record is sampled every {noise_record.sample_interval:.4g} s, the capture "
-                           f"every {dt:.4g} s", hint="record the noise at the capture's timebase")
+        noise_record.require_timebase(sample_interval(segments))
         if whitening_applies(joint, min_points=0):
             joint, best, correction = whitened_fit(joint, best, fixed_int, correction, "on",
                                                    whitener=noise_record.whitener, **whiten)

@@ -26,7 +26,7 @@ from dataclasses import dataclass
 from ..forms.base import ParamSpec
 from ..results import Estimate
 from .engine import FormFit
-from .region_profile import profile_interval, profile_wanted
+from .region_profile import profile_interval, profile_wanted, shape_widening
 from .uncertainty import MAX_LOG_STDERR, delta_method, log_interval, objective_is_asymmetric
 
 #: Derived quantities that may be zero or negative (linear intervals).
@@ -470,10 +470,12 @@ def _profiled(ff: FormFit, est: Estimate, reported: Mapping[str, float], at_boun
         return est
     half = ff.tq * log_se if log_se is not None else 0.5
     prof = profile_interval(ff, est.name, reported, half, at_bound)
-    if prof is None or not prof.closed or not prof.low <= est.value <= prof.high:
+    if prof is not None and not prof.closed:  # the data set no upper limit
+        return Estimate(est.name, est.value, None, None, est.unit,
+                        "not determined (the profile likelihood does not close above)", False)
+    if prof is None or not prof.low <= est.value <= prof.high:
         return est
-    widen = float(max((ff.correction.widening[list(ff.fit.names).index(k)]
-                       for k in ff.fit.names if k.startswith("log_")), default=1.0))
+    widen = shape_widening(ff)
     pair = " and ".join(p.name for p in ff.form.reported_shape)
     if prof.one_sided:
         method = _method(widen, f"profile likelihood over {pair}; the data allow {est.name} down to 0 "

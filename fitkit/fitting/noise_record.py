@@ -44,7 +44,7 @@ class NoiseRecord:
         must have the same.
     n_samples: samples in the record.
     rms: the record's rms noise about its straight-line drift (V).
-    source: where it came from (a file name), for the result's notes.
+    source: where it came from (a file name), named in its errors.
     """
 
     whitener: Whitener
@@ -53,21 +53,22 @@ class NoiseRecord:
     rms: float
     source: str = ""
 
-    def describe(self) -> str:
-        where = f" {self.source}" if self.source else ""
-        return (f"noise record{where} ({self.n_samples} samples, {self.rms:.3g} V rms, "
-                f"order-{self.whitener.order} autoregressive model)")
-
     def matches(self, sample_interval: float) -> bool:
         """True when a capture sampled every ``sample_interval`` s can use this record."""
         return math.isfinite(sample_interval) and \
             abs(sample_interval - self.sample_interval) <= SAMPLE_INTERVAL_TOLERANCE * self.sample_interval
 
+    def require_timebase(self, sample_interval: float, path: str | None = None) -> None:
+        """Raise FitError unless a capture sampled every ``sample_interval`` s can use this record."""
+        if not self.matches(sample_interval):
+            raise FitError(f"the noise record is sampled every {self.sample_interval:.4g} s, the capture every "
+                           f"{sample_interval:.4g} s", path=path or None,
+                           hint="record the noise at the capture's timebase")
+
 
 def noise_record_from_samples(values: np.ndarray, sample_interval: float, source: str = "") -> NoiseRecord:
     """The noise model of ``values`` (V), a quiet record sampled every ``sample_interval`` s."""
-    x = np.asarray(values, dtype=float)
-    x = x[np.isfinite(x)]
+    x = _longest_finite_run(np.asarray(values, dtype=float))
     where = source or None
     if x.size < MIN_RECORD_SAMPLES:
         raise FitError(f"the noise record has {x.size} samples; at least {MIN_RECORD_SAMPLES} are needed",
@@ -95,16 +96,34 @@ def noise_record_from_samples(values: np.ndarray, sample_interval: float, source
     return NoiseRecord(whitener, float(sample_interval), n, math.sqrt(variance), source)
 
 
+def _longest_finite_run(x: np.ndarray) -> np.ndarray:
+    """The longest stretch of consecutive finite samples (a gap would join unrelated noise)."""
+    finite = np.isfinite(x)
+    if finite.all():
+        return x
+    edges = np.flatnonzero(np.diff(np.concatenate([[0], finite.astype(np.int8), [0]])))
+    starts, stops = edges[::2], edges[1::2]
+    if starts.size == 0:
+        return x[:0]
+    longest = int(np.argmax(stops - starts))
+    return x[starts[longest]:stops[longest]]
+
+
 def noise_record_from_capture(capture: Capture, channel: str | int | None = None) -> NoiseRecord:
     """The noise model of one channel of a quiet capture: ``channel`` by name or
-    position, or the capture's only channel."""
+    position (as :meth:`Capture.channel` finds it), or the capture's only channel."""
     path = capture.provenance.path or ""
     names = capture.channel_names
-    if channel is None or (isinstance(channel, str) and channel not in names):
+    found = None
+    if channel is not None:
+        try:
+            found = capture.channel(channel)
+        except (KeyError, IndexError, ValueError):
+            found = None
+    if found is None:
         if len(names) != 1:
             wanted = f"no channel {channel!r}; " if channel is not None else ""
             raise FitError(f"the noise record has {wanted}channels {', '.join(names)}", path=path or None,
                            hint="record only the output channel, or name it the same as in the capture")
-        channel = names[0]
-    values = capture.channel(channel).values
-    return noise_record_from_samples(values, capture.sample_interval, path)
+        found = capture.channel(names[0])
+    return noise_record_from_samples(found.values, capture.sample_interval, path)

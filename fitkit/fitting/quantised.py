@@ -23,6 +23,9 @@ and ln sigma together, with the exact gradient of the log-likelihood, from
 the least-squares fit. The covariance is the inverse of the
 expected Fisher information of the parameters and sigma together.
 
+The noise is taken as white (the correlation least squares sees in the
+residuals of such a trace is mostly the rounding's, which this model
+describes); a fit whitened by a separate noise record is left as it is.
 Applied to ideal-step fits on one code lattice whose least-squares residual
 rms is under half a code (noise under about 0.4 codes), sample by sample
 (a fit that binned long edges is refitted over every sample, up to
@@ -81,13 +84,18 @@ def log_likelihood(y: np.ndarray, mean: np.ndarray, sigma: float, step: float) -
     return float(np.sum(_log_interval_probability(lower, upper)))
 
 
-def sample_information(mean: np.ndarray, sigma: float, step: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def sample_information(mean: np.ndarray, sigma: float, step: float, origin: float = 0.0
+                       ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Expected Fisher information of each rounded sample about (its mean, ln sigma):
-    the per-sample entries I_mm, I_ms, I_ss, summed over the codes it may fall in."""
+    the per-sample entries I_mm, I_ms, I_ss, summed over the codes it may fall in.
+
+    The codes are ``origin + k * step`` (k whole): in the engine's scaled volts
+    they sit wherever the scaling put them, so ``origin`` is one observed code.
+    """
     span = int(math.ceil(CODE_SPAN_SIGMAS * sigma / step)) + 2
-    codes = np.round(mean / step)[:, None] + np.arange(-span, span + 1)[None, :]
-    lower = ((codes - 0.5) * step - mean[:, None]) / sigma
-    upper = ((codes + 0.5) * step - mean[:, None]) / sigma
+    codes = origin + step * (np.round((mean - origin) / step)[:, None] + np.arange(-span, span + 1)[None, :])
+    lower = (codes - 0.5 * step - mean[:, None]) / sigma
+    upper = (codes + 0.5 * step - mean[:, None]) / sigma
     prob = special.ndtr(upper) - special.ndtr(lower)
     pdf_lo, pdf_hi = np.exp(-0.5 * lower**2), np.exp(-0.5 * upper**2)
     root = math.sqrt(2.0 * math.pi)
@@ -116,10 +124,10 @@ def _scores(y: np.ndarray, mean: np.ndarray, sigma: float, step: float) -> tuple
     return (np.where(np.isfinite(d_mean), d_mean, 0.0), np.where(np.isfinite(d_log_sigma), d_log_sigma, 0.0))
 
 
-def _information(jac: np.ndarray, mean: np.ndarray, sigma: float, step: float) -> np.ndarray:
+def _information(jac: np.ndarray, mean: np.ndarray, sigma: float, step: float, origin: float) -> np.ndarray:
     """Expected Fisher information (k + 1, k + 1) of the parameters (Jacobian ``jac``
-    of the mean) and ln sigma together."""
-    info_mm, info_ms, info_ss = sample_information(mean, sigma, step)
+    of the mean) and ln sigma together, codes at ``origin + k * step``."""
+    info_mm, info_ms, info_ss = sample_information(mean, sigma, step, origin)
     k = jac.shape[1]
     full = np.empty((k + 1, k + 1))
     full[:k, :k] = jac.T @ (info_mm[:, None] * jac)
@@ -162,6 +170,9 @@ def code_step(ff: FormFit, joint: JointModel) -> float | None:
 def quantised_refit(ff: FormFit) -> FormFit | None:
     """``ff`` refitted by maximum likelihood for rounding to codes (module docstring),
     or None when it does not apply or does not converge."""
+    whitener = getattr(ff.joint, "whitener", None)
+    if whitener is not None and whitener.record_samples is not None:
+        return None  # the user's noise record says the noise is correlated: keep its GLS fit
     joint = sample_model(ff)
     q = None if joint is None else code_step(ff, joint)
     if q is None:
@@ -221,8 +232,8 @@ def quantised_refit(ff: FormFit) -> FormFit | None:
     d_mean, d_log_sigma = _scores(y, current.fitted, sigma, q)
     gradient = np.concatenate([current.jacobian.T @ d_mean, [float(d_log_sigma.sum())]])
     try:
-        decrement = float(gradient @ np.linalg.solve(_information(current.jacobian, current.fitted, sigma, q),
-                                                     gradient))
+        decrement = float(gradient @ np.linalg.solve(
+            _information(current.jacobian, current.fitted, sigma, q, float(y[0])), gradient))
     except np.linalg.LinAlgError:
         return None
     converged = math.isfinite(found.fun) and decrement < DECREMENT_TOLERANCE
@@ -234,7 +245,7 @@ def quantised_refit(ff: FormFit) -> FormFit | None:
 def _as_form_fit(ff: FormFit, joint, fit: ModelFit, sigma: float, q: float) -> FormFit | None:
     """The FormFit of the maximum-likelihood estimate: covariance from the expected
     information of the parameters and ln sigma together (the parameters' block of its inverse)."""
-    full = _information(fit.jacobian, fit.fitted, sigma, q)
+    full = _information(fit.jacobian, fit.fitted, sigma, q, float(joint.y[0]))
     k = fit.jacobian.shape[1]
     # through the SVD of a square root of the information, as for least squares
     w, v = np.linalg.eigh(full)
@@ -248,9 +259,9 @@ def _as_form_fit(ff: FormFit, joint, fit: ModelFit, sigma: float, q: float) -> F
     stderr = {n: math.sqrt(cov[i, i]) for i, n in enumerate(fit.names)}
     refit = replace(fit, covariance=cov, stderr=stderr, converged=True,
                     message="maximum likelihood for a trace rounded to codes")
-    text = (f"maximum likelihood for rounding to codes of {q * joint.scaling.volt_unit:.3g} V with Gaussian noise "
-            f"of {sigma * joint.scaling.volt_unit:.3g} V rms ({sigma / q:.2f} codes) estimated with it: the noise "
-            "is below one code, where least squares is biased")
+    text = (f"maximum likelihood for rounding to codes of {q * joint.scaling.volt_unit:.3g} V with white "
+            f"Gaussian noise of {sigma * joint.scaling.volt_unit:.3g} V rms ({sigma / q:.2f} codes) estimated with "
+            "it: the noise is below one code, where least squares is biased")
     correction = Correction(cov, np.ones(k), ff.correction.lag1, 0, True, text, 1.0, None)
     dof = max(fit.n - k - 1, 1)
     return FormFit(ff.form, joint, refit, correction, t_quantile(dof), ff.notes, ROUNDED_GAUSSIAN)

@@ -37,7 +37,7 @@ from typing import Callable, Mapping
 import numpy as np
 from scipy import optimize
 
-from .engine import FormFit
+from .engine import FormFit, sample_interval
 from .projection import least_squares_search, nonlinear_names, projected_model
 
 #: Reported quantities whose linearised log standard error exceeds this get a
@@ -47,6 +47,9 @@ PROFILE_ABOVE_LOG_STDERR = 0.05
 PROFILE_REACH = 20.0
 #: Accuracy of the interval ends, natural-log units (0.1 %).
 END_TOLERANCE = 1e-3
+#: The reference sum of squares is lowered to a better fit the profile finds
+#: when it is lower by more than this fraction of the threshold.
+REFERENCE_SLACK = 0.01
 #: A time constant below this fraction of the sample interval counts as zero.
 ZERO_FRACTION = 1e-3
 #: The other time constant is held within this factor (natural-log units) of the profiled one.
@@ -183,12 +186,6 @@ def _outward_offsets(first: float, reach: float) -> list[float]:
     return offsets + [reach]
 
 
-def sample_interval(ff: FormFit) -> float:
-    """Median sample interval of the first edge's window (s)."""
-    d = np.diff(np.asarray(ff.joint.segments[0].time, dtype=float))
-    return float(np.median(d)) if d.size else math.nan
-
-
 def profile_interval(ff: FormFit, name: str, reported: Mapping[str, float], half_width_log: float,
                      at_bound: bool = False) -> ProfileInterval | None:
     """The profile-likelihood interval of reported quantity ``name`` (see module
@@ -217,7 +214,7 @@ def profile_interval(ff: FormFit, name: str, reported: Mapping[str, float], half
     # a time constant that short is a step within one sample, no different
     # from zero (common practice, no source), and the model's closed forms lose
     # accuracy far below it; a fit that ran further down starts from there.
-    dt = sample_interval(ff)
+    dt = sample_interval(ff.joint.segments)
     floor = math.log(ZERO_FRACTION * dt / profile.unit) if dt > 0 else centre - PROFILE_REACH
     centre = max(centre, floor)
     if at_bound:
@@ -234,25 +231,41 @@ def profile_interval(ff: FormFit, name: str, reported: Mapping[str, float], half
         best = float(r0 @ r0)
     if not math.isfinite(best):
         return None
-    keys = [n for n in ff.fit.names if n.startswith("log_")]
-    widen = max((float(ff.correction.widening[list(ff.fit.names).index(k)]) for k in keys), default=1.0)
-    threshold = ff.tq ** 2 * ff.fit.s2 * widen ** 2
+    threshold = ff.tq ** 2 * ff.fit.s2 * shape_widening(ff) ** 2
+    ends, lowest = _ends(profile, centre, floor, half_width_log, best, threshold)
+    if ends is not None and lowest < best - REFERENCE_SLACK * threshold:
+        # the profile found a better fit than the reported one (a search that
+        # stopped in a flat valley): the likelihood ratio is taken against it
+        ends, _ = _ends(profile, centre, floor, half_width_log, lowest, threshold)
+    if ends is None:  # the inner search cannot reproduce the fit: keep the region's range
+        return None
+    low_end, high_end = ends
+    low = 0.0 if low_end is None else math.exp(low_end) * profile.unit
+    high = math.inf if high_end is None else math.exp(high_end) * profile.unit
+    return ProfileInterval(name, low, high, high_end is not None)
 
+
+def _ends(profile: _Profile, centre: float, floor: float, first_step: float, best: float, threshold: float
+          ) -> tuple[tuple[float | None, float | None] | None, float]:
+    """(low end, high end) of {v : S_p(v) - best <= threshold} in log scaled units
+    (None for an end not reached: below the floor, or beyond PROFILE_REACH), and
+    the smallest S_p seen; (None, lowest) when the profile at ``centre`` is
+    already above the threshold."""
     seen: dict[float, float] = {}
 
     def excess(v: float) -> float:
-        """S_p(v) - S_best - threshold; each v evaluated once, so that the bracket's
+        """S_p(v) - best - threshold; each v evaluated once, so that the bracket's
         signs stay as found (the inner search's warm start depends on the path)."""
         if v not in seen:
             seen[v] = profile.rss(v) - best - threshold
         return seen[v]
 
-    if not excess(centre) < 0:  # the inner search cannot reproduce the fit: keep the region's range
-        return None
-    ends = []
+    if not excess(centre) < 0:
+        return None, best
+    ends: list[float | None] = []
     for side, reach in ((-1.0, centre - floor), (1.0, PROFILE_REACH)):
         inside, outside = centre, None
-        for offset in _outward_offsets(half_width_log, reach):
+        for offset in _outward_offsets(first_step, reach):
             trial = centre + side * offset
             if excess(trial) > 0:
                 outside = trial
@@ -263,10 +276,15 @@ def profile_interval(ff: FormFit, name: str, reported: Mapping[str, float], half
             continue
         lo, hi = sorted((inside, outside))
         ends.append(optimize.brentq(excess, lo, hi, xtol=END_TOLERANCE))
-    low_end, high_end = ends
-    low = 0.0 if low_end is None else math.exp(low_end) * profile.unit
-    high = math.inf if high_end is None else math.exp(high_end) * profile.unit
-    return ProfileInterval(name, low, high, high_end is not None)
+    lowest = min(seen.values()) + best + threshold
+    return (ends[0], ends[1]), lowest
+
+
+def shape_widening(ff: FormFit) -> float:
+    """The largest widening of the shape parameters' intervals for correlated residuals (>= 1)."""
+    names = list(ff.fit.names)
+    return float(max((ff.correction.widening[names.index(k)] for k in names if k.startswith("log_")),
+                     default=1.0))
 
 
 def profile_wanted(log_stderr: float | None, determined: bool) -> bool:
