@@ -475,7 +475,7 @@ def _profiled(ff: FormFit, est: Estimate, reported: Mapping[str, float], at_boun
                         "not determined (the profile likelihood does not close above)", False)
     if prof is None or not prof.low <= est.value <= prof.high:
         return est
-    widen = shape_widening(ff)
+    widen = shape_widening(ff, est.name)
     pair = " and ".join(p.name for p in ff.form.reported_shape)
     if prof.one_sided:
         method = _method(widen, f"profile likelihood over {pair}; the data allow {est.name} down to 0 "

@@ -43,6 +43,8 @@ from .projection import least_squares_search, nonlinear_names, projected_model
 #: Reported quantities whose linearised log standard error exceeds this get a
 #: profile-likelihood interval (below it the quadratic region is accurate).
 PROFILE_ABOVE_LOG_STDERR = 0.05
+#: First step (natural-log units, 5 %) of the outward search of the profile.
+FIRST_OFFSET = 0.05
 #: How far (natural-log units) from its value a quantity's profile is followed.
 PROFILE_REACH = 20.0
 #: Accuracy of the interval ends, natural-log units (0.1 %).
@@ -173,13 +175,16 @@ class _Profile:
         return s if math.isfinite(s) else math.inf
 
 
-def _outward_offsets(first: float, reach: float) -> list[float]:
+def _outward_offsets(reach: float) -> list[float]:
     """Distances (log units) at which the profile is tried outwards: doubling from
-    ``first`` (at least 0.05) up to ``reach``, which is always the last (none when
-    ``reach`` is not positive)."""
+    :data:`FIRST_OFFSET` up to ``reach``, which is always the last (none when
+    ``reach`` is not positive). Starting small finds the rise of the profile
+    next to the fit even when the linearised interval was far too wide (the
+    likelihood of a slow ramp under low-pass noise can dip below the threshold
+    again far away; the interval is the stretch around the fit)."""
     if not reach > 0:
         return []
-    offsets, step = [], min(max(first, 0.05), reach)
+    offsets, step = [], min(FIRST_OFFSET, reach)
     while step < reach:
         offsets.append(step)
         step *= 2.0
@@ -193,7 +198,8 @@ def profile_interval(ff: FormFit, name: str, reported: Mapping[str, float], half
     range).
 
     reported: the reported pair at the reported point (SI), where the profile starts.
-    half_width_log: the linearised interval's half-width in log units, the first step outwards.
+    half_width_log: the linearised interval's half-width in log units (where to
+        look for the best fit within the range when ``at_bound``).
     at_bound: the fit lies beyond the form's range (e.g. Q > 1/2); the reference
         sum of squares is then the best within the range, found along the profile.
     """
@@ -231,12 +237,12 @@ def profile_interval(ff: FormFit, name: str, reported: Mapping[str, float], half
         best = float(r0 @ r0)
     if not math.isfinite(best):
         return None
-    threshold = ff.tq ** 2 * ff.fit.s2 * shape_widening(ff) ** 2
-    ends, lowest = _ends(profile, centre, floor, half_width_log, best, threshold)
+    threshold = ff.tq ** 2 * ff.fit.s2 * shape_widening(ff, name) ** 2
+    ends, lowest = _ends(profile, centre, floor, best, threshold)
     if ends is not None and lowest < best - REFERENCE_SLACK * threshold:
         # the profile found a better fit than the reported one (a search that
         # stopped in a flat valley): the likelihood ratio is taken against it
-        ends, _ = _ends(profile, centre, floor, half_width_log, lowest, threshold)
+        ends, _ = _ends(profile, centre, floor, lowest, threshold)
     if ends is None:  # the inner search cannot reproduce the fit: keep the region's range
         return None
     low_end, high_end = ends
@@ -245,7 +251,7 @@ def profile_interval(ff: FormFit, name: str, reported: Mapping[str, float], half
     return ProfileInterval(name, low, high, high_end is not None)
 
 
-def _ends(profile: _Profile, centre: float, floor: float, first_step: float, best: float, threshold: float
+def _ends(profile: _Profile, centre: float, floor: float, best: float, threshold: float
           ) -> tuple[tuple[float | None, float | None] | None, float]:
     """(low end, high end) of {v : S_p(v) - best <= threshold} in log scaled units
     (None for an end not reached: below the floor, or beyond PROFILE_REACH), and
@@ -265,7 +271,7 @@ def _ends(profile: _Profile, centre: float, floor: float, first_step: float, bes
     ends: list[float | None] = []
     for side, reach in ((-1.0, centre - floor), (1.0, PROFILE_REACH)):
         inside, outside = centre, None
-        for offset in _outward_offsets(first_step, reach):
+        for offset in _outward_offsets(reach):
             trial = centre + side * offset
             if excess(trial) > 0:
                 outside = trial
@@ -280,11 +286,52 @@ def _ends(profile: _Profile, centre: float, floor: float, first_step: float, bes
     return (ends[0], ends[1]), lowest
 
 
-def shape_widening(ff: FormFit) -> float:
-    """The largest widening of the shape parameters' intervals for correlated residuals (>= 1)."""
+def shape_widening(ff: FormFit, name: str | None = None) -> float:
+    """The widening for correlated residuals of reported quantity ``name`` (>= 1):
+    sqrt(g^T V g / g^T C g) with g the gradient of its log over the fit
+    coordinates, V the corrected and C the plain covariance. Per coordinate the
+    ratio is ill-defined along a direction the data barely determine (tau2 -> 0
+    makes log tau0 and log Q nearly collinear, and each may read x400 while
+    log tau1 = log tau0 - log Q reads x3), and where even the quantity's own
+    ratio exceeds every other parameter's, the largest of those is used.
+    Without ``name``, or where the gradient cannot be taken, the smallest
+    coordinate's widening."""
     names = list(ff.fit.names)
-    return float(max((ff.correction.widening[names.index(k)] for k in names if k.startswith("log_")),
-                     default=1.0))
+    keys = [k for k in names if k.startswith("log_")]
+    factors = [float(ff.correction.widening[names.index(k)]) for k in keys]
+    finite = [f for f in factors if math.isfinite(f)]
+    fallback = max(1.0, min(finite)) if finite else 1.0
+    form = ff.form
+    if name is None or form.region_quantities is None or len(keys) != len(form.shape):
+        return fallback
+    sc = ff.joint.scaling
+    idx = [names.index("log_" + p.name) for p in form.shape]
+    theta = np.array([ff.fit.values["log_" + p.name] for p in form.shape])
+
+    def log_quantity(th: np.ndarray) -> float:
+        physical = {p.name: math.exp(v) * sc.shape_unit(p) for p, v in zip(form.shape, th)}
+        with np.errstate(all="ignore"):
+            value = float(np.asarray(form.region_quantities(**physical)[name]))
+        return math.log(value) if value > 0 else math.nan
+
+    h = 1e-5
+    grad = np.array([(log_quantity(theta + h * e) - log_quantity(theta - h * e)) / (2 * h)
+                     for e in np.eye(theta.size)])
+    plain = ff.fit.covariance[np.ix_(idx, idx)]
+    corrected = ff.correction.covariance[np.ix_(idx, idx)]
+    with np.errstate(all="ignore"):
+        top, bottom = float(grad @ corrected @ grad), float(grad @ plain @ grad)
+    if not (math.isfinite(top) and math.isfinite(bottom) and top > 0 and bottom > 0):
+        return fallback
+    ratio = math.sqrt(top / bottom)
+    # a shape block so degenerate that even this direction's ratio exceeds every
+    # level's and delay's (a fit that ran tau2 to nothing) is capped by them: the
+    # noise's correlation widens all parameters alike
+    others = [float(w) for k, w in zip(names, ff.correction.widening) if not k.startswith("log_")
+              and math.isfinite(float(w))]
+    if others and ratio > max(others):
+        ratio = max(others)
+    return max(1.0, ratio)
 
 
 def profile_wanted(log_stderr: float | None, determined: bool) -> bool:
