@@ -2,7 +2,7 @@
 
 The form is fitted in (tau0, Q), regular at the double pole, and reports tau1
 and tau2 with intervals taken as their range over the confidence region of
-(tau0, Q) within Q <= 1/2 (fitkit.fitting.estimates.bounded_region).
+(tau0, Q) within Q <= 1/2 (fitkit.fitting.region_estimates.bounded_region).
 
 Outside references used here:
 * numpy.roots of the denominator tau0^2 s^2 + (tau0/Q) s + 1 for the pole pair;

@@ -180,21 +180,16 @@ def quantised_refit(ff: FormFit) -> FormFit | None:
     names = tuple(ff.fit.names)
     y = joint.y
     values = dict(ff.fit.values)
-    residual = y - joint.evaluate(None, **values)
-    sigma = math.sqrt(max(float(np.mean(residual**2)) - q * q / 12.0, (0.05 * q) ** 2))
-
-    def at(vals):
-        return model_fit_at(joint.evaluate, vals, names, None, y, np.ones_like(y), converged=True,
-                            message="", nfev=0)
-
-    def best_sigma(mean: np.ndarray, start: float) -> float:
-        found = optimize.minimize_scalar(lambda ls: -log_likelihood(y, mean, math.exp(ls), q),
-                                         bounds=(math.log(1e-3 * q), math.log(2.0 * q)), method="bounded",
-                                         options={"xatol": 1e-6})
-        return math.exp(found.x) if found.success else start
-
-    current = at(values)
-    sigma = best_sigma(current.fitted, sigma)
+    with np.errstate(all="ignore"):
+        start_mean = joint.evaluate(None, **values)
+    # the start's noise: what the least-squares residuals hold beyond rounding,
+    # refined by maximising the likelihood over sigma alone
+    sigma = math.sqrt(max(float(np.mean((y - start_mean) ** 2)) - q * q / 12.0, (0.05 * q) ** 2))
+    found = optimize.minimize_scalar(lambda ls: -log_likelihood(y, start_mean, math.exp(ls), q),
+                                     bounds=(math.log(1e-3 * q), math.log(2.0 * q)), method="bounded",
+                                     options={"xatol": 1e-6})
+    if found.success:
+        sigma = math.exp(found.x)
     theta0 = np.array([values[n] for n in names] + [math.log(sigma)])
 
     def model_of(theta: np.ndarray) -> np.ndarray:
@@ -226,7 +221,8 @@ def quantised_refit(ff: FormFit) -> FormFit | None:
     values = dict(values)
     values.update(zip(names, (float(v) for v in theta[:-1])))
     sigma = math.exp(float(theta[-1]))
-    current = at(values)
+    current = model_fit_at(joint.evaluate, values, names, None, y, np.ones_like(y), converged=True,
+                           message="", nfev=0)
     # converged when the scoring decrement g^T F^-1 g (twice the rise in
     # log-likelihood a further step promises) is statistically nothing
     d_mean, d_log_sigma = _scores(y, current.fitted, sigma, q)

@@ -2,7 +2,7 @@
 
 A form fitted in internal coordinates (two real poles: fitted as tau0 and Q,
 reported as tau1 >= tau2) gets its reported parameters' intervals as ranges
-over the confidence region of the fit coordinates (:mod:`.estimates`). That
+over the confidence region of the fit coordinates (:mod:`.region_estimates`). That
 region is the quadratic approximation of the sum of squares, good while a
 quantity is well determined. A barely determined second pole (relative error
 of tens of per cent) is another matter: as tau2 -> 0 the response tends to a
@@ -286,7 +286,7 @@ def _ends(profile: _Profile, centre: float, floor: float, best: float, threshold
     return (ends[0], ends[1]), lowest
 
 
-def shape_widening(ff: FormFit, name: str | None = None) -> float:
+def shape_widening(ff: FormFit, name: str) -> float:
     """The widening for correlated residuals of reported quantity ``name`` (>= 1):
     sqrt(g^T V g / g^T C g) with g the gradient of its log over the fit
     coordinates, V the corrected and C the plain covariance. Per coordinate the
@@ -294,15 +294,14 @@ def shape_widening(ff: FormFit, name: str | None = None) -> float:
     makes log tau0 and log Q nearly collinear, and each may read x400 while
     log tau1 = log tau0 - log Q reads x3), and where even the quantity's own
     ratio exceeds every other parameter's, the largest of those is used.
-    Without ``name``, or where the gradient cannot be taken, the smallest
-    coordinate's widening."""
+    Where the gradient cannot be taken, the smallest coordinate's widening."""
     names = list(ff.fit.names)
     keys = [k for k in names if k.startswith("log_")]
     factors = [float(ff.correction.widening[names.index(k)]) for k in keys]
     finite = [f for f in factors if math.isfinite(f)]
     fallback = max(1.0, min(finite)) if finite else 1.0
     form = ff.form
-    if name is None or form.region_quantities is None or len(keys) != len(form.shape):
+    if form.region_quantities is None or len(keys) != len(form.shape):
         return fallback
     sc = ff.joint.scaling
     idx = [names.index("log_" + p.name) for p in form.shape]

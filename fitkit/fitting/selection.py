@@ -26,7 +26,7 @@ from ..forms import FORMS
 from ..forms.base import Form
 from ..results import CandidateScore, Estimate
 from .engine import FormFit
-from .estimates import OUTSIDE_RANGE, beyond_range_sigmas
+from .region_estimates import OUTSIDE_RANGE, beyond_range_sigmas
 
 #: AICc advantage a more complex form needs to be preferred.
 MARGIN = 10.0

@@ -96,7 +96,7 @@ class Form:
     region_quantities: f(**shape with numpy arrays) -> {name: array}, closed
         forms of (at least) every ``reported_shape`` parameter, vectorised and
         cheap; their intervals are the range over the confidence region of
-        the fit coordinates within the form's bounds (fitkit.fitting.estimates),
+        the fit coordinates within the form's bounds (fitkit.fitting.region_estimates),
         honest where the map is singular. Names it also gives that are among
         ``derived`` get the same treatment. None for ordinary forms.
     fit_coordinates: f(**reported_shape values) -> {shape name: value}, the

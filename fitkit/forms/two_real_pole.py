@@ -16,7 +16,7 @@ the step response: it is the second-order response of
 :mod:`fitkit.forms.second_order`, which is stable and continuous through
 critical damping. The fit may land slightly beyond Q = 1/2 (into mild
 ringing); the engine's estimates then report the nearest point of the form's
-range, Q = 1/2 (see fitkit.fitting.estimates.bounded_region), so ``shape``
+range, Q = 1/2 (see fitkit.fitting.region_estimates.bounded_region), so ``shape``
 declares Q <= 1/2.
 
 Results are reported in the trade's names: ``reported_shape`` (tau1 >= tau2)
