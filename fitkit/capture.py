@@ -154,6 +154,18 @@ class Capture:
         chans = tuple(self.channel(n) for n in names)
         return Capture(self.time, chans, self.metadata, self.provenance, self.warnings)
 
+    def with_time(self, time: Iterable[float], warning: str) -> "Capture":
+        """The same channels on another time axis (s, same length), with a warning saying why."""
+        return Capture(np.asarray(time, dtype=float), self.channels, self.metadata, self.provenance,
+                       self.warnings + (warning,))
+
+    def with_decisions(self, extra: Iterable[str]) -> "Capture":
+        """The capture with further plain-words decisions in its provenance."""
+        from dataclasses import replace
+        return Capture(self.time, self.channels, self.metadata,
+                       replace(self.provenance, decisions=self.provenance.decisions + tuple(extra)),
+                       self.warnings)
+
     def with_warnings(self, extra: Iterable[str]) -> "Capture":
         return Capture(self.time, self.channels, self.metadata, self.provenance,
                        self.warnings + tuple(extra))

@@ -9,4 +9,5 @@ USAGE = 2          #: wrong command-line usage (click's own status)
 INCONCLUSIVE = 3   #: `check`/`batch`: the data cannot decide pass or fail
 UNUSABLE_INPUT = 4 #: a file could not be read or holds no usable step
 ANALYSIS_FAILED = 5  #: a fit did not converge or is not determined by the data
+NOT_DESCRIBED = 6  #: the best fit does not describe the capture (residuals far above the noise, structured)
 INTERNAL = 70      #: a bug in fitkit (unexpected exception); please report it

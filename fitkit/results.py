@@ -123,6 +123,50 @@ class FitDiagnostics:
 
 
 @dataclass(frozen=True)
+class EdgeAdequacy:
+    """The residuals of one edge: RMS per sample (V) overall, before the fitted response
+    settles (baseline and moving response) and in the settled tail (quiet)."""
+
+    edge_time: float
+    rms: float
+    moving_rms: float
+    quiet_rms: float
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"edge_time": json_number(self.edge_time), "rms": json_number(self.rms),
+                "moving_rms": json_number(self.moving_rms), "quiet_rms": json_number(self.quiet_rms)}
+
+
+@dataclass(frozen=True)
+class Adequacy:
+    """Whether a fit describes its capture, and what would, when it does not.
+
+    describes_data: False when the residuals are far above the noise and structured.
+    misfit_ratio: RMS residual per sample over the noise RMS (NaN when the noise is unknown).
+    structure_ratio: moving-part over quiet-part residual RMS (NaN when a part is too short).
+    structured: the residuals show structure (see the module docstring).
+    finding: plain words for the top of the output ("" when the form describes the data).
+    fixes: what fitkit computed would work (another form, channel, window), each
+        one line with the option to give; filled by the caller that tried them.
+    edges: per-edge residual RMS, moving and quiet.
+    """
+
+    describes_data: bool
+    misfit_ratio: float
+    structure_ratio: float
+    structured: bool
+    finding: str = ""
+    fixes: tuple[str, ...] = ()
+    edges: tuple[EdgeAdequacy, ...] = ()
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"describes_data": self.describes_data, "misfit_ratio": json_number(self.misfit_ratio),
+                "structure_ratio": json_number(self.structure_ratio), "structured": self.structured,
+                "finding": self.finding, "fixes": list(self.fixes),
+                "edges": [e.to_dict() for e in self.edges]}
+
+
+@dataclass(frozen=True)
 class FittedSegment:
     """Data and fitted curve of one edge, for plots and residual checks.
 
@@ -159,6 +203,13 @@ class FitResult:
     warnings: tuple[str, ...] = ()
     components: Mapping[str, Estimate] = field(default_factory=dict)
     extra: Mapping[str, Any] = field(default_factory=dict)
+    #: whether the form describes the capture (see fitkit.fitting.adequacy); None when not assessed
+    adequacy: Adequacy | None = None
+
+    @property
+    def describes_data(self) -> bool:
+        """False when the fitted form does not describe the capture: its numbers are then not measurements."""
+        return self.adequacy is None or self.adequacy.describes_data
 
     def quantity(self, name: str) -> Estimate:
         """A parameter, derived quantity or component by name."""
@@ -168,20 +219,34 @@ class FitResult:
         raise KeyError(name)
 
     def to_dict(self) -> dict[str, Any]:
+        """Plain JSON-ready types. When the form does not describe the capture every
+        quantity has ``ci95`` None and ``determined`` False (its value is kept for
+        diagnosis), and ``adequacy`` says why."""
+        def table(estimates: Mapping[str, Estimate]) -> dict[str, Any]:
+            out = {k: v.to_dict() for k, v in estimates.items()}
+            if not self.describes_data:
+                for entry in out.values():
+                    entry.update(ci95=None, determined=False,
+                                 interval_method="none: the form does not describe the capture")
+            return out
+
         d: dict[str, Any] = {
             "file": self.file,
             "model": self.model,
-            "parameters": {k: v.to_dict() for k, v in self.parameters.items()},
-            "derived": {k: v.to_dict() for k, v in self.derived.items()},
+            "describes_data": self.describes_data,
+            "parameters": table(self.parameters),
+            "derived": table(self.derived),
             "selection": [c.to_dict() for c in self.selection],
             "selection_reason": self.selection_reason,
             "diagnostics": None if self.diagnostics is None else self.diagnostics.to_dict(),
             "warnings": list(self.warnings),
         }
         if self.components:
-            d["components"] = {k: v.to_dict() for k, v in self.components.items()}
+            d["components"] = table(self.components)
         if self.extra:
             d["extra"] = dict(self.extra)
+        if self.adequacy is not None:
+            d["adequacy"] = self.adequacy.to_dict()
         return d
 
     # -- views, handed off to fitkit.report (imported only when used) ---------------

@@ -101,6 +101,7 @@ def batch_exit_status(run: BatchRun) -> int:
     70 (INTERNAL)        some capture hit a bug in fitkit or its worker died;
     4 (UNUSABLE_INPUT)   some input is missing, unreadable or holds no usable step;
     5 (ANALYSIS_FAILED)  some fit did not converge or determines nothing;
+    6 (NOT_DESCRIBED)    some capture's best fit does not describe it;
     3 (INCONCLUSIVE)     some board's check was inconclusive;
     0 (OK)               every capture was fitted (fit mode) or passed (check mode).
 
@@ -115,6 +116,8 @@ def batch_exit_status(run: BatchRun) -> int:
         return exitcodes.UNUSABLE_INPUT
     if counts.get("fit-failed"):
         return exitcodes.ANALYSIS_FAILED
+    if counts.get("not-described"):
+        return exitcodes.NOT_DESCRIBED
     if counts.get("inconclusive"):
         return exitcodes.INCONCLUSIVE
     return exitcodes.OK

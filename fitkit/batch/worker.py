@@ -19,10 +19,12 @@ from typing import Any
 #:   pass / inconclusive / fail   check mode: the board's verdict against its design
 #:   no-step       the file was read but holds no usable step (flat trace, no edge)
 #:   fit-failed    a step was found but the fit did not converge or determines nothing
+#:   not-described fit mode: the best fit does not describe the capture (residuals far
+#:                 above the noise, structured); its numbers are not measurements
 #:   unreadable    the file cannot be read as a capture (garbage, empty, bad channel)
 #:   missing       a name given on the command line matched no file
 #:   error         a bug in fitkit or a worker that died; the reason says which
-STATUSES = ("fitted", "pass", "inconclusive", "fail", "no-step", "fit-failed", "unreadable",
+STATUSES = ("fitted", "pass", "inconclusive", "fail", "no-step", "fit-failed", "not-described", "unreadable",
             "missing", "error")
 
 #: Statuses of a capture that yielded quantities.
@@ -166,8 +168,10 @@ def _run_pipeline(path: str, settings: BatchSettings, record: dict[str, Any]) ->
         from ..fitting import fit_capture
         result = fit_capture(capture, model=settings.model, input=settings.input,
                              output=settings.output, average=settings.average)
-        record["status"] = "fitted"
+        record["status"] = "fitted" if result.describes_data else "not-described"
+        if not result.describes_data:
+            record["reason"] = result.adequacy.finding + "".join(f"; would work: {f}" for f in result.adequacy.fixes)
         record["model"] = result.model
-        record["quantities"] = _quantities(result)
+        record["quantities"] = _quantities(result) if result.describes_data else {}
         record["warnings"] = list(result.warnings)
         record["result"] = result.to_dict()

@@ -50,8 +50,13 @@ _OPTIONS: list[tuple[str, str, dict[str, Any]]] = [
     ("--encoding", "encoding", dict(metavar="NAME", help="Text encoding (default: UTF-8, else Latin-1).")),
     ("--channel", "channels",
      dict(multiple=True, metavar="NAME|N", help="Keep only this channel (name or 1-based position); repeatable.")),
-    ("--input", "input_channel", dict(metavar="NAME|N", help="The channel holding the drive (input).")),
+    ("--input", "input_channel", dict(metavar="NAME|N|none",
+                                      help="The channel holding the drive (input); none: ignore any drive "
+                                           "channel and find the edges in the output.")),
     ("--output", "output_channel", dict(metavar="NAME|N", help="The channel holding the response (output).")),
+    ("--drive-frequency", "drive_frequency",
+     dict(metavar="HZ", help="The square wave's frequency as set at the generator (e.g. 2k): the time axis is "
+                             "scaled so the drive's edges repeat at it (for a file whose time column is wrong).")),
 ]
 
 
@@ -81,6 +86,7 @@ class CaptureOptions:
     channels: tuple[str, ...] = ()
     input_channel: str | None = None
     output_channel: str | None = None
+    drive_frequency: str | None = None
 
     @classmethod
     def pop(cls, kwargs: dict[str, Any]) -> "CaptureOptions":
@@ -102,45 +108,34 @@ class CaptureOptions:
     def load(self, file: str, out_file: str | None = None) -> Capture:
         """Read FILE (and OUT_FILE: then FILE is the input, OUT_FILE the output)."""
         from ..io import load_capture
-        return load_capture(file, second_path=out_file, **self.load_kwargs())
+        capture = load_capture(file, second_path=out_file, **self.load_kwargs())
+        if self.drive_frequency is not None:
+            from ..conditioning.drive_period import with_drive_frequency
+            from ..units import parse_value
+            try:
+                frequency = parse_value(self.drive_frequency, "Hz")
+            except OptionError as exc:
+                raise OptionError(f"--drive-frequency: {exc.message}", hint=exc.hint) from None
+            capture = with_drive_frequency(capture, frequency)
+        return capture
 
     def roles(self, capture: Capture) -> tuple[str | None, str]:
         """(input channel name or None, output channel name) for this capture."""
         return channel_roles(capture, self.input_channel, self.output_channel)
 
 
-_INPUT_HINTS = ("in", "input", "vin", "v in", "drive", "stimulus", "dac", "source", "generator", "gen")
-_OUTPUT_HINTS = ("out", "output", "vout", "v out", "response", "adc", "load")
-
-
 def channel_roles(capture: Capture, input_channel: str | int | None = None,
                   output_channel: str | int | None = None) -> tuple[str | None, str]:
-    """Decide which channel is the drive (input) and which the response (output).
-
-    Given names win; then the roles set by a two-file join (metadata keys
-    "input channel" / "output channel"); then channel names that say so
-    ("Vin", "DAC" / "Vout", "ADC"). Otherwise a single channel is the output,
-    and with several the last one is the output and no input is assumed.
-    """
-    from ..io import INPUT_KEY, OUTPUT_KEY
-    names = capture.channel_names
-    inp = capture.channel(input_channel).name if input_channel is not None else None
-    out = capture.channel(output_channel).name if output_channel is not None else None
-    if out is None and capture.metadata.get(OUTPUT_KEY) in names:
-        out = capture.metadata[OUTPUT_KEY]
-    if inp is None and input_channel is None and capture.metadata.get(INPUT_KEY) in names:
-        inp = capture.metadata[INPUT_KEY]
-    lowered = {n: n.lower().strip() for n in names}
-    if out is None:
-        out = next((n for n in names if lowered[n] in _OUTPUT_HINTS and n != inp), None)
-    if inp is None and len(names) > 1:
-        inp = next((n for n in names if lowered[n] in _INPUT_HINTS and n != out), None)
-    if out is None:
-        out = next((n for n in reversed(names) if n != inp), names[-1])
-    if inp == out:
-        raise OptionError(f"channel {out!r} cannot be both the input and the output",
-                          hint="choose different channels with --input and --output")
-    return inp, out
+    """(input channel name or None, output channel name), decided by the library
+    from the user's names and the data (fitkit.conditioning.roles.assign_roles).
+    The input is returned as "none" when the user said there is none, so that the
+    fit does not choose one again."""
+    from ..conditioning.roles import NO_INPUT, assign_roles
+    roles = assign_roles(capture, input_channel, output_channel)
+    if roles.input is None:
+        no_input = isinstance(input_channel, str) and input_channel.strip().lower() == NO_INPUT
+        return (NO_INPUT if no_input else None), roles.output.name
+    return roles.input.name, roles.output.name
 
 
 def load_kwargs_from(kwargs: dict[str, Any]) -> dict[str, Any]:

@@ -155,7 +155,8 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
     outputs.validate([file, out_file, kwargs.get("circuit_file")], as_json=as_json)
     options = CaptureOptions.pop(kwargs)
     capture = options.load(file, out_file)
-    inp, out = options.roles(capture)
+    # the library decides the roles it was not told (and tries others when they fail)
+    inp, out = options.input_channel, options.output_channel
     t_edge = None if edge_time is None else parse_value(edge_time, "s")
     circuit_args = CircuitArgs.pop(kwargs)
     noise = None
@@ -165,7 +166,7 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
         if circuit_args.wanted:
             raise OptionError("--noise-record cannot be combined with --circuit or --topology",
                               hint="fit the form with the noise record, or the circuit without it")
-        noise = noise_record_from_capture(options.load(noise_record), out)
+        noise = noise_record_from_capture(options.load(noise_record), options.roles(capture)[1])
     if circuit_args.wanted:
         result = circuit_args.fit(capture, model=model, input=inp, output=out, edge_time=t_edge,
                                   average=average, intervals=intervals)
@@ -173,3 +174,17 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
         result = fit_capture(capture, model=model, input=inp, output=out, edge_time=t_edge,
                              average=average, intervals=intervals, noise_record=noise)
     emit_result(outputs, result, capture, as_json)
+    if not result.describes_data:
+        from .. import exitcodes
+        click.echo(f"fitkit: {result.file or file}: {not_described_line(result)}", err=True)
+        raise click.exceptions.Exit(exitcodes.NOT_DESCRIBED)
+
+
+def not_described_line(result) -> str:
+    """One line for stderr when the best fit does not describe the capture: the finding and the fix."""
+    adequacy = result.adequacy
+    fixes = "; ".join(adequacy.fixes)
+    advice = (f"what would work: {fixes}" if fixes else
+              "no form, channel or window fitkit tried describes it: choose the channels with --input/--output, "
+              "one edge with --edge-time, or another form with --model (see `fitkit forms`)")
+    return f"{adequacy.finding}. {advice}"

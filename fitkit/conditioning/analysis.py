@@ -24,7 +24,8 @@ from .edges import Edge, EdgeSearch, detect_edges, edge_sharpness, forced_edge, 
 from .levels import StateLevels, state_levels
 from .metrics import StepMetrics, step_metrics
 from .noise import NoiseEstimate, estimate_noise
-from .quality import clipped_runs, no_edge_error, segment_flags
+from .roles import assign_roles
+from .quality import MAX_CLIPPED_SHARE, clipped_error, clipped_runs, clipped_share, no_edge_error, segment_flags
 from .segment import StepSegment
 from .segments import average_segments, cut_segments, window_bounds
 
@@ -70,6 +71,8 @@ class StepAnalysis:
     flags: tuple[str, ...]
     file: str = ""
     averaged: bool = False
+    #: other (input, output) channel assignments worth trying, best first (fitkit.conditioning.roles)
+    alternatives: tuple[tuple[str | None, str], ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -91,73 +94,30 @@ class StepAnalysis:
         }
 
 
-_INPUT_HINTS = ("in", "vin", "input", "drive", "dac", "gen", "src", "source", "stim")
-
-
-def _looks_like_input(name: str) -> bool:
-    low = name.strip().lower()
-    return any(low == h or low.startswith(h + "_") or low.startswith(h + " ") or low.endswith("_" + h)
-               for h in _INPUT_HINTS)
-
-
-def _is_two_level_channel(channel: Channel) -> bool:
-    noise = estimate_noise(channel.values)
-    return is_two_level(state_levels(channel.values, quantisation_step=noise.quantisation_step), noise.rms)
-
-
 def choose_channels(capture: Capture, input: str | int | None, output: str | int | None
                     ) -> tuple[Channel | None, Channel, list[str]]:
-    """(input channel or None, output channel, decisions) from the user's choice or the data.
+    """(input channel or None, output channel, decisions): see fitkit.conditioning.roles."""
+    roles = assign_roles(capture, input, output)
+    return roles.input, roles.output, list(roles.decisions)
 
-    With one channel it is the output. With two or more and neither named, the
-    input is the channel with the sharpest edges (largest sample-to-sample
-    change relative to its range); on a near tie (within 20 %, as with a
-    high-pass response that jumps as fast as its drive) a channel that sits at
-    two levels wins, then one named like a drive ("in", "vin", "drive",
-    "dac", ...), then the first.
-    """
-    decisions: list[str] = []
-    chans = capture.channels
-    in_ch = capture.channel(input) if input is not None else None
-    out_ch = capture.channel(output) if output is not None else None
-    if in_ch is not None and out_ch is not None and in_ch.name == out_ch.name:
-        raise OptionError(f"the input and output are the same channel {in_ch.name!r}",
-                          hint="name two different channels")
-    if len(chans) == 1:
-        if in_ch is not None:
-            raise OptionError(f"channel {in_ch.name!r} cannot be the input: the capture has no other channel "
-                              "to be the output", path=capture.provenance.path or None,
-                              hint="leave the input unnamed to find the edges in the output")
-        only = chans[0]
-        decisions.append(f"one channel ({only.name!r}): it is the output, and the edges are found in it")
-        return None, only, decisions
-    if in_ch is None:
-        candidates = [c for c in chans if out_ch is None or c.name != out_ch.name]
-        scores = {c.name: edge_sharpness(c.values) for c in candidates}
-        ranked = sorted(candidates, key=lambda c: -scores[c.name])
-        best = ranked[0]
-        if len(ranked) > 1 and scores[ranked[1].name] * 1.2 >= scores[best.name]:
-            tied = [c for c in ranked if scores[c.name] * 1.2 >= scores[best.name]]
-            two_level = [c for c in tied if _is_two_level_channel(c)]
-            pool = two_level if 0 < len(two_level) < len(tied) else tied
-            named = [c for c in pool if _looks_like_input(c.name)]
-            best = named[0] if named else min(pool, key=lambda c: capture.channel_names.index(c.name))
-            reason = ("the one that sits at two levels" if pool is two_level
-                      else "named like a drive" if named else "the first of them")
-            others = ", ".join(repr(c.name) for c in tied if c is not best)
-            decisions.append(f"input channel {best.name!r}: its edges are about as sharp as those of "
-                             f"{others}, and it is {reason}")
-        else:
-            others = ", ".join(f"{c.name!r} {scores[c.name]:.2g}" for c in ranked[1:])
-            decisions.append(f"input channel {best.name!r}: it has the sharpest edges (largest step "
-                             f"between samples as a share of its range: {scores[best.name]:.2g}; {others})")
-        in_ch = best
-    if out_ch is None:
-        out_ch = next(c for c in chans if c.name != in_ch.name)
-        rest = [c.name for c in chans if c.name not in (in_ch.name, out_ch.name)]
-        note = f"; channels not used: {', '.join(map(repr, rest))}" if rest else ""
-        decisions.append(f"output channel {out_ch.name!r}: the first channel that is not the input{note}")
-    return in_ch, out_ch, decisions
+
+def _without_clipped(segments, metrics, runs: np.ndarray, out_ch: Channel, capture: Capture,
+                     decisions: list[str]):
+    """The segments (and their metrics) whose response is not clipped for more than
+    MAX_CLIPPED_SHARE of the samples after the edge; a ConditioningError when none is left."""
+    shares = [clipped_share(s, runs) for s in segments]
+    keep = [i for i, (share, _) in enumerate(shares) if share <= MAX_CLIPPED_SHARE]
+    if len(keep) == len(segments):
+        return tuple(segments), tuple(metrics)
+    if not keep:
+        start = float(capture.time[int(runs[:, 0].min())]) if runs.size else float(capture.time[0])
+        level = float(out_ch.values[int(runs[0, 0])]) if runs.size else float("nan")
+        count = sum(c for _, c in shares)
+        total = sum(int(round(c / sh)) if sh > 0 else 0 for sh, c in shares)
+        raise clipped_error(out_ch.name, level, out_ch.unit, count, total, start, capture.provenance.path)
+    decisions.append(f"{len(segments) - len(keep)} edge(s) not fitted: the response runs into the trace's clip "
+                     "level after them (the level it settles to is not observed)")
+    return tuple(segments[i] for i in keep), tuple(metrics[i] for i in keep)
 
 
 def _neighbours(found: tuple[Edge, ...], forced: Edge) -> list[Edge]:
@@ -207,7 +167,8 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
                   settling_band: float = 0.02) -> StepAnalysis:
     """Condition a capture: channels, edges, segments, noise, metrics and quality flags.
 
-    input, output: channel names or 1-based positions (None: chosen from the data).
+    input, output: channel names or 1-based positions (None: chosen from the data;
+        input "none": no drive channel).
     edge_time: force a single edge at this time (s) instead of searching.
     average: coherently average the edges of each direction into one segment.
     reference_levels: (low, high) fractions of the step for rise/fall times.
@@ -230,7 +191,8 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
                                 hint="check the time column of the file")
     repeated = int(np.count_nonzero(steps == 0))
     del steps
-    in_ch, out_ch, decisions = choose_channels(capture, input, output)
+    roles = assign_roles(capture, input, output)
+    in_ch, out_ch, decisions = roles.input, roles.output, list(roles.decisions)
     edge_ch = in_ch or out_ch
     for ch in (out_ch,) if in_ch is None else (in_ch, out_ch):
         bad = int(ch.values.size - np.count_nonzero(np.isfinite(ch.values)))
@@ -270,6 +232,7 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
     clipped = {out_ch.name: clipped_runs(out_ch.values, out_noise.rms, out_noise.quantisation_step)}
     if in_ch is not None:
         clipped[in_ch.name] = clipped_runs(in_ch.values, edge_noise.rms, edge_noise.quantisation_step)
+    segments, metrics = _without_clipped(segments, metrics, clipped[out_ch.name], out_ch, capture, decisions)
     segments = tuple(replace(s, flags=s.flags + segment_flags(s, m, clipped=clipped))
                      for s, m in zip(segments, metrics))
     flags: list[str] = []
@@ -296,4 +259,4 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
                         noise_rms=out_noise.rms, noise_method=out_noise.method,
                         quantisation_step=out_noise.quantisation_step, sample_interval=dt,
                         flags=tuple(flags), file=capture.provenance.path,
-                        averaged=bool(average and len(edges) > 1))
+                        averaged=bool(average and len(edges) > 1), alternatives=roles.alternatives)

@@ -30,6 +30,9 @@ MIN_TRANSITION_SAMPLES = 5
 MIN_BASELINE_SAMPLES = 10
 MIN_BASELINE_FRACTION = 0.02
 MIN_CLIPPED_RUN = 4
+#: A segment whose response sits clipped for more than this share of its samples
+#: after the edge is not fitted: the level it settles to is not observed.
+MAX_CLIPPED_SHARE = 0.1
 
 
 def clipped_runs(values: np.ndarray, noise_rms: float, quantisation_step: float | None) -> np.ndarray:
@@ -52,6 +55,30 @@ def clipped_runs(values: np.ndarray, noise_rms: float, quantisation_step: float 
         long_enough = (stops - starts) >= MIN_CLIPPED_RUN
         runs.append(np.column_stack((starts[long_enough], stops[long_enough])))
     return np.concatenate(runs).astype(np.int64) if runs else none
+
+
+def clipped_share(segment: StepSegment, runs: np.ndarray) -> tuple[float, int]:
+    """(share of the samples after the edge that lie in clipped runs, their count) of one segment."""
+    if runs.size == 0 or segment.time.size == 0:
+        return 0.0, 0
+    first = segment.start + int(np.searchsorted(segment.time, segment.edge_time))
+    after = segment.stop - first
+    if after <= 0:
+        return 0.0, 0
+    count = int(np.sum(np.clip(np.minimum(runs[:, 1], segment.stop) - np.maximum(runs[:, 0], first), 0, None)))
+    return count / after, count
+
+
+def clipped_error(channel: str, level: float, unit: str, count: int, total: int, start: float,
+                  path: str | None) -> ConditioningError:
+    """The error for a response whose every edge runs into the trace's clip level."""
+    return ConditioningError(
+        f"the response in channel {channel!r} sits flat at {format_value(level, unit)} from "
+        f"{_at(start)} on ({count} of {total} samples after the edges): it is clipped, so the level it "
+        "settles to, and with it every time constant, is not observed",
+        path=path or None,
+        hint="capture again with the whole response on screen (a larger vertical scale or range, more "
+             "attenuation, or a smaller drive); fitting only the unclipped start would guess the final level")
 
 
 def _at(seconds: float) -> str:

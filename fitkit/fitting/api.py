@@ -8,6 +8,8 @@ evidence, residual diagnostics and plain-words warnings.
 from __future__ import annotations
 
 import math
+import dataclasses
+from dataclasses import replace
 from typing import Iterable, Mapping, Sequence
 
 import numpy as np
@@ -15,10 +17,11 @@ import numpy as np
 from ..capture import Capture
 from ..conditioning.analysis import BELOW_ONE_CODE
 from ..conditioning.segment import StepSegment
-from ..errors import FitError
+from ..errors import FitError, FitkitError
 from ..forms import FORMS, get_form
 from ..forms.base import Form
 from ..results import Estimate, FitDiagnostics, FitResult, FittedSegment
+from .adequacy import assess
 from .engine import FormFit, fit_form, sample_interval
 from .estimates import derived_estimates, level_estimates, shape_estimates
 from .noise_record import NoiseRecord
@@ -29,7 +32,8 @@ from .selection import (CRITERION, FALLBACK_CANDIDATES, Candidate, admissibility
 #: Above this many samples per segment, candidate forms are compared on bins
 #: of at most this many points per segment (see fit_segments).
 SELECTION_POINTS_PER_SEGMENT = 1000
-#: RMS residual above this multiple of the expected noise means the form does not describe the data.
+#: RMS residual above this multiple of the noise earns a warning even when the form is kept
+#: (the adequacy gate, fitkit.fitting.adequacy, refuses far larger structured misfits).
 STRUCTURE_RATIO = 1.5
 
 
@@ -107,7 +111,8 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         if not queue and candidates is None and needs_fallback(cands):
             tried = {c.form.name for c in cands}
             queue = [FORMS[n] for n in FALLBACK_CANDIDATES if n in FORMS and n not in tried]
-    chosen, scores, reason, sel_warn = choose(cands)
+    chosen, scores, reason, sel_warn = choose(cands, dt)
+    fixes = _alternative_forms(chosen, cands, segments)
     final = chosen.fit
     if coarse:
         refit = fit_form(segments, chosen.form, **kwargs)
@@ -116,7 +121,8 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
     final = quantised_refit(final) or final
     shape, notes = shape_estimates(final, intervals)
     chosen = Candidate(chosen.form, final, shape, True, "")
-    return _build(chosen, scores, reason, sel_warn + notes + list(warnings), file, segments, derived)
+    return _build(chosen, scores, reason, sel_warn + notes + list(warnings), file, segments, derived,
+                  fixes=fixes)
 
 
 def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = None,
@@ -126,31 +132,78 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
     """Find the steps in a capture (fitkit.conditioning.analyse_steps) and fit them.
 
     model: a form name or "auto" (model selection among ``candidates``).
-    input, output: channel names/positions (default: conditioning's choice).
+    input, output: channel names/positions (default: chosen from the data,
+        fitkit.conditioning.roles; input "none": no drive channel).
     edge_time: seconds, to fit only the edge nearest this time.
     average: coherently average the edges before fitting.
     noise_record: see :func:`fit_segments`.
+
+    When the roles were chosen from the data and the fit does not describe the
+    capture, the other assignments the roles offer are fitted too, and the
+    first that does describe it is kept (said in the warnings); else the
+    result carries its finding and what would work.
     """
     from ..conditioning import analyse_steps  # written alongside; imported when used
 
+    options = dict(model=model, edge_time=edge_time, average=average, candidates=candidates,
+                   intervals=intervals, noise_record=noise_record)
     analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average)
+    result = _fit_analysis(capture, analysis, **options)
+    if result.describes_data or (input is not None and output is not None):
+        return result
+    tried = []
+    for alt_in, alt_out in analysis.alternatives:
+        if (input is not None and alt_in != input) or (output is not None and alt_out != output):
+            continue
+        try:
+            other = analyse_steps(capture, input=alt_in or "none", output=alt_out, edge_time=edge_time,
+                                  average=average)
+            alt = _fit_analysis(capture, other, **options)
+        except FitkitError:
+            continue
+        roles = f"input {alt_in!r}, output {alt_out!r}" if alt_in else f"no input, output {alt_out!r}"
+        if alt.describes_data:
+            note = (f"channel roles changed: with input {analysis.input_channel!r} and output "
+                    f"{analysis.output_channel!r} the {result.model} fit left residuals "
+                    f"{result.adequacy.misfit_ratio:.1f} times the noise; with {roles} the fit describes the "
+                    "capture (name the channels with --input and --output to decide yourself)")
+            return dataclasses.replace(alt, warnings=(note,) + tuple(alt.warnings))
+        tried.append(f"{roles}: residuals {alt.adequacy.misfit_ratio:.1f} times the noise")
+    if tried and result.adequacy is not None:
+        finding = result.adequacy.finding + "; other channel roles tried do not describe it either (" + \
+            "; ".join(tried) + ")"
+        result = dataclasses.replace(result, adequacy=replace(result.adequacy, finding=finding))
+    return result
+
+
+def _fit_analysis(capture: Capture, analysis, *, model, edge_time, average, candidates, intervals,
+                  noise_record) -> FitResult:
+    """Fit the segments of one conditioning of ``capture``; the roles' decisions lead the warnings."""
     warnings = list(capture.warnings) + list(getattr(analysis, "flags", ()))
     for seg in analysis.segments:
         warnings.extend(f for f in seg.flags if f not in warnings)
     path = capture.provenance.path
     try:
-        return fit_segments(analysis.segments, model, candidates=candidates, intervals=intervals,
-                            file=path, warnings=warnings, noise_record=noise_record)
+        result = fit_segments(analysis.segments, model, candidates=candidates, intervals=intervals,
+                              file=path, warnings=warnings, noise_record=noise_record)
     except FitError as err:
         if err.path is None and path:
             raise FitError(err.message, path=path, hint=err.hint) from None
         raise
+    from ..conditioning.drive_period import period_of_edges
+    roles = {"input": analysis.input_channel, "output": analysis.output_channel,
+             "why": [d for d in analysis.decisions if "channel" in d]}
+    extra = {**result.extra, "channels": roles}
+    period = period_of_edges(analysis.edges)
+    if period is not None:
+        extra["drive_period"] = period
+    return dataclasses.replace(result, extra=extra)
 
 
 # -- assembling the result ------------------------------------------------------
 
 def _build(cand: Candidate, scores: tuple, reason: str, warnings: list[str], file: str,
-           segments: Sequence[StepSegment], with_derived: bool = True) -> FitResult:
+           segments: Sequence[StepSegment], with_derived: bool = True, fixes: Sequence[str] = ()) -> FitResult:
     ff = cand.fit
     assert ff is not None
     shape = cand.shape
@@ -171,7 +224,11 @@ def _build(cand: Candidate, scores: tuple, reason: str, warnings: list[str], fil
     for name, est in list(params.items()) + list(derived.items()):
         if not est.determined:
             warnings.append(f"{name} is not determined by the data (interval unbounded); not a measurement")
-    diagnostics, diag_warn = _diagnostics(ff, segments)
+    diagnostics, diag_warn, adequacy = _diagnostics(ff, segments)
+    if not adequacy.describes_data:
+        adequacy = replace(adequacy, fixes=tuple(fixes))
+        reason = (f"{ff.form.name} fitted best of the forms tried, but does not describe the capture"
+                  if len(scores) > 1 else f"{ff.form.name} was asked for, but does not describe the capture")
     fitted = _fitted_segments(ff)
     edges = [{k: v.to_dict() for k, v in level_estimates(ff, i).items()} for i in range(len(segments))]
     seen: list[str] = []
@@ -183,7 +240,7 @@ def _build(cand: Candidate, scores: tuple, reason: str, warnings: list[str], fil
              "bin_size": max(d.bin_size for d in ff.joint.data)}
     return FitResult(file=file, model=ff.form.name, parameters=params, derived=derived, selection=scores,
                      selection_reason=reason, diagnostics=diagnostics, segments=fitted,
-                     warnings=tuple(seen), extra=extra)
+                     warnings=tuple(seen), extra=extra, adequacy=adequacy)
 
 
 def _add_gain(ff: FormFit, params: dict[str, Estimate], derived: dict[str, Estimate]) -> None:
@@ -206,29 +263,36 @@ def _add_gain(ff: FormFit, params: dict[str, Estimate], derived: dict[str, Estim
                                    ci, "", s.interval_method, s.determined)
 
 
-def _diagnostics(ff: FormFit, segments: Sequence[StepSegment]) -> tuple[FitDiagnostics, list[str]]:
-    fit, sc, corr = ff.fit, ff.joint.scaling, ff.correction
-    rms = math.sqrt(fit.rss / max(fit.n, 1)) * sc.volt_unit
+def capture_noise(segments: Sequence[StepSegment]) -> float:
+    """The output noise of a capture (V rms): the median of its segments' estimates, NaN when none."""
     noises = [s.noise_rms for s in segments if math.isfinite(s.noise_rms) and s.noise_rms > 0]
-    noise = float(np.median(noises)) if noises else math.nan
+    return float(np.median(noises)) if noises else math.nan
+
+
+def _diagnostics(ff: FormFit, segments: Sequence[StepSegment]):
+    """(FitDiagnostics, warnings, Adequacy) of a fit."""
+    fit, sc, corr = ff.fit, ff.joint.scaling, ff.correction
     # the residuals are weighted by sqrt(samples per point): rms is per sample
-    expected = noise
+    rms = math.sqrt(fit.rss / max(fit.n, 1)) * sc.volt_unit
+    expected = capture_noise(segments)
+    adequacy = assess(ff, expected, corr.lag1)
     shape_idx = [i for i, n in enumerate(fit.names) if n.startswith("log_")]
     widening = float(max((corr.widening[i] for i in shape_idx), default=1.0))
-    structured = bool(math.isfinite(expected) and rms > STRUCTURE_RATIO * expected)
+    structured = adequacy.structured and not adequacy.describes_data
     warnings = []
-    if structured:
+    if adequacy.describes_data and math.isfinite(expected) and rms > STRUCTURE_RATIO * expected:
         warnings.append(f"residuals ({rms:.3g} V rms) are {rms / expected:.1f} times the noise "
-                        f"({expected:.3g} V rms): the {ff.form.name} form does not fully describe the response")
+                        f"({expected:.3g} V rms): the {ff.form.name} form may not fully describe the "
+                        "response; its intervals include the misfit, not any bias it causes")
     elif corr.applied and abs(corr.lag1) > 0.9 and not math.isfinite(expected):
         warnings.append("residuals are strongly correlated; the form may not fully describe the response")
     correction = corr.description
     if corr.applied:
         correction += f"; intervals widened up to x{widening:.2f}"
-    diag = FitDiagnostics(n_samples=fit.n, rms_residual=rms, noise_rms=noise, residual_lag1=corr.lag1,
+    diag = FitDiagnostics(n_samples=fit.n, rms_residual=rms, noise_rms=expected, residual_lag1=corr.lag1,
                           effective_samples=fit.n / corr.variance_ratio, ci_widening=widening,
                           correction=correction, structured_residual=structured, criterion_name=CRITERION)
-    return diag, warnings
+    return diag, warnings, adequacy
 
 
 def _fitted_segments(ff: FormFit) -> tuple[FittedSegment, ...]:
@@ -240,6 +304,25 @@ def _fitted_segments(ff: FormFit) -> tuple[FittedSegment, ...]:
         out.append(FittedSegment(time=time, data=data, fitted=sc.volt_origin + piece * sc.volt_unit,
                                  edge_time=seg.edge_time, direction=seg.direction))
     return tuple(out)
+
+
+def _alternative_forms(chosen: Candidate, candidates: Sequence[Candidate],
+                       segments: Sequence[StepSegment]) -> list[str]:
+    """When the chosen form does not describe the capture: the other candidates
+    that would (residuals near the noise), as one line each with the option to
+    give and why they were set aside. Empty when the chosen form describes it."""
+    noise = capture_noise(segments)
+    if chosen.fit is None or assess(chosen.fit, noise, chosen.fit.correction.lag1).describes_data:
+        return []
+    fixes = []
+    for c in candidates:
+        if c is chosen or c.fit is None or not c.fit.converged:
+            continue
+        other = assess(c.fit, noise, c.fit.correction.lag1)
+        if other.describes_data:
+            why = f" (set aside: {c.note})" if c.note else ""
+            fixes.append(f"--model {c.form.name} leaves residuals {other.misfit_ratio:.1f} times the noise{why}")
+    return fixes
 
 
 def _runaway_note(ff: FormFit, dt: float) -> str:

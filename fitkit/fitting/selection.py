@@ -30,6 +30,10 @@ from .region_estimates import OUTSIDE_RANGE, beyond_range_sigmas
 
 #: AICc advantage a more complex form needs to be preferred.
 MARGIN = 10.0
+#: How a candidate set aside for a time constant below the sample interval is noted.
+SHORTER_THAN_SAMPLE = "is shorter than one sample interval"
+#: ... and promoted back only when its interval lies above this fraction of the sample interval.
+RESOLVED_FRACTION = 0.5
 CRITERION = "AICc"
 #: Default candidates, simplest first, used when they exist in FORMS.
 DEFAULT_CANDIDATES = ("first-order", "first-order-decay", "two-real-pole", "underdamped", "three-real-pole")
@@ -85,7 +89,7 @@ def admissibility(form: Form, shape: dict[str, Estimate], sample_interval: float
             return False, f"{spec.name} = {est.value:.3g} is not above {lower:g}, outside this form's range"
     for est in shape.values():
         if est.unit == "s" and est.value < sample_interval:
-            return False, f"{est.name} = {est.value:.3g} s is shorter than one sample interval"
+            return False, f"{est.name} = {est.value:.3g} s {SHORTER_THAN_SAMPLE}"
         if est.unit == "Hz" and est.value > 0.5 / sample_interval:
             return False, f"{est.name} is above the Nyquist frequency"
     q = shape.get("Q")
@@ -94,9 +98,14 @@ def admissibility(form: Form, shape: dict[str, Estimate], sample_interval: float
     return True, ""
 
 
-def choose(candidates: Sequence[Candidate]) -> tuple[Candidate, tuple[CandidateScore, ...], str, list[str]]:
-    """Pick the form; return (chosen, scores, reason in plain words, warnings)."""
+def choose(candidates: Sequence[Candidate], sample_interval: float = math.nan
+           ) -> tuple[Candidate, tuple[CandidateScore, ...], str, list[str]]:
+    """Pick the form; return (chosen, scores, reason in plain words, warnings).
+
+    sample_interval (s): for a time constant below it that the data support decisively.
+    """
     candidates = _set_aside_beyond_range(candidates)
+    candidates, promoted = _decisive_below_sample(candidates, sample_interval)
     usable = [c for c in candidates if c.fit is not None and c.fit.converged]
     if not usable:
         raise FitError("no candidate form converged",
@@ -118,6 +127,11 @@ def choose(candidates: Sequence[Candidate]) -> tuple[Candidate, tuple[CandidateS
                       f"(more than the {MARGIN:g} a more complex form needs)")
             chosen = c
     warnings: list[str] = []
+    if id(chosen) in promoted:
+        warnings.append(f"{chosen.form.name}: {promoted[id(chosen)]}, but the data "
+                        f"support it decisively ({CRITERION} lower by more than {MARGIN:g} than every simpler "
+                        "form, its interval bounded); it is reported, and its interval says how well the "
+                        "samples resolve it")
     runners = [c for c in ranked if c is not chosen]
     if runners:
         best_other = min(runners, key=lambda c: crit[c.form.name])
@@ -140,6 +154,42 @@ def choose(candidates: Sequence[Candidate]) -> tuple[Candidate, tuple[CandidateS
             rms_residual=_rms(c.fit) if ok else math.nan,
             note=("chosen" if c is chosen else c.note or "")))
     return chosen, tuple(scores), reason, warnings
+
+
+def _decisive_below_sample(candidates: Sequence[Candidate], sample_interval: float) -> tuple[list[Candidate], dict]:
+    """Candidates set aside only for a time constant shorter than one sample
+    interval made admissible again when the data support them decisively: every
+    shape parameter determined (bounded interval) and the criterion lower than
+    that of every admissible simpler candidate by more than the margin.
+
+    Within half a sample interval a pole cannot be told from the shape of the
+    drive between its samples (a converter's staircase against the straight
+    lines the model draws between input samples) and is not promoted.
+    Such a pole is faster than the sampling but not invisible: it delays and
+    rounds the start of the response by an amount far above the noise (a
+    logger at 1 kHz on a 0.4 ms pole). Dropping it for a form whose interval
+    excludes the truth is the confident wrong answer. Returns the candidates
+    and {id of a promoted candidate: the note it was set aside with}.
+    """
+    out = list(candidates)
+    promoted: dict[int, str] = {}
+    base = [c for c in out if c.admissible and c.fit is not None and c.fit.converged]
+    if not base:
+        return out, promoted
+    inflation = min(c.fit.correction.variance_ratio for c in base)
+    for i, c in enumerate(out):
+        if c.admissible or c.fit is None or not c.fit.converged or SHORTER_THAN_SAMPLE not in c.note:
+            continue
+        if not all(e.determined and e.ci95 is not None and e.ci95[0] > 0 for e in c.shape.values()):
+            continue
+        if any(e.unit == "s" and e.ci95[0] <= RESOLVED_FRACTION * sample_interval for e in c.shape.values()):
+            continue
+        simpler = [b for b in base if b.fit.n_parameters < c.fit.n_parameters]
+        gain = min((b.fit.aicc(inflation) - c.fit.aicc(inflation) for b in simpler), default=-math.inf)
+        if gain > MARGIN:
+            out[i] = replace(c, admissible=True, note="")
+            promoted[id(out[i])] = c.note
+    return out, promoted
 
 
 def _set_aside_beyond_range(candidates: Sequence[Candidate]) -> list[Candidate]:

@@ -29,18 +29,25 @@ def render_fit_text(result: FitResult, quiet: bool = False) -> str:
     space: ``name value ci95_low ci95_high unit``, numbers in plain SI
     (``repr``-exact to 10 significant digits), "-" for a missing interval or a
     dimensionless unit, and the value field "undetermined" (with "-" bounds)
-    when the data do not determine the quantity. Derived quantities that
+    when the data do not determine the quantity, or when the form does not
+    describe the capture (every quantity then). Derived quantities that
     repeat a parameter's name are listed once.
     """
     if quiet:
         return _quiet_lines(result)
     blocks = [_header(result)]
+    if not result.describes_data:
+        blocks.insert(0, _finding_block(result))
     for kind in ("parameter", "derived", "component"):
         rows = [r for r in quantity_rows(result, skip_repeated=True) if r.kind == kind]
         if rows:
             preferred = (result.extra or {}).get("preferred") if kind == "component" else None
             determination = (result.extra or {}).get("determination") if kind == "component" else None
-            blocks.append(_quantity_table(_SECTION_TITLES[kind], rows, preferred, determination))
+            title = _SECTION_TITLES[kind]
+            if not result.describes_data:
+                title += " of the rejected fit (not measurements: no intervals)"
+            blocks.append(_quantity_table(title, rows, preferred, determination,
+                                          measured=result.describes_data))
     if result.selection:
         blocks.append(_candidates_table(result))
     if result.diagnostics is not None:
@@ -61,12 +68,24 @@ def _plain(x: float | None) -> str:
     return format(float(x), ".10g")
 
 
+def _finding_block(result: FitResult) -> str:
+    """The top of a fit that does not describe its capture: the finding and what would work."""
+    adequacy = result.adequacy
+    lines = ["NOT A MEASUREMENT: " + adequacy.finding]
+    if adequacy.fixes:
+        lines.append("what fitkit found would work:")
+        lines += [f"{_INDENT}- {fix}" for fix in adequacy.fixes]
+    else:
+        lines.append("fitkit found no form, channel or window that describes it; see the warnings below")
+    return "\n".join(lines)
+
+
 def _quiet_lines(result: FitResult) -> str:
     lines = []
     for row in quantity_rows(result, skip_repeated=True):
         est = row.estimate
         unit = est.unit or "-"
-        if not is_reportable(est):
+        if not is_reportable(est) or not result.describes_data:
             lines.append(f"{row.name} undetermined - - {unit}")
             continue
         lo, hi = est.ci95 if est.ci95 is not None else (None, None)
@@ -94,6 +113,15 @@ def _header(result: FitResult) -> str:
     if mode:
         n_edges = len((result.extra or {}).get("edges") or [])
         lines.append(("mode", f"{mode}" + (f", {n_edges} edge(s) fitted jointly" if n_edges else "")))
+    channels = (result.extra or {}).get("channels")
+    if channels:
+        lines.append(("channels", (f"input {channels['input']!r}, " if channels.get("input") else "no input, ")
+                      + f"output {channels['output']!r}"))
+    period = (result.extra or {}).get("drive_period")
+    if period:
+        lines.append(("drive", f"square wave, edges every {format_quantity(period, 's')} "
+                               f"({format_quantity(1.0 / period, 'Hz')}) on the file's time axis; if the "
+                               "generator was set to another frequency, give --drive-frequency"))
     other = runner_up(result)
     if other is not None:
         lines.append(("runner-up", _candidate_phrase(other, criterion_name(result))))
@@ -113,7 +141,7 @@ def _candidate_phrase(cand, crit: str) -> str:
 
 
 def _quantity_table(title: str, rows: Sequence[QuantityRow], preferred: dict | None = None,
-                    determination: dict | None = None) -> str:
+                    determination: dict | None = None, measured: bool = True) -> str:
     """The table of one kind of quantity; ``preferred`` (components only: part ->
     {"E24": value, "E24_deviation": x, ...}, see fitkit.partfit) adds a nearest-E24 column,
     and ``determination`` (part -> {"status": "well determined", ...}) says how well
@@ -122,7 +150,7 @@ def _quantity_table(title: str, rows: Sequence[QuantityRow], preferred: dict | N
     for row in rows:
         est = row.estimate
         value = value_text(est)
-        interval = interval_text(est) if value != NOT_DETERMINED else ""
+        interval = interval_text(est) if value != NOT_DETERMINED and measured else ""
         cells = [row.name, value, interval or "-"]
         if preferred:
             p = preferred.get(row.name) if value != NOT_DETERMINED else None
@@ -163,10 +191,19 @@ def _diagnostics_block(result: FitResult) -> str:
         ["residual lag-1 correlation", f"{d.residual_lag1:.2f}" if math.isfinite(d.residual_lag1) else "n/a"],
         ["interval correction", d.correction or "none"],
         ["interval widening", widening],
-        ["structured residual", "yes: the form may not describe this response" if d.structured_residual
-         else "no"],
+        ["describes the capture", _describes_text(result)],
     ]
     return "Diagnostics\n" + "\n".join(_align(rows))
+
+
+def _describes_text(result: FitResult) -> str:
+    """The adequacy line of the diagnostics: yes, or no with the misfit and structure."""
+    a = result.adequacy
+    if a is None:
+        return "not assessed"
+    structure = f", moving/quiet residual {a.structure_ratio:.2f}" if math.isfinite(a.structure_ratio) else ""
+    head = "yes" if a.describes_data else "NO"
+    return f"{head} (residuals {a.misfit_ratio:.2f} x the noise{structure})"
 
 
 def _circuit_notes(result: FitResult) -> str:

@@ -1,0 +1,64 @@
+"""Study: fitkit on the real captures of ../shared/reference/real-captures, with no options.
+
+For each file: the exit status, the form, the checked quantities against the
+ranges of tests/real_corpus.py (from that folder's SOURCE.md), and the verdict
+(right, refused naming a fix, or wrong). Writes results/real_captures.{json,md}.
+
+    python benchmarks/study_real_captures.py
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE.parent / "tests"))
+
+from real_corpus import CASES, judge, run_fitkit  # noqa: E402
+
+
+def _fmt(x: float | None) -> str:
+    return "-" if x is None else f"{x:.4g}"
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--out", type=Path, default=HERE / "results")
+    args = parser.parse_args(argv)
+    if not CASES[0].path.parent.exists():
+        print(f"reference captures not found at {CASES[0].path.parent}; nothing to study")
+        return 1
+    rows = []
+    for case in CASES:
+        start = time.perf_counter()
+        status, data, stderr = run_fitkit(case.path, case.options)
+        seconds = time.perf_counter() - start
+        out = judge(case, status, data, stderr)
+        rows.append({"file": case.file, "options": " ".join(case.options), "circuit": case.circuit,
+                     "status": status, "form": out.form,
+                     "answer": out.answer, "expected": {e.name: [e.low, e.high, e.source] for e in case.expected},
+                     "verdict": out.verdict, "why": out.why, "message": out.message, "seconds": round(seconds, 2)})
+        print(f"{out.verdict:8s} {case.file}: {out.why}", flush=True)
+    counts = {v: sum(r["verdict"] == v for r in rows) for v in ("right", "refused", "wrong")}
+    args.out.mkdir(parents=True, exist_ok=True)
+    (args.out / "real_captures.json").write_text(json.dumps({"counts": counts, "rows": rows}, indent=1))
+    lines = ["| file | options | exit | form | answer | expected | verdict |", "|---|---|---|---|---|---|---|"]
+    for r in rows:
+        answer = ", ".join(f"{k} {_fmt(v)}" for k, v in r["answer"].items()) or r["message"][:90]
+        expected = ", ".join(f"{k} {_fmt(lo)}-{_fmt(hi)}" for k, (lo, hi, _) in r["expected"].items()) \
+            or "refusal"
+        lines.append(f"| {r['file']} | {r['options'] or 'none'} | {r['status']} | {r['form'] or '-'} | {answer} | "
+                     f"{expected} | {r['verdict']} |")
+    lines.append("")
+    lines.append(f"right {counts['right']}, refused naming a fix {counts['refused']}, wrong {counts['wrong']}")
+    (args.out / "real_captures.md").write_text("\n".join(lines) + "\n")
+    print(lines[-1])
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -1,0 +1,104 @@
+"""Does the fitted form describe the capture? The adequacy gate.
+
+A least-squares fit always returns numbers, and its intervals always look
+tight when the residual variance is small against the signal. They mean
+something only when the form describes the data: the residuals must then be
+noise. This module decides that from two measurements of the residuals:
+
+* **misfit ratio**: RMS residual per sample over the noise measured in the
+  capture (the spread of the settled pre-edge baseline, which includes
+  band-limited noise, or the first-difference estimate). Far above 1 means the
+  residuals hold more than noise.
+* **structure**: where the residuals are large. Noise, white or band-limited,
+  is as large where the response is still moving as where it has settled; a
+  form that does not describe the response leaves its misfit where the
+  response moves. The ratio of the residual RMS up to the point where the
+  fitted response stays within 2 % of its swing from the final level (the
+  pre-edge baseline and the moving response; a flat baseline the form does
+  not follow is misfit too) to that in the settled tail separates the two. Where one of the
+  two parts is too short to measure, the residuals' lag-1 autocorrelation
+  stands in for it.
+
+A fit is refused ("does not describe the capture") when the misfit ratio
+exceeds :data:`MISFIT_RATIO` and the residual is structured. The thresholds are
+set between the real captures whose forms were right (misfit 1.0 to 2.6x the
+noise) and those whose forms were wrong (7x to 340x) in
+../shared/reference/real-captures (benchmarks/study_real_captures.py); a
+correct form under band-limited noise measured by differences alone can show a
+high ratio, but not a structured one, so it is not refused.
+"""
+
+from __future__ import annotations
+
+import math
+import numpy as np
+
+from ..results import Adequacy, EdgeAdequacy
+
+#: RMS residual above this multiple of the noise is "far above the noise".
+MISFIT_RATIO = 2.0
+#: Moving-part residual RMS above this multiple of the quiet part's is structure.
+ACTIVE_TO_QUIET = 1.6
+#: Lag-1 autocorrelation above this is structure when the parts cannot be compared.
+LAG1_STRUCTURED = 0.5
+#: A part needs at least this many points to be measured.
+MIN_PART_POINTS = 8
+#: A point is in the moving part when the fitted response is further than this
+#: fraction of the step from its final level (after the edge).
+MOVING_FRACTION = 0.02
+
+
+def _rms(x: np.ndarray, counts: np.ndarray) -> float:
+    """RMS per sample of bin-mean residuals ``x`` already scaled by sqrt(counts)."""
+    n = float(np.sum(counts))
+    return math.sqrt(float(np.sum(x * x)) / n) if n > 0 else math.nan
+
+
+def edge_residuals(ff) -> list[EdgeAdequacy]:
+    """Per-edge residual RMS (V per sample), overall, moving and quiet, of a FormFit."""
+    joint, fit = ff.joint, ff.fit
+    sc = joint.scaling
+    weighted = joint.split(joint.weights * fit.residual)
+    fitted = joint.split(fit.fitted)
+    out = []
+    for seg, d, r, f in zip(joint.segments, joint.data, weighted, fitted):
+        counts = np.asarray(d.counts, dtype=float)
+        after = d.t_point >= 0
+        final = float(np.mean(f[-max(3, f.size // 20):]))
+        span = float(np.ptp(f)) or 1.0
+        outside = after & (np.abs(f - final) > MOVING_FRACTION * span)
+        # moving: from the edge until the fitted response enters its settling band for good
+        # (a ringing response crosses its final level many times before it settles)
+        last = int(np.flatnonzero(outside)[-1]) if outside.any() else -1
+        quiet = after & (np.arange(f.size) > last)
+        moving = ~quiet
+        part = (lambda m: _rms(r[m], counts[m]) * sc.volt_unit
+                if np.count_nonzero(m) >= MIN_PART_POINTS else math.nan)
+        out.append(EdgeAdequacy(seg.edge_time, _rms(r, counts) * sc.volt_unit, part(moving), part(quiet)))
+    return out
+
+
+def assess(ff, noise_rms: float, lag1: float) -> Adequacy:
+    """The adequacy of a converged FormFit against the capture's noise (V rms).
+
+    ``lag1``: the residuals' lag-1 autocorrelation (from the correction step).
+    """
+    edges = edge_residuals(ff)
+    rms = math.sqrt(ff.fit.rss / max(ff.fit.n, 1)) * ff.joint.scaling.volt_unit
+    ratio = rms / noise_rms if math.isfinite(noise_rms) and noise_rms > 0 else math.nan
+    moving = [e.moving_rms for e in edges if math.isfinite(e.moving_rms)]
+    quiet = [e.quiet_rms for e in edges if math.isfinite(e.quiet_rms)]
+    structure = (math.sqrt(np.mean(np.square(moving))) / math.sqrt(np.mean(np.square(quiet)))
+                 if moving and quiet and min(quiet) > 0 else math.nan)
+    if math.isfinite(structure):
+        structured = structure > ACTIVE_TO_QUIET
+    else:
+        structured = math.isfinite(lag1) and lag1 > LAG1_STRUCTURED
+    describes = not (math.isfinite(ratio) and ratio > MISFIT_RATIO and structured)
+    finding = ""
+    if not describes:
+        where = (f"{structure:.1f} times larger where the response moves than where it is quiet"
+                 if math.isfinite(structure) else f"correlated from sample to sample (lag-1 {lag1:.2f})")
+        finding = (f"the {ff.form.name} form does not describe this capture: its residuals are "
+                   f"{ratio:.1f} times the noise and {where}; its numbers are not measurements")
+    return Adequacy(describes, ratio, structure, structured, finding, (), tuple(edges))

@@ -1,0 +1,104 @@
+"""The adequacy gate: a fit whose form does not describe the capture is not a success.
+
+Captures are simulated by scipy.signal (lsim of the transfer function; see
+test_fitting_support), never by fitkit's forms. A right form must pass the
+gate under white and band-limited noise; a wrong form named by the user, or a
+response no candidate describes, must be refused: FitResult.describes_data
+False, JSON without intervals, exit status 6 with the finding on stderr.
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+from scipy import signal
+
+from fitkit import exitcodes
+from fitkit.capture import Capture
+from fitkit.cli import cli
+from fitkit.cli.errors_to_exit import run_with_error_handling
+from fitkit.fitting import fit_capture
+from test_fitting_support import coloured_noise, first_order_tf, second_order_tf, square_wave_capture, two_pole_tf
+
+
+def single_edge_capture(tf, *, dt: float, n: int, edge: float, rng, noise: float, band: float | None = None,
+                        with_input: bool = False) -> Capture:
+    """One 1 V step at ``edge`` (s) through ``tf`` by scipy.signal.lsim, output only by default."""
+    t = np.arange(n) * dt
+    drive = np.where(t >= edge, 1.0, 0.0)
+    _, out, _ = signal.lsim(tf, drive, t)
+    channels = {"vout": out + coloured_noise(rng, n, noise, band)}
+    if with_input:
+        channels = {"vin": drive + rng.normal(0.0, noise / 4, n), **channels}
+    return Capture.from_arrays(t, channels)
+
+
+def two_pole_file(folder, seed: int):
+    """A CSV of one step into real poles of 100 us and 30 us (scipy.signal.lsim), 2 mV noise."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(2000) * 1e-6
+    _, y, _ = signal.lsim(two_pole_tf(100e-6, 30e-6), np.where(t >= 0.3e-3, 1.0, 0.0), t)
+    path = folder / "two_pole.csv"
+    np.savetxt(path, np.column_stack([t, y + rng.normal(0, 0.002, t.size)]), delimiter=",",
+               header="time (s),vout (V)", comments="")
+    return path
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_right_form_under_white_noise_describes_the_capture(seed):
+    rng = np.random.default_rng(100 + seed)
+    cap = square_wave_capture(first_order_tf(50e-6), period=1e-3, dt=1e-6, n_periods=3, rng=rng, noise=0.01)
+    result = fit_capture(cap)
+    assert result.model == "first-order"
+    assert result.describes_data, result.adequacy
+    assert result.adequacy.misfit_ratio < 1.5
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_right_form_under_band_limited_noise_is_not_refused(seed):
+    """Band-limited noise (4th-order Butterworth at 0.1 x Nyquist, lag-1 correlation
+    about 0.97) leaves correlated residuals that are still only noise: not refused."""
+    rng = np.random.default_rng(200 + seed)
+    cap = single_edge_capture(second_order_tf(5e3, 2.0), dt=1e-6, n=3000, edge=0.5e-3, rng=rng,
+                              noise=0.01, band=0.1)
+    result = fit_capture(cap)
+    assert result.describes_data, result.adequacy
+
+
+def test_a_wrong_form_asked_for_is_refused_with_a_fix():
+    """Two real poles of 100 us and 30 us fitted as first-order: the misfit sits where the
+    response moves, so the gate refuses it and names the form that would work."""
+    rng = np.random.default_rng(7)
+    cap = single_edge_capture(two_pole_tf(100e-6, 30e-6), dt=1e-6, n=2000, edge=0.3e-3, rng=rng, noise=0.002)
+    wrong = fit_capture(cap, model="first-order")
+    assert not wrong.describes_data
+    assert wrong.adequacy.misfit_ratio > 2.0 and wrong.adequacy.structured
+    assert "does not describe" in wrong.adequacy.finding
+    right = fit_capture(cap)
+    assert right.describes_data and right.model == "two-real-pole"
+    # the JSON of the refused fit carries no interval
+    d = wrong.to_dict()
+    assert d["describes_data"] is False
+    assert all(e["ci95"] is None and not e["determined"] for e in d["parameters"].values())
+
+
+def test_cli_exit_status_6_and_one_line_on_stderr(tmp_path, capsys):
+    path = two_pole_file(tmp_path, seed=8)
+    status = run_with_error_handling(cli, ["fit", str(path), "--model", "first-order", "--json"])
+    out = capsys.readouterr()
+    assert status == exitcodes.NOT_DESCRIBED == 6
+    err_lines = [ln for ln in out.err.splitlines() if ln.strip()]
+    assert len(err_lines) == 1 and "does not describe" in err_lines[0] and str(path) in err_lines[0]
+    assert json.loads(out.out)["describes_data"] is False
+
+
+def test_text_output_puts_the_finding_first_and_prints_no_interval(tmp_path, capsys):
+    path = two_pole_file(tmp_path, seed=9)
+    status = run_with_error_handling(cli, ["fit", str(path), "--model", "first-order"])
+    text = capsys.readouterr().out
+    assert status == 6
+    assert text.startswith("NOT A MEASUREMENT: the first-order form does not describe this capture")
+    tau_line = next(ln for ln in text.splitlines() if ln.strip().startswith("tau "))
+    assert "[" not in tau_line  # no interval beside a number that is not a measurement
