@@ -318,6 +318,8 @@ def _alternative_forms(chosen: Candidate, candidates: Sequence[Candidate],
     for c in candidates:
         if c is chosen or c.fit is None or not c.fit.converged:
             continue
+        if "not determined" in c.note or "did not converge" in c.note:
+            continue  # a form whose own parameters the data do not fix is no fix
         other = assess(c.fit, noise, c.fit.correction.lag1)
         if other.describes_data:
             why = f" (set aside: {c.note})" if c.note else ""
