@@ -391,7 +391,13 @@ def _count_header_rows(above: list[tuple[TextLine, list[str]]], data_cols: set[i
     if not above:
         return 0
     last = above[-1][1]
-    if len(above) >= 2 and units_like(last) and names_like(above[-2][1]):
+    def numbered_names(cells: list[str]) -> bool:
+        # channel numbers as names ("x-axis,1,2,3,F1") above a units row
+        at = cells_at(cells)
+        return (len(at) == len(data_cols) and all(at) and any(not number_either(c) for c in at)
+                and not any(re.search(r"[:=]", c) for c in at))
+
+    if len(above) >= 2 and units_like(last) and (names_like(above[-2][1]) or numbered_names(above[-2][1])):
         return 2
     if names_like(last):
         return 1
