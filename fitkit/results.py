@@ -15,11 +15,14 @@ The JSON shape of a fit (see README "JSON output") is::
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
 import numpy as np
+
+from .errors import QuantityError
 
 
 def json_number(x: Any) -> float | None:
@@ -161,11 +164,45 @@ class FitResult:
     extra: Mapping[str, Any] = field(default_factory=dict)
 
     def quantity(self, name: str) -> Estimate:
-        """A parameter, derived quantity or component by name."""
+        """A parameter, derived quantity or component by name.
+
+        Raises QuantityError (a KeyError and a ValueError) naming the known quantities."""
+        if not isinstance(name, str):
+            raise QuantityError(f"quantity: a name is text, not {type(name).__name__}")
         for table in (self.parameters, self.derived, self.components):
             if name in table:
                 return table[name]
-        raise KeyError(name)
+        known = sorted(set(self.parameters) | set(self.derived) | set(self.components))
+        raise QuantityError(f"quantity: no quantity {name!r} in this result; known: {', '.join(known)}")
+
+    @property
+    def output_unit(self) -> str:
+        """Unit of the fitted output channel ("V", "counts", or "" when the file gave none)."""
+        return str(self.extra.get("output_unit", "V"))
+
+    def with_output_unit(self, unit: str) -> "FitResult":
+        """The same result with its levels (baseline, step, residuals) in ``unit``
+        instead of volts: a channel with no unit, or in raw counts, is never called volts."""
+        if unit == "V":
+            return self
+
+        def swap(e: Estimate) -> Estimate:
+            return dataclasses.replace(e, unit=unit) if e.unit == "V" else e
+
+        def swap_dict(d: Any) -> Any:
+            if isinstance(d, dict):
+                return {k: (unit if k == "unit" and v == "V" else swap_dict(v)) for k, v in d.items()}
+            if isinstance(d, list):
+                return [swap_dict(v) for v in d]
+            return d
+
+        extra = swap_dict(dict(self.extra))
+        extra["output_unit"] = unit
+        rms = f" {unit} rms" if unit else " rms"
+        warnings = tuple(w.replace(" V rms", rms) for w in self.warnings)
+        return dataclasses.replace(self, parameters={k: swap(v) for k, v in self.parameters.items()},
+                                   derived={k: swap(v) for k, v in self.derived.items()}, extra=extra,
+                                   warnings=warnings)
 
     def to_dict(self) -> dict[str, Any]:
         d: dict[str, Any] = {

@@ -111,7 +111,7 @@ def inspect(file: str, out_file: str | None, edge_time: str | None, average: boo
         click.echo(_text(report))
         if analysis is not None:
             click.echo("")
-            click.echo(render_text(analysis))
+            click.echo(render_text(analysis, unit=capture.channel(analysis.output_channel).unit))
     if problem is not None:
         click.echo(f"fitkit: error: {problem.one_line()}", err=True)
         return exitcodes.UNUSABLE_INPUT

@@ -139,8 +139,9 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
         warnings.extend(f for f in seg.flags if f not in warnings)
     path = capture.provenance.path
     try:
-        return fit_segments(analysis.segments, model, candidates=candidates, intervals=intervals,
-                            file=path, warnings=warnings, noise_record=noise_record)
+        result = fit_segments(analysis.segments, model, candidates=candidates, intervals=intervals,
+                              file=path, warnings=warnings, noise_record=noise_record)
+        return result.with_output_unit(capture.channel(analysis.output_channel).unit)
     except FitError as err:
         if err.path is None and path:
             raise FitError(err.message, path=path, hint=err.hint) from None
