@@ -76,3 +76,7 @@ class ArgumentError(OptionError, TypeError):
 
 class QuantityError(FitkitError, KeyError):
     """A result was asked for a quantity it does not hold (a KeyError too)."""
+
+
+class OutputError(FitkitError):
+    """An output file (or standard output) could not be written: disk full, no permission."""
