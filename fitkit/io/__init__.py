@@ -10,6 +10,7 @@ OptionError) leaves this package on bad input.
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 from typing import Iterable
 
@@ -56,6 +57,9 @@ def load_capture(path: str | Path, *, second_path: str | Path | None = None,
     channels: names or 1-based positions of the channels to keep, in order.
     encoding: text encoding (default: UTF-8 with a Latin-1 fallback).
     """
+    if not isinstance(path, (str, os.PathLike)):
+        from ..errors import ArgumentError
+        raise ArgumentError(f"load_capture: path must be a file path (str or Path), not {type(path).__name__}")
     check_read_options(path=path, second_path=second_path, encoding=encoding, time_unit=time_unit,
                        value_unit=value_unit, skip_rows=skip_rows, header_rows=header_rows,
                        delimiter=delimiter, time_column=time_column, channels=channels)
@@ -93,16 +97,16 @@ def check_read_options(*, path=None, second_path=None, encoding=None, time_unit=
     from ..errors import ArgumentError
     from .layouts import COUNT_WORDS, time_factor
     for name, value in (("path", path), ("second_path", second_path)):
-        if value is not None and not isinstance(value, (str, Path)):
+        if value is not None and not isinstance(value, (str, os.PathLike)):
             raise ArgumentError(f"load_capture: {name} must be a file path (str or Path), "
                                 f"not {type(value).__name__}")
     for name, value in (("encoding", encoding), ("time_unit", time_unit), ("value_unit", value_unit),
                         ("delimiter", delimiter)):
         if value is not None and not isinstance(value, str):
-            raise ArgumentError(f"--{name.replace('_', '-')}: must be text, not {type(value).__name__}")
+            raise ArgumentError(f"{name} (--{name.replace('_', '-')}) must be text, not {type(value).__name__}")
     for name, value in (("skip_rows", skip_rows), ("header_rows", header_rows)):
         if value is not None and (not isinstance(value, Integral) or isinstance(value, bool)):
-            raise ArgumentError(f"--{name.replace('_', '-')}: must be a whole number, not {value!r}")
+            raise ArgumentError(f"{name} (--{name.replace('_', '-')}) must be a whole number, not {value!r}")
     if time_column is not None and not isinstance(time_column, (str, int)):
         raise ArgumentError(f"--time-column: a name, a position or 'none', not {type(time_column).__name__}")
     if channels is not None and (isinstance(channels, (str, bytes)) or not hasattr(channels, "__iter__")):
@@ -131,6 +135,9 @@ def checked_numbers(sample_interval=None, time_origin=None, vertical_scale=None,
     """The numeric reading options in SI units (seconds, volts per count, volts),
     refused (OptionError naming the option) when no capture could have them."""
     si = _si_option(sample_interval, "--sample-interval", "s")
+    if si is not None and not si > 0:
+        raise OptionError(f"--sample-interval must be positive, got {sample_interval!r}",
+                          hint="give the time between samples in seconds, e.g. 1u")
     if si is not None and not MIN_SAMPLE_INTERVAL <= si <= MAX_SAMPLE_INTERVAL:
         raise OptionError(f"--sample-interval {sample_interval!r} is outside {MIN_SAMPLE_INTERVAL:g} s to "
                           f"{MAX_SAMPLE_INTERVAL:g} s", hint="give the time between samples in seconds, e.g. 1u")

@@ -19,7 +19,7 @@ from ..errors import CaptureError
 from . import checks
 from .bulk import parse_numeric_block
 from .layouts import ReadPlan, plan_read
-from .sniff import TextSample, TextShape, decide_shape, is_comment, read_sample
+from .sniff import MAX_SAMPLE_BYTES, TextSample, TextShape, decide_shape, is_comment, read_sample
 from .stamps import read_stamp_column, stamps_to_seconds
 
 
@@ -33,9 +33,17 @@ def read_delimited(path: str | Path, *, delimiter: str | None = None, decimal: s
     vertical_scale, vertical_offset). Raises CaptureError on unusable input.
     """
     path = str(path)
-    sample = read_sample(path, encoding=encoding)
-    shape = decide_shape(sample, delimiter=delimiter, decimal=decimal,
-                         skip_rows=skip_rows, header_rows=header_rows)
+    sample = read_sample(path, encoding=encoding, skip_lines=skip_rows or 0)
+    try:
+        shape = decide_shape(sample, delimiter=delimiter, decimal=decimal,
+                             skip_rows=skip_rows, header_rows=header_rows)
+    except CaptureError:
+        if sample.whole_file:
+            raise
+        # a header longer than the usual window (hundreds of comment lines): look further
+        sample = read_sample(path, encoding=encoding, skip_lines=skip_rows or 0, window=MAX_SAMPLE_BYTES)
+        shape = decide_shape(sample, delimiter=delimiter, decimal=decimal,
+                             skip_rows=skip_rows, header_rows=header_rows)
     plan = plan_read(sample, shape, **plan_options)
     # the comment option halves pandas' speed (and numpy's reader does not take it),
     # so it is used only when needed:
@@ -191,7 +199,9 @@ def _time_axis(sample: TextSample, shape: TextShape, plan: ReadPlan, arrays: dic
     del steps
     if bad is not None or spread_warning:
         grid = None
-        if plan.time_source == "column" and plan.time_quantum is not None and kept_rows is None:
+        # rounding keeps the order of increasing times: a stamp that goes back is out of order
+        backwards = bad is not None and bool(np.any(np.diff(t) < 0))
+        if plan.time_source == "column" and plan.time_quantum is not None and kept_rows is None and not backwards:
             grid = checks.rounded_uniform_grid(t, _quantum(t, plan))
         if grid is not None:
             kind, digits = plan.time_quantum
@@ -203,6 +213,8 @@ def _time_axis(sample: TextSample, shape: TextShape, plan: ReadPlan, arrays: dic
             (warnings if bad is not None else decisions).append(note)
             return grid
         if bad is not None:
+            if backwards:
+                bad = int(np.argmax(np.diff(t) < 0) + 1)
             row = int(bad) if kept_rows is None else int(kept_rows[bad])
             line = _row_to_line(sample, shape, row) if plan.time_source == "column" else None
             what = "repeats the previous one" if t[bad] == t[bad - 1] else "goes back in time"

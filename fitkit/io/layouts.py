@@ -158,8 +158,12 @@ def plan_read(sample: TextSample, shape: TextShape, *, sample_interval: float | 
         found = md.sample_interval(meta)
         interval, interval_src = (found[0], f"from {found[1]!r}") if found else (None, None)
 
+    bad_interval = md.nonpositive_interval(meta) if interval is None else None
     time_col, index_col, time_source = _choose_time_axis(shape, names, units, meta, interval,
-                                                         time_column, decisions, path)
+                                                         time_column, decisions, path, bad_interval)
+    if bad_interval:
+        warnings.append(f"the header's sample interval {bad_interval[0]} = {bad_interval[1]} is not positive: "
+                        "ignored, the time column is used")
     tfactor = 1.0
     if time_col is not None:
         tfactor = _time_column_factor(shape, time_col, time_unit or units.get(time_col)
@@ -285,7 +289,8 @@ def _names_and_units(shape: TextShape, meta: dict[str, str]) -> tuple[dict[int, 
 
 def _choose_time_axis(shape: TextShape, names: dict[int, str], units: dict[int, str],
                       meta: dict[str, str], interval: float | None, time_column: str | int | None,
-                      decisions: list[str], path: str) -> tuple[int | None, int | None, str]:
+                      decisions: list[str], path: str, bad_interval: tuple[str, str] | None = None
+                      ) -> tuple[int | None, int | None, str]:
     """(time column, sample-index column, time source) with the reason in ``decisions``.
 
     Order: the --time-column option; a column named as time; a sample-index
@@ -337,6 +342,10 @@ def _choose_time_axis(shape: TextShape, names: dict[int, str], units: dict[int, 
             time_source = "interval"
             if interval is not None:
                 decisions.append("time: no time column; axis built from the sample interval")
+    if time_source in ("interval", "index") and interval is None and bad_interval:
+        raise CaptureError(f"no time column, and the header's sample interval {bad_interval[0]} = "
+                           f"{bad_interval[1]} is not positive", path=path,
+                           hint="give the true interval with --sample-interval (for example 1u)")
     if time_source in ("interval", "index") and interval is None:
         why = "wall-clock stamps are not a usable time axis" if shape.datetime_columns else "no time column"
         raise CaptureError(f"{why} and no sample interval in the file", path=path,
