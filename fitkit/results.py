@@ -22,7 +22,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from .errors import QuantityError
+from .errors import ArgumentError, QuantityError
 
 
 def json_number(x: Any) -> float | None:
@@ -168,7 +168,7 @@ class FitResult:
 
         Raises QuantityError (a KeyError and a ValueError) naming the known quantities."""
         if not isinstance(name, str):
-            raise QuantityError(f"quantity: a name is text, not {type(name).__name__}")
+            raise ArgumentError(f"quantity: a name is text, not {type(name).__name__}")
         for table in (self.parameters, self.derived, self.components):
             if name in table:
                 return table[name]
@@ -179,6 +179,18 @@ class FitResult:
     def output_unit(self) -> str:
         """Unit of the fitted output channel ("V", "counts", or "" when the file gave none)."""
         return str(self.extra.get("output_unit", "V"))
+
+    def with_binning(self, n_samples: int) -> "FitResult":
+        """The same result saying how ``n_samples`` raw samples were averaged into the
+        points fitted (extra["binning"]), when they were."""
+        bin_size = int(self.extra.get("bin_size", 1) or 1)
+        fitted = self.diagnostics.n_samples if self.diagnostics is not None else None
+        if bin_size <= 1 or not fitted or fitted >= n_samples:
+            return self
+        text = (f"{n_samples:,} samples averaged into {fitted:,} bins of up to {bin_size:,} samples "
+                "(narrow at each edge, wider where the response is slow; each bin's model is the mean "
+                "of the model over its samples)")
+        return dataclasses.replace(self, extra=dict(self.extra, binning=text))
 
     def with_output_unit(self, unit: str) -> "FitResult":
         """The same result with its levels (baseline, step, residuals) in ``unit``

@@ -141,6 +141,7 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
     try:
         result = fit_segments(analysis.segments, model, candidates=candidates, intervals=intervals,
                               file=path, warnings=warnings, noise_record=noise_record)
+        result = result.with_binning(sum(seg.n_points for seg in analysis.segments))
         return result.with_output_unit(capture.channel(analysis.output_channel).unit)
     except FitError as err:
         if err.path is None and path:

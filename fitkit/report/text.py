@@ -159,6 +159,7 @@ def _diagnostics_block(result: FitResult) -> str:
                 and math.isfinite(d.ci_widening) else "n/a")
     rows = [
         ["samples fitted", f"{d.n_samples}{eff}"],
+        *([["binned", str(result.extra["binning"])]] if result.extra.get("binning") else []),
         ["residual RMS", rms],
         ["residual lag-1 correlation", f"{d.residual_lag1:.2f}" if math.isfinite(d.residual_lag1) else "n/a"],
         ["interval correction", d.correction or "none"],
