@@ -32,11 +32,14 @@ def write_bytes_atomic(path: str | os.PathLike, data: bytes, *, overwrite: bool 
             os.fsync(fh.fileno())
         os.chmod(tmp, 0o666 & ~_current_umask())  # mkstemp makes 0600; use the user's usual mode
         os.replace(tmp, target)
-    except BaseException:
+    except BaseException as exc:
         try:
             os.unlink(tmp)
         except FileNotFoundError:
             pass
+        if isinstance(exc, OSError) and exc.filename is None and exc.errno is not None:
+            # disk full and the like come without a file name: add the target's
+            raise type(exc)(exc.errno, exc.strerror, str(target)) from None
         raise
     return target
 

@@ -74,7 +74,14 @@ class Capture:
     warnings: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
-        t = np.asarray(self.time, dtype=float)
+        try:
+            t = np.asarray(self.time, dtype=float)
+        except (TypeError, ValueError):
+            raise CaptureError("the time axis must be an array of numbers (seconds)",
+                               path=self.provenance.path or None) from None
+        if t.ndim != 1:
+            raise CaptureError(f"the time axis must be one-dimensional, got an array of shape {t.shape}",
+                               path=self.provenance.path or None)
         t.setflags(write=False)
         object.__setattr__(self, "time", t)
         object.__setattr__(self, "metadata", dict(self.metadata))
@@ -118,17 +125,20 @@ class Capture:
         """Return a channel by name, by 1-based position ("1", 1) or by a
         case-insensitive name match. Raises CaptureError listing the channels."""
         names = self.channel_names
-        if isinstance(key, int) or (isinstance(key, str) and key.strip().isdigit()):
-            idx = int(key)
-            if 1 <= idx <= len(names):
-                return self.channels[idx - 1]
-        else:
+        if not isinstance(key, (str, int)) or isinstance(key, bool):
+            raise CaptureError(f"a channel is named by text or a 1-based position, not {type(key).__name__}",
+                               path=self.provenance.path or None)
+        if isinstance(key, str):  # a name first: some exports name channels "1", "2", ...
             for ch in self.channels:
                 if ch.name == key:
                     return ch
             for ch in self.channels:
-                if ch.name.lower() == str(key).strip().lower():
+                if ch.name.lower() == key.strip().lower():
                     return ch
+        if isinstance(key, int) or key.strip().isdigit():
+            idx = int(key)
+            if 1 <= idx <= len(names):
+                return self.channels[idx - 1]
         raise CaptureError(f"no channel {key!r}; channels found: {', '.join(names)}",
                            path=self.provenance.path or None,
                            hint="name a channel by its name or its 1-based position")

@@ -68,3 +68,15 @@ class DesignError(FitkitError):
 
 class OptionError(FitkitError):
     """Command-line options or arguments are inconsistent."""
+
+
+class ArgumentError(OptionError, TypeError):
+    """A library function was called with an argument of the wrong kind (a TypeError too)."""
+
+
+class QuantityError(FitkitError, KeyError):
+    """A result was asked for a quantity it does not hold (a KeyError too)."""
+
+
+class OutputError(FitkitError):
+    """An output file (or standard output) could not be written: disk full, no permission."""

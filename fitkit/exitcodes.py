@@ -11,3 +11,4 @@ UNUSABLE_INPUT = 4 #: a file could not be read or holds no usable step
 ANALYSIS_FAILED = 5  #: a fit did not converge or is not determined by the data
 NOT_DESCRIBED = 6  #: the best fit does not describe the capture (residuals far above the noise, structured)
 INTERNAL = 70      #: a bug in fitkit (unexpected exception); please report it
+OUTPUT_FAILED = 73 #: an output could not be written (disk full, no permission); sysexits' "cannot create"

@@ -15,11 +15,14 @@ The JSON shape of a fit (see README "JSON output") is::
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
 import numpy as np
+
+from .errors import ArgumentError, QuantityError
 
 
 def json_number(x: Any) -> float | None:
@@ -212,11 +215,57 @@ class FitResult:
         return self.adequacy is None or self.adequacy.describes_data
 
     def quantity(self, name: str) -> Estimate:
-        """A parameter, derived quantity or component by name."""
+        """A parameter, derived quantity or component by name.
+
+        Raises QuantityError (a KeyError and a ValueError) naming the known quantities."""
+        if not isinstance(name, str):
+            raise ArgumentError(f"quantity: a name is text, not {type(name).__name__}")
         for table in (self.parameters, self.derived, self.components):
             if name in table:
                 return table[name]
-        raise KeyError(name)
+        known = sorted(set(self.parameters) | set(self.derived) | set(self.components))
+        raise QuantityError(f"quantity: no quantity {name!r} in this result; known: {', '.join(known)}")
+
+    @property
+    def output_unit(self) -> str:
+        """Unit of the fitted output channel ("V", "counts", or "" when the file gave none)."""
+        return str(self.extra.get("output_unit", "V"))
+
+    def with_binning(self, n_samples: int) -> "FitResult":
+        """The same result saying how ``n_samples`` raw samples were averaged into the
+        points fitted (extra["binning"]), when they were."""
+        bin_size = int(self.extra.get("bin_size", 1) or 1)
+        fitted = self.diagnostics.n_samples if self.diagnostics is not None else None
+        if bin_size <= 1 or not fitted or fitted >= n_samples:
+            return self
+        text = (f"{n_samples:,} samples averaged into {fitted:,} bins of up to {bin_size:,} samples "
+                "(narrow at each edge, wider where the response is slow; each bin's model is the mean "
+                "of the model over its samples)")
+        return dataclasses.replace(self, extra=dict(self.extra, binning=text))
+
+    def with_output_unit(self, unit: str) -> "FitResult":
+        """The same result with its levels (baseline, step, residuals) in ``unit``
+        instead of volts: a channel with no unit, or in raw counts, is never called volts."""
+        if unit == "V":
+            return self
+
+        def swap(e: Estimate) -> Estimate:
+            return dataclasses.replace(e, unit=unit) if e.unit == "V" else e
+
+        def swap_dict(d: Any) -> Any:
+            if isinstance(d, dict):
+                return {k: (unit if k == "unit" and v == "V" else swap_dict(v)) for k, v in d.items()}
+            if isinstance(d, list):
+                return [swap_dict(v) for v in d]
+            return d
+
+        extra = swap_dict(dict(self.extra))
+        extra["output_unit"] = unit
+        rms = f" {unit} rms" if unit else " rms"
+        warnings = tuple(w.replace(" V rms", rms) for w in self.warnings)
+        return dataclasses.replace(self, parameters={k: swap(v) for k, v in self.parameters.items()},
+                                   derived={k: swap(v) for k, v in self.derived.items()}, extra=extra,
+                                   warnings=warnings)
 
     def to_dict(self) -> dict[str, Any]:
         """Plain JSON-ready types. When the form does not describe the capture every

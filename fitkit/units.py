@@ -123,6 +123,9 @@ def format_value(value: float | None, unit: str = "", digits: int = 4) -> str:
     if not unit:
         # Dimensionless numbers (Q, zeta, gain) read best without SI prefixes.
         return f"{value:.{digits}g}"
+    if unit == "counts":  # raw ADC codes: whole numbers, never "4.095 kcounts"
+        whole = len(str(int(abs(value)))) if abs(value) < 1e9 else digits
+        return f"{value:.{max(digits, whole)}g} counts"
     from quantiphy import Quantity
 
     return Quantity(value, unit).render(prec=max(digits - 1, 0), strip_zeros=True)

@@ -207,11 +207,14 @@ def test_layout8_wall_clock_stamps_use_the_interval(tmp_path):
     assert "wall-clock" in cap.provenance.layout
 
 
-def test_layout8_without_interval_is_a_clear_error(tmp_path):
+def test_layout8_without_interval_reads_the_stamps_as_time(tmp_path):
+    # No interval in the header: the stamps themselves are the time axis, in
+    # seconds from the first (never a month or a day read as seconds).
     path = _write(tmp_path / "clock.csv", ["Date Time,V"] +
                   [f"2024-03-01 12:00:{k:02d},{k % 3}" for k in range(30)])
-    with pytest.raises(CaptureError, match="sample interval"):
-        load_capture(path)
+    cap = load_capture(path)
+    np.testing.assert_allclose(cap.time, np.arange(30.0))
+    assert any("wall-clock" in d for d in cap.provenance.decisions)
 
 
 ALL_WRITERS = [write_metadata_block, write_commented_metadata, write_units_row_with_increment,

@@ -8,7 +8,10 @@ Every name the user gives is accounted for:
   batch's own output folder;
 * a glob pattern contributes every file it matches (sorted);
 * a folder or pattern that yields nothing, or a name that does not exist,
-  becomes one *missing* input carrying the reason.
+  becomes one *missing* input carrying the reason;
+* an entry with a capture's name that cannot be read as a file (a broken
+  symbolic link, a link loop, a named pipe, an unreadable subfolder) becomes
+  one *unreadable* input carrying the reason: every entry has a row.
 
 A file reached twice (named twice, or by a folder and a pattern) is kept as
 two inputs: the runner marks the second as a duplicate of the first, so the
@@ -17,9 +20,11 @@ summary has exactly one row per input and nothing is dropped silently.
 
 from __future__ import annotations
 
+import errno
 import glob
 import hashlib
 import os
+import stat
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable
@@ -39,6 +44,7 @@ class BatchInput:
 
     path: str
     missing_reason: str | None = None
+    status: str = "missing"
 
     def to_dict(self) -> dict[str, str | None]:
         return {"path": self.path, "missing_reason": self.missing_reason}
@@ -58,14 +64,55 @@ def _inside(path: Path, folder: Path | None) -> bool:
     return True
 
 
-def _folder_files(folder: Path, exclude: Path | None) -> list[Path]:
-    files = []
-    for f in folder.rglob("*"):
-        rel = f.relative_to(folder)
-        if f.suffix.lower() in CAPTURE_SUFFIXES and not _hidden(rel) and f.is_file() \
-                and not _inside(f, exclude):
-            files.append(f)
-    return sorted(files, key=lambda f: str(f))
+def _entry_problem(path: Path) -> str | None:
+    """Why a folder entry with a capture's name cannot be read as one, or None for a regular file."""
+    try:
+        st = path.stat()  # follows symbolic links
+    except OSError as err:
+        if path.is_symlink():
+            if err.errno == errno.ELOOP:
+                return "symbolic link loop"
+            return "broken symbolic link (its target does not exist)"
+        return f"cannot be read ({err.strerror or err})"
+    if stat.S_ISREG(st.st_mode):
+        return None
+    if stat.S_ISDIR(st.st_mode):
+        return ""  # a folder named like a capture: walked into, not a row of its own
+    kind = ("named pipe (FIFO)" if stat.S_ISFIFO(st.st_mode) else "socket" if stat.S_ISSOCK(st.st_mode)
+            else "device" if stat.S_ISCHR(st.st_mode) or stat.S_ISBLK(st.st_mode) else "special file")
+    return f"not a regular file (a {kind})"
+
+
+def _folder_entries(folder: Path, exclude: Path | None) -> list[BatchInput]:
+    """Every capture-named entry under ``folder`` (sorted): regular files as inputs, and
+    broken links, link loops, pipes and unreadable subfolders as unreadable rows."""
+    found: list[BatchInput] = []
+    seen_dirs: set[str] = set()
+
+    def unreadable_folder(err: OSError) -> None:
+        name = err.filename or str(folder)
+        found.append(BatchInput(str(name), f"folder cannot be read ({err.strerror or err})", "unreadable"))
+
+    for root, dirs, files in os.walk(folder, onerror=unreadable_folder, followlinks=True):
+        real = os.path.realpath(root)
+        if real in seen_dirs:  # a symbolic link back up the tree
+            found.append(BatchInput(root, "symbolic link loop (a folder already searched)", "unreadable"))
+            dirs[:] = []
+            continue
+        seen_dirs.add(real)
+        rel_root = Path(root).relative_to(folder)
+        dirs[:] = [d for d in dirs if not d.startswith(".") and not _inside(Path(root) / d, exclude)]
+        names = files + [d for d in dirs if Path(d).suffix.lower() in CAPTURE_SUFFIXES]
+        for name in names:
+            f = Path(root) / name
+            if f.suffix.lower() not in CAPTURE_SUFFIXES or _hidden(rel_root / name) or _inside(f, exclude):
+                continue
+            problem = _entry_problem(f)
+            if problem is None:
+                found.append(BatchInput(str(f)))
+            elif problem:
+                found.append(BatchInput(str(f), problem, "unreadable"))
+    return sorted(found, key=lambda b: b.path)
 
 
 def discover_inputs(paths: Iterable[str | os.PathLike], exclude: str | os.PathLike | None = None
@@ -81,11 +128,11 @@ def discover_inputs(paths: Iterable[str | os.PathLike], exclude: str | os.PathLi
         name = os.fspath(raw)
         p = Path(name)
         if p.is_dir():
-            files = _folder_files(p, excluded)
-            if not files:
+            entries = _folder_entries(p, excluded)
+            if not entries:
                 found.append(BatchInput(name, "folder holds no capture files ("
                                         + ", ".join(CAPTURE_SUFFIXES) + ")"))
-            found.extend(BatchInput(str(f)) for f in files)
+            found.extend(entries)
         elif p.is_file():
             found.append(BatchInput(str(p)))
         elif glob.has_magic(name):
@@ -94,8 +141,8 @@ def discover_inputs(paths: Iterable[str | os.PathLike], exclude: str | os.PathLi
             if not matches:
                 found.append(BatchInput(name, "pattern matches no file"))
             found.extend(BatchInput(m) for m in matches)
-        elif p.exists():
-            found.append(BatchInput(name, "not a regular file or folder"))
+        elif p.exists() or p.is_symlink():
+            found.append(BatchInput(name, _entry_problem(p) or "not a regular file or folder", "unreadable"))
         else:
             found.append(BatchInput(name, "no such file or folder"))
     return found

@@ -281,7 +281,7 @@ def _run_batch_locked(paths: Iterable[str | os.PathLike], settings: BatchSetting
     first_with_key: dict[str, str] = {}
     for i, (item, digest, key) in enumerate(zip(plan.inputs, plan.hashes, plan.keys)):
         if key is None:
-            records.append({"file": item.path, "status": "missing" if item.missing_reason else "unreadable",
+            records.append({"file": item.path, "status": item.status if item.missing_reason else "unreadable",
                             "reason": plan.reasons[i], "model": None, "verdict": None, "quantities": {},
                             "warnings": [], "elapsed_s": 0.0, "sha256": digest,
                             "duplicate_of": None, "resumed": False})
@@ -313,6 +313,10 @@ def crash_record(path: str, err: BaseException) -> dict[str, Any]:
                       "run the batch again to retry it"}
 
 
+#: Times a capture is tried on a local pool whose worker died before it is given up as an error.
+MAX_ATTEMPTS = 2
+
+
 def _run_locally(jobs: dict[str, str], settings: BatchSettings, workers: int | None,
                  complete: Callable[..., None]) -> None:
     n = min(workers or default_workers(), len(jobs))
@@ -320,11 +324,35 @@ def _run_locally(jobs: dict[str, str], settings: BatchSettings, workers: int | N
         for key, path in jobs.items():
             complete(key, process_capture(path, settings))
         return
+    attempts = dict.fromkeys(jobs, 0)
+    pending = dict(jobs)
+    while pending:
+        for key in pending:
+            attempts[key] += 1
+        lost = _run_pool_round(pending, settings, n, complete)
+        # a worker that died takes every capture still queued with it: try those
+        # again on a fresh pool; one that was in two dead pools is given up
+        pending = {}
+        for key, err in lost.items():
+            if attempts[key] >= MAX_ATTEMPTS:
+                complete(key, crash_record(jobs[key], err), persist=False)
+            else:
+                pending[key] = jobs[key]
+
+
+def _run_pool_round(jobs: dict[str, str], settings: BatchSettings, n: int,
+                    complete: Callable[..., None]) -> dict[str, BaseException]:
+    """Run ``jobs`` on a fresh pool of ``n`` workers; the captures lost to a dead worker, with why."""
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor, as_completed
+    from concurrent.futures.process import BrokenProcessPool
+
+    from .worker import die_with_parent
 
     context = multiprocessing.get_context("spawn")  # no forked BLAS threads or locks
-    pool = ProcessPoolExecutor(max_workers=n, mp_context=context)
+    pool = ProcessPoolExecutor(max_workers=min(n, len(jobs)), mp_context=context,
+                               initializer=die_with_parent, initargs=(os.getpid(),))
+    lost: dict[str, BaseException] = {}
     try:
         futures: dict[Future, str] = {pool.submit(process_capture, path, settings): key
                                       for key, path in jobs.items()}
@@ -332,14 +360,28 @@ def _run_locally(jobs: dict[str, str], settings: BatchSettings, workers: int | N
             key = futures[fut]
             try:
                 record = fut.result()
-            except Exception as err:  # the worker process died (killed, out of memory)
+            except BrokenProcessPool as err:  # a worker process died (killed, out of memory)
+                lost[key] = err
+            except Exception as err:  # the record could not come back (a bug)
                 complete(key, crash_record(jobs[key], err), persist=False)
             else:
                 complete(key, record)
     except BaseException:
-        pool.shutdown(wait=False, cancel_futures=True)  # interrupted: do not wait for the rest
+        _stop_workers(pool)  # interrupted: stop the captures in progress too
         raise
     pool.shutdown(wait=True)
+    return lost
+
+
+def _stop_workers(pool) -> None:
+    """End a pool at once: cancel what is queued and terminate the running workers."""
+    processes = list(getattr(pool, "_processes", {}).values())  # no public handle on the workers
+    pool.shutdown(wait=False, cancel_futures=True)
+    for proc in processes:
+        try:
+            proc.terminate()
+        except (OSError, AttributeError, ValueError):
+            pass
 
 
 def _run_on_dask(jobs: dict[str, str], settings: BatchSettings, address: str,

@@ -175,3 +175,37 @@ def _run_pipeline(path: str, settings: BatchSettings, record: dict[str, Any]) ->
         record["quantities"] = _quantities(result) if result.describes_data else {}
         record["warnings"] = list(result.warnings)
         record["result"] = result.to_dict()
+
+
+def die_with_parent(parent_pid: int) -> None:
+    """Initializer of a local pool's worker: the worker ends when the batch process does.
+
+    On Linux the kernel sends SIGKILL to the worker when its parent dies
+    (prctl PR_SET_PDEATHSIG); elsewhere, and as a second guard, a daemon
+    thread checks once a second that the parent is still the one that started
+    it. So a batch killed with SIGKILL leaves no worker running.
+    """
+    import os
+    import signal
+    import sys
+    import threading
+
+    pywarnings.simplefilter("ignore")  # numerical warnings never reach the terminal
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+            libc = ctypes.CDLL(None, use_errno=True)
+            pr_set_pdeathsig = 1
+            libc.prctl(pr_set_pdeathsig, int(signal.SIGKILL), 0, 0, 0)
+        except (OSError, AttributeError):
+            pass
+    if os.getppid() != parent_pid:  # the parent died before the guard was set
+        os._exit(1)
+
+    def watch() -> None:
+        while True:
+            time.sleep(1.0)
+            if os.getppid() != parent_pid:
+                os._exit(1)
+
+    threading.Thread(target=watch, name="fitkit-parent-watch", daemon=True).start()

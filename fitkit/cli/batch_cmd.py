@@ -6,7 +6,9 @@ import sys
 
 import click
 
+from .arguments import check_model
 from .capture_options import CaptureOptions, capture_options
+from .signals import echo_while_read, terminate_as_interrupt
 
 #: Problem lines printed at the end; the rest are in problems.csv.
 MAX_PROBLEM_LINES = 20
@@ -39,7 +41,7 @@ def _progress_printer(stream):
     def on_progress(done, total, record):
         nonlocal width
         width = width or len(str(total))
-        click.echo(f"[{done:>{width}}/{total}] {record['status']:<11} {record['file']}", err=True)
+        echo_while_read([f"[{done:>{width}}/{total}] {record['status']:<11} {record['file']}"], err=True)
     return on_progress
 
 
@@ -52,7 +54,7 @@ def _announce(plan):
 @click.argument("paths", nargs=-1, required=True)
 @click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False),
               help="Folder for per-capture results and the summary (created if needed).")
-@click.option("--design", type=click.Path(exists=True, dir_okay=False),
+@click.option("--design", type=click.Path(),
               help="Design file: check every board against it (otherwise fit only).")
 @click.option("--model", default="auto", show_default=True,
               help="Form to fit (see `fitkit forms`), or auto to choose one per capture; "
@@ -93,11 +95,17 @@ def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plo
     from ..batch.summary import duplicate_reason
 
     options = CaptureOptions.pop(kwargs)
+    options.validate()
+    if design:
+        from ..check import load_design
+        load_design(design)  # a design that cannot be used stops the batch before any work
+    else:
+        check_model(model)
     settings = BatchSettings(model=model, input=options.input_channel, output=options.output_channel,
                              average=average, design=design,
                              design_hash=content_hash(design) if design else None,
                              read_options=options.load_kwargs())
-    with output_folder_lock(out_dir):  # the summary and plots too, not only the run
+    with output_folder_lock(out_dir), terminate_as_interrupt():  # the summary and plots too
         try:
             run = run_batch(paths, settings, out_dir, workers=workers, redo=redo, cluster=cluster,
                             progress=_progress_printer(sys.stderr), on_plan=_announce)
@@ -113,24 +121,31 @@ def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plo
             frame, units = summary_frame(run)
             plots = plot_batch_distributions(frame, units, out_dir, limits=batch_limits(run))
 
-    counts = ", ".join(f"{n} {s}" for s, n in _counts(run).items())
+    # the batch is done and saved: a reader that stops reading (`| head -1`) changes nothing
+    lines = _summary_lines(run, written, plots, duplicate_reason)
+    echo_while_read(lines)
+    return batch_exit_status(run)
+
+
+def _summary_lines(run, written, plots, duplicate_reason) -> list[str]:
+    """The lines printed at the end of a batch: the tally (each input counted once), files, problems."""
+    distinct = {}
+    for rec in run.records:
+        if not rec.get("duplicate_of"):
+            distinct[rec["status"]] = distinct.get(rec["status"], 0) + 1
+    counts = ", ".join(f"{n} {s}" for s, n in distinct.items())
     dup = f", {run.duplicates} duplicate" if run.duplicates else ""
-    click.echo(f"{len(run.records)} inputs: {counts}{dup} "
-               f"({run.computed} processed now, {run.resumed} from an earlier run)")
-    click.echo(f"summary: {written['csv']} (also .parquet, .json); problems: {written['problems']}")
+    lines = [f"{len(run.records)} inputs: {counts}{dup} "
+             f"({run.computed} processed now, {run.resumed} from an earlier run)",
+             f"summary: {written['csv']} (also .parquet, .json); problems: {written['problems']}"]
     if plots:
-        click.echo(f"distribution plots: {len(plots)} in {plots[0].parent}")
+        lines.append(f"distribution plots: {len(plots)} in {plots[0].parent}")
     problems = [r for r in run.records if r["status"] not in ("fitted", "pass") or r.get("duplicate_of")]
     for rec in problems[:MAX_PROBLEM_LINES]:
         reason = rec.get("reason") or ""
         if rec.get("duplicate_of"):
             reason = duplicate_reason(rec["file"], rec["duplicate_of"], reason)
-        click.echo(f"  {rec['status']}: {rec['file']}" + (f": {reason}" if reason else ""))
+        lines.append(f"  {rec['status']}: {rec['file']}" + (f": {reason}" if reason else ""))
     if len(problems) > MAX_PROBLEM_LINES:
-        click.echo(f"  ... and {len(problems) - MAX_PROBLEM_LINES} more in {written['problems']}")
-    return batch_exit_status(run)
-
-
-def _counts(run):
-    from ..batch.summary import status_counts
-    return status_counts(run)
+        lines.append(f"  ... and {len(problems) - MAX_PROBLEM_LINES} more in {written['problems']}")
+    return lines

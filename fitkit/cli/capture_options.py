@@ -105,6 +105,17 @@ class CaptureOptions:
                     skip_rows=self.skip_rows, header_rows=self.header_rows, encoding=self.encoding,
                     channels=list(self.channels) or None)
 
+    def validate(self) -> None:
+        """Refuse impossible reading options (OptionError: exit status 2) before any file is read."""
+        from ..io import check_read_options, checked_numbers
+        kw = self.load_kwargs()
+        check_read_options(encoding=kw["encoding"], time_unit=kw["time_unit"], value_unit=kw["value_unit"],
+                           skip_rows=kw["skip_rows"], header_rows=kw["header_rows"])
+        checked_numbers(kw["sample_interval"], kw["time_origin"], kw["vertical_scale"], kw["vertical_offset"])
+        for option, value in (("--input", self.input_channel), ("--output", self.output_channel)):
+            if value is not None and not value.strip():
+                raise OptionError(f"{option} is empty", hint="name a channel or give its 1-based position")
+
     def load(self, file: str, out_file: str | None = None) -> Capture:
         """Read FILE (and OUT_FILE: then FILE is the input, OUT_FILE the output)."""
         from ..io import load_capture

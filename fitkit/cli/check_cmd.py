@@ -6,24 +6,26 @@ from __future__ import annotations
 import click
 
 from .. import exitcodes
-from ..units import parse_value
+from .arguments import check_distinct_inputs, time_option
 from .capture_options import CaptureOptions, capture_options
 from .output_options import OutputRequest, emit_result, output_options
 
+#: More boards than this for the envelope takes minutes and narrows nothing a bench can see.
+MAX_TRIALS = 100_000
 STATUS = {"pass": exitcodes.OK, "fail": exitcodes.FAIL, "inconclusive": exitcodes.INCONCLUSIVE}
 
 
 @click.command("check")
-@click.argument("file", type=click.Path(dir_okay=False))
-@click.argument("out_file", required=False, type=click.Path(dir_okay=False))
-@click.option("--design", "design_path", required=True, type=click.Path(dir_okay=False), metavar="DESIGN.toml",
+@click.argument("file", type=click.Path())
+@click.argument("out_file", required=False, type=click.Path())
+@click.option("--design", "design_path", required=True, type=click.Path(), metavar="DESIGN.toml",
               help="The design file: circuit, nominal values, tolerances, fixture, optional limits.")
 @capture_options
 @click.option("--edge-time", metavar="SECONDS", default=None, help="Check only the edge at this time (e.g. 12.5u).")
 @click.option("--average", is_flag=True, help="Average the edges coherently before checking.")
-@click.option("--trials", type=click.IntRange(min=10), default=200, show_default=True,
+@click.option("--trials", type=click.IntRange(min=10, max=MAX_TRIALS), default=200, show_default=True,
               help="Boards drawn at random within tolerance for the envelope.")
-@click.option("--seed", type=int, default=0, show_default=True, help="Seed of the envelope's random draws.")
+@click.option("--seed", type=click.IntRange(0, 2**32 - 1), default=0, show_default=True, help="Seed of the envelope's random draws.")
 @click.option("--json", "as_json", is_flag=True, help="Print the result as one JSON object.")
 @output_options
 def check(file: str, out_file: str | None, design_path: str, edge_time: str | None, average: bool, trials: int,
@@ -52,10 +54,12 @@ def check(file: str, out_file: str | None, design_path: str, edge_time: str | No
     outputs = OutputRequest.pop(kwargs)
     outputs.validate([file, out_file, design_path], as_json=as_json)
     options = CaptureOptions.pop(kwargs)
+    options.validate()
+    check_distinct_inputs(file, out_file)
+    t_edge = time_option(edge_time, "--edge-time")
     design = load_design(design_path)
     capture = options.load(file, out_file)
     inp, out = options.roles(capture)
-    t_edge = None if edge_time is None else parse_value(edge_time, "s")
     result = check_capture(capture, design, input=inp, output=out, average=average, envelope_trials=trials,
                            seed=seed, edge_time=t_edge)
     emit_result(outputs, result, capture, as_json)

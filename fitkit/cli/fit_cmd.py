@@ -6,6 +6,7 @@ from __future__ import annotations
 import click
 
 from ..units import parse_value
+from .arguments import check_distinct_inputs, check_model, name_value_pairs, time_option
 from .capture_options import CaptureOptions, capture_options
 from .output_options import OutputRequest, emit_result, output_options
 
@@ -35,28 +36,14 @@ def circuit_options(f):
     return f
 
 
-def _pairs(items, option: str) -> dict[str, str]:
-    from ..errors import OptionError
-    out: dict[str, str] = {}
-    for item in items:
-        for piece in (x.strip() for x in item.split(",")):
-            if not piece:
-                continue
-            if "=" not in piece:
-                raise OptionError(f"{option} {piece!r} is not NAME=VALUE", hint=f"write e.g. {option} R1=10k")
-            name, value = (x.strip() for x in piece.split("=", 1))
-            out[name] = value
-    return out
-
-
 class CircuitArgs:
     """The circuit options of one `fitkit fit` call, turned into a Circuit and a fit."""
 
     def __init__(self, circuit_file, topology, known, unknown_parts, design_values, probe, source_resistance):
         self.circuit_file, self.topology = circuit_file, topology
-        self.known = _pairs(known, "--known")
+        self.known = name_value_pairs(known, "--known")
         self.unknown = [n.strip() for item in unknown_parts for n in item.split(",") if n.strip()]
-        self.design = _pairs(design_values, "--design-values")
+        self.design = name_value_pairs(design_values, "--design-values")
         self.probe, self.source_resistance = probe, source_resistance
 
     @classmethod
@@ -126,8 +113,8 @@ class CircuitArgs:
 
 
 @click.command("fit")
-@click.argument("file", type=click.Path(dir_okay=False))
-@click.argument("out_file", required=False, type=click.Path(dir_okay=False))
+@click.argument("file", type=click.Path())
+@click.argument("out_file", required=False, type=click.Path())
 @capture_options
 @click.option("--model", default="auto", show_default=True, metavar="auto|NAME",
               help="Form to fit (see `fitkit forms`), or auto to choose among the usual ones.")
@@ -136,7 +123,7 @@ class CircuitArgs:
 @click.option("--average", is_flag=True, help="Average the edges coherently before fitting.")
 @click.option("--intervals", type=click.Choice(["auto", "covariance", "profile"]), default="auto",
               show_default=True, help="How 95 % intervals of the shape parameters are found.")
-@click.option("--noise-record", metavar="FILE", default=None, type=click.Path(dir_okay=False),
+@click.option("--noise-record", metavar="FILE", default=None, type=click.Path(),
               help="A capture of the output channel's noise alone (circuit quiet, same scope settings): "
                    "its noise model is used to fit under band-limited noise.")
 @click.option("--json", "as_json", is_flag=True, help="Print the result as one JSON object.")
@@ -152,13 +139,17 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
     from ..fitting import fit_capture
 
     outputs = OutputRequest.pop(kwargs)
-    outputs.validate([file, out_file, kwargs.get("circuit_file")], as_json=as_json)
+    outputs.validate([file, out_file, kwargs.get("circuit_file"), noise_record], as_json=as_json)
     options = CaptureOptions.pop(kwargs)
+    options.validate()
+    check_model(model)
+    check_distinct_inputs(file, out_file)
+    t_edge = time_option(edge_time, "--edge-time")
+    circuit_args = CircuitArgs.pop(kwargs)
+    circuit_args.wanted  # refuses circuit options without a circuit, before any work
     capture = options.load(file, out_file)
     # the library decides the roles it was not told (and tries others when they fail)
     inp, out = options.input_channel, options.output_channel
-    t_edge = None if edge_time is None else parse_value(edge_time, "s")
-    circuit_args = CircuitArgs.pop(kwargs)
     noise = None
     if noise_record is not None:
         from ..errors import OptionError

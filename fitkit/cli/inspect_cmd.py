@@ -9,6 +9,7 @@ import click
 
 from .. import exitcodes
 from ..units import format_value
+from .arguments import check_distinct_inputs, time_option
 from .capture_options import CaptureOptions, capture_options
 
 
@@ -70,8 +71,8 @@ def _text(report: dict) -> str:
 
 
 @click.command("inspect")
-@click.argument("file", type=click.Path(dir_okay=False))
-@click.argument("out_file", required=False, type=click.Path(dir_okay=False))
+@click.argument("file", type=click.Path())
+@click.argument("out_file", required=False, type=click.Path())
 @capture_options
 @click.option("--edge-time", help="Force one edge at this time (e.g. 1.5m) instead of detecting edges.")
 @click.option("--average", is_flag=True, help="Coherently average aligned edges of the same direction.")
@@ -90,13 +91,14 @@ def inspect(file: str, out_file: str | None, edge_time: str | None, average: boo
     from ..conditioning import analyse_steps
     from ..conditioning.render import render_text
     from ..errors import ConditioningError
-    from ..units import parse_value
 
     options = CaptureOptions.pop(kwargs)
+    options.validate()
+    check_distinct_inputs(file, out_file)
+    forced = time_option(edge_time, "--edge-time")
     capture = options.load(file, out_file)
     input_name, output_name = options.roles(capture)
     report = inspect_report(capture, (input_name, output_name))
-    forced = None if edge_time is None else parse_value(edge_time, "s")
     problem = None
     try:
         analysis = analyse_steps(capture, input=input_name, output=output_name, edge_time=forced,
@@ -111,7 +113,7 @@ def inspect(file: str, out_file: str | None, edge_time: str | None, average: boo
         click.echo(_text(report))
         if analysis is not None:
             click.echo("")
-            click.echo(render_text(analysis))
+            click.echo(render_text(analysis, unit=capture.channel(analysis.output_channel).unit))
     if problem is not None:
         click.echo(f"fitkit: error: {problem.one_line()}", err=True)
         return exitcodes.UNUSABLE_INPUT

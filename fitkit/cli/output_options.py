@@ -20,7 +20,7 @@ from typing import Any, Callable, Iterable
 
 import click
 
-from ..errors import OptionError
+from ..errors import OptionError, OutputError
 
 #: Plot file types by extension (matplotlib formats; see fitkit.report.plots.PLOT_FORMATS).
 PLOT_SUFFIXES = (".png", ".svg", ".pdf")
@@ -46,7 +46,7 @@ def output_options(f: Callable) -> Callable:
     return f
 
 
-def _same_file(a: str, b: str) -> bool:
+def same_file(a: str, b: str) -> bool:
     """True when two paths name one file (same resolved path, or same inode when both exist)."""
     try:
         if Path(a).resolve() == Path(b).resolve():
@@ -84,7 +84,7 @@ class OutputRequest:
         files = self.files()
         for opt, path in files:
             for given in (i for i in inputs if i):
-                if _same_file(path, given):
+                if same_file(path, given):
                     raise OptionError(f"{opt} {path} is an input file; fitkit never writes over its inputs",
                                       hint="choose another name for the output")
         if self.plot_path and Path(self.plot_path).suffix.lower() not in PLOT_SUFFIXES:
@@ -94,7 +94,7 @@ class OutputRequest:
             raise OptionError(f"the report {self.report_path} is HTML", hint="name it .html")
         for i, (opt_a, a) in enumerate(files):
             for opt_b, b in files[i + 1:]:
-                if _same_file(a, b):
+                if same_file(a, b):
                     raise OptionError(f"{opt_a} and {opt_b} name the same file {a}",
                                       hint="give each output its own name")
         for opt, path in files:
@@ -121,8 +121,8 @@ def _written(option: str, path: str, write: Callable[[], Any]) -> None:
         write()
     except OSError as exc:
         reason = exc.strerror or type(exc).__name__
-        raise OptionError(f"cannot write {option} {path} ({reason})",
-                          hint="choose a folder you can write to") from None
+        raise OutputError(f"cannot write {option} {path} ({reason})",
+                          hint="free some space or choose a folder you can write to") from None
 
 
 def write_outputs(request: OutputRequest, result: Any, capture: Any = None) -> list[str]:

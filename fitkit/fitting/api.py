@@ -186,6 +186,8 @@ def _fit_analysis(capture: Capture, analysis, *, model, edge_time, average, cand
     try:
         result = fit_segments(analysis.segments, model, candidates=candidates, intervals=intervals,
                               file=path, warnings=warnings, noise_record=noise_record)
+        result = result.with_binning(sum(seg.n_points for seg in analysis.segments))
+        result = result.with_output_unit(capture.channel(analysis.output_channel).unit)
     except FitError as err:
         if err.path is None and path:
             raise FitError(err.message, path=path, hint=err.hint) from None

@@ -10,12 +10,13 @@ OptionError) leaves this package on bad input.
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 from typing import Iterable
 
 from ..capture import Capture
 from ..errors import OptionError
-from ..units import parse_value
+from ..units import BASE_UNITS, parse_value, unit_scale
 from .binary import read_npz, read_parquet, save_npz, save_parquet
 from .checks import robust_noise_sigma
 from .delimited import read_delimited
@@ -24,7 +25,7 @@ from .sniff import read_head
 
 TEXT_SUFFIXES = (".csv", ".txt", ".tsv", ".dat", ".asc", ".prn")
 
-__all__ = ["load_capture", "save_npz", "save_parquet", "robust_noise_sigma", "join_input_output",
+__all__ = ["load_capture", "check_read_options", "checked_numbers", "save_npz", "save_parquet", "robust_noise_sigma", "join_input_output",
            "INPUT_KEY", "OUTPUT_KEY"]
 
 
@@ -56,18 +57,15 @@ def load_capture(path: str | Path, *, second_path: str | Path | None = None,
     channels: names or 1-based positions of the channels to keep, in order.
     encoding: text encoding (default: UTF-8 with a Latin-1 fallback).
     """
-    si = _si_option(sample_interval, "--sample-interval", "s")
-    if si is not None and not si > 0:
-        raise OptionError(f"--sample-interval must be positive, got {sample_interval!r}")
-    t0 = _si_option(time_origin, "--time-origin", "s")
-    scale = _si_option(vertical_scale, "--vertical-scale", None)
-    offset = _si_option(vertical_offset, "--vertical-offset", "V")
+    if not isinstance(path, (str, os.PathLike)):
+        from ..errors import ArgumentError
+        raise ArgumentError(f"load_capture: path must be a file path (str or Path), not {type(path).__name__}")
+    check_read_options(path=path, second_path=second_path, encoding=encoding, time_unit=time_unit,
+                       value_unit=value_unit, skip_rows=skip_rows, header_rows=header_rows,
+                       delimiter=delimiter, time_column=time_column, channels=channels)
+    si, t0, scale, offset = checked_numbers(sample_interval, time_origin, vertical_scale, vertical_offset)
     if decimal not in (None, ".", ","):
         raise OptionError(f"decimal mark must be '.' or ',', got {decimal!r}")
-    if skip_rows is not None and skip_rows < 0:
-        raise OptionError("--skip-rows must be 0 or more")
-    if header_rows is not None and header_rows not in (0, 1, 2):
-        raise OptionError("--header-rows must be 0, 1 or 2")
     options = dict(sample_interval=si, time_origin=t0, delimiter=delimiter, decimal=decimal,
                    skip_rows=skip_rows, header_rows=header_rows, time_column=time_column,
                    time_unit=time_unit, value_unit=value_unit, vertical_scale=scale,
@@ -78,6 +76,82 @@ def load_capture(path: str | Path, *, second_path: str | Path | None = None,
     if channels:
         capture = capture.with_channels(list(channels))
     return capture
+
+
+#: Sample intervals accepted from the user, in seconds (a 1 THz sampler to one sample a day).
+MIN_SAMPLE_INTERVAL = 1e-12
+MAX_SAMPLE_INTERVAL = 86_400.0
+
+
+def check_read_options(*, path=None, second_path=None, encoding=None, time_unit=None, value_unit=None,
+                       skip_rows=None, header_rows=None, delimiter=None, time_column=None,
+                       channels=None) -> None:
+    """Refuse reading options that cannot be right, before any file is opened.
+
+    Raises ArgumentError (a TypeError) for an argument of the wrong kind and
+    OptionError for a value no capture can have, each naming the option.
+    """
+    import codecs
+    from numbers import Integral
+
+    from ..errors import ArgumentError
+    from .layouts import COUNT_WORDS, time_factor
+    for name, value in (("path", path), ("second_path", second_path)):
+        if value is not None and not isinstance(value, (str, os.PathLike)):
+            raise ArgumentError(f"load_capture: {name} must be a file path (str or Path), "
+                                f"not {type(value).__name__}")
+    for name, value in (("encoding", encoding), ("time_unit", time_unit), ("value_unit", value_unit),
+                        ("delimiter", delimiter)):
+        if value is not None and not isinstance(value, str):
+            raise ArgumentError(f"{name} (--{name.replace('_', '-')}) must be text, not {type(value).__name__}")
+    for name, value in (("skip_rows", skip_rows), ("header_rows", header_rows)):
+        if value is not None and (not isinstance(value, Integral) or isinstance(value, bool)):
+            raise ArgumentError(f"{name} (--{name.replace('_', '-')}) must be a whole number, not {value!r}")
+    if time_column is not None and not isinstance(time_column, (str, int)):
+        raise ArgumentError(f"--time-column: a name, a position or 'none', not {type(time_column).__name__}")
+    if channels is not None and (isinstance(channels, (str, bytes)) or not hasattr(channels, "__iter__")):
+        raise ArgumentError("channels: a list of channel names or positions")
+    if encoding is not None:
+        try:
+            codecs.lookup(encoding)
+        except LookupError:
+            raise OptionError(f"--encoding {encoding!r} is not a text encoding Python knows",
+                              hint="e.g. --encoding utf-8, latin-1 or cp1252") from None
+    if time_unit is not None and time_factor(time_unit) is None:
+        raise OptionError(f"--time-unit {time_unit!r} is not a unit of time", hint="use s, ms, us or ns")
+    if value_unit is not None:
+        _, si = unit_scale(value_unit)
+        if si not in set(BASE_UNITS.values()) and value_unit.strip().lower() not in COUNT_WORDS:
+            raise OptionError(f"--value-unit {value_unit!r} is not a unit fitkit knows",
+                              hint="use V, mV, uV, A, mA or counts")
+    if skip_rows is not None and skip_rows < 0:
+        raise OptionError("--skip-rows must be 0 or more")
+    if header_rows is not None and header_rows not in (0, 1, 2):
+        raise OptionError("--header-rows must be 0, 1 or 2")
+
+
+def checked_numbers(sample_interval=None, time_origin=None, vertical_scale=None, vertical_offset=None
+                    ) -> tuple[float | None, float | None, float | None, float | None]:
+    """The numeric reading options in SI units (seconds, volts per count, volts),
+    refused (OptionError naming the option) when no capture could have them."""
+    si = _si_option(sample_interval, "--sample-interval", "s")
+    if si is not None and not si > 0:
+        raise OptionError(f"--sample-interval must be positive, got {sample_interval!r}",
+                          hint="give the time between samples in seconds, e.g. 1u")
+    if si is not None and not MIN_SAMPLE_INTERVAL <= si <= MAX_SAMPLE_INTERVAL:
+        raise OptionError(f"--sample-interval {sample_interval!r} is outside {MIN_SAMPLE_INTERVAL:g} s to "
+                          f"{MAX_SAMPLE_INTERVAL:g} s", hint="give the time between samples in seconds, e.g. 1u")
+    t0 = _si_option(time_origin, "--time-origin", "s")
+    if t0 is not None and not abs(t0) <= MAX_SAMPLE_INTERVAL * 1e6:
+        raise OptionError(f"--time-origin {time_origin!r} is not a plausible time", hint="give seconds, e.g. -10u")
+    scale = _si_option(vertical_scale, "--vertical-scale", None)
+    if scale is not None and (scale == 0 or not abs(scale) <= 1e9):
+        raise OptionError(f"--vertical-scale {vertical_scale!r} must be a non-zero number of volts per count",
+                          hint="e.g. --vertical-scale 0.5m")
+    offset = _si_option(vertical_offset, "--vertical-offset", "V")
+    if offset is not None and not abs(offset) <= 1e9:
+        raise OptionError(f"--vertical-offset {vertical_offset!r} is not a plausible voltage")
+    return si, t0, scale, offset
 
 
 def _si_option(value, option: str, unit: str | None) -> float | None:

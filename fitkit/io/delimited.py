@@ -19,7 +19,8 @@ from ..errors import CaptureError
 from . import checks
 from .bulk import parse_numeric_block
 from .layouts import ReadPlan, plan_read
-from .sniff import TextSample, TextShape, decide_shape, is_comment, read_sample
+from .sniff import MAX_SAMPLE_BYTES, TextSample, TextShape, decide_shape, is_comment, read_sample
+from .stamps import read_stamp_column, stamps_to_seconds
 
 
 def read_delimited(path: str | Path, *, delimiter: str | None = None, decimal: str | None = None,
@@ -32,9 +33,17 @@ def read_delimited(path: str | Path, *, delimiter: str | None = None, decimal: s
     vertical_scale, vertical_offset). Raises CaptureError on unusable input.
     """
     path = str(path)
-    sample = read_sample(path, encoding=encoding)
-    shape = decide_shape(sample, delimiter=delimiter, decimal=decimal,
-                         skip_rows=skip_rows, header_rows=header_rows)
+    sample = read_sample(path, encoding=encoding, skip_lines=skip_rows or 0)
+    try:
+        shape = decide_shape(sample, delimiter=delimiter, decimal=decimal,
+                             skip_rows=skip_rows, header_rows=header_rows)
+    except CaptureError:
+        if sample.whole_file:
+            raise
+        # a header longer than the usual window (hundreds of comment lines): look further
+        sample = read_sample(path, encoding=encoding, skip_lines=skip_rows or 0, window=MAX_SAMPLE_BYTES)
+        shape = decide_shape(sample, delimiter=delimiter, decimal=decimal,
+                             skip_rows=skip_rows, header_rows=header_rows)
     plan = plan_read(sample, shape, **plan_options)
     # the comment option halves pandas' speed (and numpy's reader does not take it),
     # so it is used only when needed:
@@ -127,7 +136,10 @@ def _build_capture(sample: TextSample, shape: TextShape, plan: ReadPlan,
     if n == 0:
         raise CaptureError("no readable data rows", path=path)
 
+    _check_twin_time_columns(plan, arrays, path, decisions)
     time = _time_axis(sample, shape, plan, arrays, n, warnings, decisions, kept_rows)
+    if plan.time_source == "column" and plan.interval and time.size > 2 and not plan.time_given:
+        time = _header_interval_over_column(time, plan.interval, warnings)
 
     channels = []
     values = {}
@@ -141,11 +153,6 @@ def _build_capture(sample: TextSample, shape: TextShape, plan: ReadPlan,
         values[cp.name] = v
         channels.append(Channel(cp.name, v, cp.unit, cp.source_unit))
     warnings.extend(checks.value_warnings(values, path=path))
-    if plan.time_source == "column" and plan.interval and time.size > 2:
-        median = float(np.median(np.diff(time)))
-        if abs(median - plan.interval) > 0.01 * plan.interval:
-            warnings.append(f"the header states a sample interval of {plan.interval:.6g} s but the time "
-                            f"column steps by {median:.6g} s; the time column is used")
     if plan.expected_length and plan.expected_length != n and kept_rows is None:
         warnings.append(f"the header states {plan.expected_length} samples but the file holds {n}"
                         + (": the file may be truncated" if n < plan.expected_length else ""))
@@ -169,6 +176,17 @@ def _time_axis(sample: TextSample, shape: TextShape, plan: ReadPlan, arrays: dic
     if plan.time_source == "index":
         idx = arrays[plan.index_column]
         t = plan.origin + (idx - idx[0]) * plan.interval
+    elif plan.time_source == "stamps":
+        cells = read_stamp_column(path, encoding=sample.encoding, offset=shape.data_line.offset,
+                                  column=plan.stamp_column, delimiter=shape.delimiter)
+        if kept_rows is not None and len(cells) > n:
+            cells = [cells[int(r)] for r in kept_rows if r < len(cells)]
+        if len(cells) != n:
+            raise CaptureError(f"the time stamp column holds {len(cells)} rows but the data {n}", path=path,
+                               hint="give --time-column none with --sample-interval")
+        t, note = stamps_to_seconds(cells, path=path, first_line=shape.data_line.number)
+        decisions.append(note)
+        t = t + plan.origin
     else:
         t = arrays[plan.time_column]
         if plan.time_factor != 1.0:
@@ -181,17 +199,22 @@ def _time_axis(sample: TextSample, shape: TextShape, plan: ReadPlan, arrays: dic
     del steps
     if bad is not None or spread_warning:
         grid = None
-        if plan.time_source == "column" and plan.time_quantum is not None and kept_rows is None:
+        # rounding keeps the order of increasing times: a stamp that goes back is out of order
+        backwards = bad is not None and bool(np.any(np.diff(t) < 0))
+        if plan.time_source == "column" and plan.time_quantum is not None and kept_rows is None and not backwards:
             grid = checks.rounded_uniform_grid(t, _quantum(t, plan))
         if grid is not None:
             kind, digits = plan.time_quantum
             printed = f"{digits} significant digits" if kind == "sig" else f"{digits} decimals"
+            first = f" (first repeat at line {_row_to_line(sample, shape, int(bad))})" if bad is not None else ""
             note = (f"time stamps are printed with only {printed}, so they "
-                    f"{'repeat' if bad is not None else 'jitter'}; using a uniform axis at "
+                    f"{'repeat' if bad is not None else 'jitter'}{first}; using a uniform axis at "
                     f"{grid[1] - grid[0]:.6g} s fitted to the stamps")
             (warnings if bad is not None else decisions).append(note)
             return grid
         if bad is not None:
+            if backwards:
+                bad = int(np.argmax(np.diff(t) < 0) + 1)
             row = int(bad) if kept_rows is None else int(kept_rows[bad])
             line = _row_to_line(sample, shape, row) if plan.time_source == "column" else None
             what = "repeats the previous one" if t[bad] == t[bad - 1] else "goes back in time"
@@ -200,6 +223,32 @@ def _time_axis(sample: TextSample, shape: TextShape, plan: ReadPlan, arrays: dic
                                "with --sample-interval")
         warnings.append(spread_warning)
     return t
+
+
+def _check_twin_time_columns(plan: ReadPlan, arrays: dict[int, np.ndarray], path: str,
+                             decisions: list[str]) -> None:
+    """Further time columns (one per channel) must repeat the time column; they are then dropped."""
+    if not plan.twin_time_columns:
+        return
+    t = arrays[plan.time_column]
+    tol = 1e-6 * max(float(np.max(np.abs(np.diff(t)))) if t.size > 1 else 0.0, 1e-300)
+    for j in plan.twin_time_columns:
+        if not np.allclose(arrays[j], t, rtol=1e-9, atol=tol, equal_nan=True):
+            raise CaptureError(f"the channels have time columns of their own (column {j + 1}) that differ "
+                               "from the first: they were sampled at different times", path=path,
+                               hint="export the channels on one time base, or read each pair of columns "
+                               "separately with --time-column and --channel")
+    decisions.append(f"{len(plan.twin_time_columns)} further time column(s) repeat the first; ignored")
+
+
+def _header_interval_over_column(time: np.ndarray, interval: float, warnings: list[str]) -> np.ndarray:
+    """The header's sample interval wins over a time column that steps otherwise (flagged)."""
+    step = (float(time[-1]) - float(time[0])) / (time.size - 1)
+    if abs(step - interval) <= 0.01 * interval:
+        return time
+    warnings.append(f"the header states a sample interval of {interval:.6g} s but the time column steps by "
+                    f"{step:.6g} s: the header's interval is used (give --time-column to use the column)")
+    return float(time[0]) + interval * np.arange(time.size, dtype=float)
 
 
 def _quantum(t: np.ndarray, plan: ReadPlan) -> np.ndarray | float:

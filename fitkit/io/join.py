@@ -4,7 +4,9 @@ Scopes that save one file per channel give the drive and the response in two
 files. They are joined on their time axes: when the axes agree the samples are
 paired directly; otherwise the input is linearly interpolated onto the output's
 time stamps over the span both files cover (the response is what gets fitted,
-so its samples are kept as recorded).
+so its samples are kept as recorded), with a warning when the two rates differ.
+An input sampled much more coarsely than the output is refused: its edges
+would be invented by the interpolation.
 """
 
 from __future__ import annotations
@@ -17,6 +19,9 @@ from ..errors import CaptureError
 #: Metadata keys naming the channels that came from each file.
 INPUT_KEY = "input channel"
 OUTPUT_KEY = "output channel"
+#: An input file sampled more than this many times more coarsely than the output is
+#: refused: interpolating it would invent the drive's edges between its samples.
+COARSER_INPUT_LIMIT = 2.0
 
 
 def join_input_output(inp: Capture, out: Capture) -> Capture:
@@ -31,6 +36,7 @@ def join_input_output(inp: Capture, out: Capture) -> Capture:
     decisions = [f"input file: {d}" for d in inp.provenance.decisions]
     decisions += [f"output file: {d}" for d in out.provenance.decisions]
     t_in, t_out = inp.time, out.time
+    resampled: list[str] = []
     dt = out.sample_interval if out.n_points > 1 else 0.0
     same = (t_in.size == t_out.size and
             np.allclose(t_in, t_out, rtol=0, atol=max(1e-6 * abs(dt), 1e-15)))
@@ -44,12 +50,22 @@ def join_input_output(inp: Capture, out: Capture) -> Capture:
             raise CaptureError(f"the two files cover different times ({t_in[0]:.6g} s to {t_in[-1]:.6g} s "
                                f"and {t_out[0]:.6g} s to {t_out[-1]:.6g} s)", path=paths,
                                hint="check that both files come from the same acquisition")
+        dt_in = inp.sample_interval if inp.n_points > 1 else float("inf")
+        if not dt_in <= COARSER_INPUT_LIMIT * dt:
+            raise CaptureError(f"the input file is sampled every {dt_in:.6g} s but the output every {dt:.6g} s: "
+                               "the drive's edges cannot be placed on the output's time axis", path=paths,
+                               hint="export both channels at the same sample rate, or give only the output "
+                               "file (fitted as a response to an ideal step)")
         keep = (t_out >= lo) & (t_out <= hi)
         time = t_out[keep]
         in_values = [np.interp(time, t_in, ch.values) for ch in inp.channels]
         out_values = [ch.values[keep] for ch in out.channels]
-        decisions.append(f"joined: input interpolated linearly onto the output's {time.size} time stamps "
-                         f"({t_out.size - time.size} output samples outside the common span dropped)")
+        note = (f"input interpolated linearly onto the output's {time.size} time stamps "
+                f"({t_out.size - time.size} output samples outside the common span dropped)")
+        if abs(dt_in - dt) > 0.01 * dt:
+            resampled.append(f"the two files are sampled at different rates (input every {dt_in:.6g} s, "
+                             f"output every {dt:.6g} s): {note}")
+        decisions.append("joined: " + note)
     if same:
         out_values = [ch.values for ch in out.channels]
     out_names = {ch.name for ch in out.channels}
@@ -65,7 +81,7 @@ def join_input_output(inp: Capture, out: Capture) -> Capture:
     meta.update({f"input: {k}": v for k, v in inp.metadata.items()})
     meta[INPUT_KEY] = channels[0].name
     meta[OUTPUT_KEY] = channels[len(inp.channels)].name
-    warnings = [f"input file: {w}" for w in inp.warnings] + [f"output file: {w}" for w in out.warnings]
+    warnings = resampled + [f"input file: {w}" for w in inp.warnings] + [f"output file: {w}" for w in out.warnings]
     prov = Provenance(path=paths, data_start_line=out.provenance.data_start_line,
                       layout=f"two files joined on time (input: {inp.provenance.layout}; "
                              f"output: {out.provenance.layout})",

@@ -26,6 +26,13 @@ COUNT_WORDS = {"counts", "count", "adc", "codes", "code", "lsb", "raw", "adc cou
 _SI_BASES = set(BASE_UNITS.values())
 _NAME_UNIT = re.compile(r"^(.*?)\s*[\(\[]\s*([^\)\]]*?)\s*[\)\]]\s*$")
 _NAME_SLASH = re.compile(r"^(.*?)\s*/\s*([A-Za-zµμΩ]+)$")
+_NAME_TIME_SUFFIX = re.compile(r"^(time|t)_(s|ms|us|µs|ns)$", re.I)
+#: Seconds per unit tried when a time column's steps contradict the header's sample interval.
+_TIME_FACTORS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "ns": 1e-9}
+#: A time column with no unit stepping by at least this much could as well be in
+#: milliseconds (a logger sampling at 1 us or slower): the seconds reading is then a
+#: warning, not a quiet decision (finer steps read as ms would be a logger faster than 1 MS/s).
+PLAUSIBLY_MS_STEP = 1e-3
 
 
 def _clean_unit(unit: str) -> str:
@@ -54,6 +61,9 @@ def split_name_unit(name: str) -> tuple[str, str]:
     m = _NAME_UNIT.match(name)
     if m and m.group(1):
         return m.group(1).strip(), _clean_unit(m.group(2))
+    m = _NAME_TIME_SUFFIX.match(name.strip())
+    if m:
+        return m.group(1), m.group(2)
     m = _NAME_SLASH.match(name)
     if m and m.group(1) and looks_like_unit(m.group(2)):
         return m.group(1).strip(), _clean_unit(m.group(2))
@@ -86,7 +96,12 @@ class ReadPlan:
     """Everything the bulk reader needs, and why.
 
     time_source: "column" (time column, scaled by time_factor), "index"
-    (sample-index column times the interval), or "interval" (origin + k * interval).
+    (sample-index column times the interval), "stamps" (date and time text in
+    ``stamp_column``, read as seconds from the first) or "interval" (origin + k * interval).
+    twin_time_columns: further columns whose name says time (one per channel in
+    some exports); the reader checks that they repeat the time column.
+    time_given: the time column was named by the user (its steps are then trusted
+    over the header's sample interval).
     time_quantum: ("sig", n) when time stamps are printed with n significant
     digits, ("fixed", n) with n decimals, or None.
     """
@@ -106,10 +121,13 @@ class ReadPlan:
     time_quantum: tuple[str, int] | None
     time_name: str = "time"
     extra_warnings: tuple[str, ...] = field(default=())
+    twin_time_columns: tuple[int, ...] = field(default=())
+    time_given: bool = False
+    stamp_column: int | None = None
 
     @property
     def columns(self) -> list[int]:
-        cols = [c.column for c in self.channels]
+        cols = [c.column for c in self.channels] + list(self.twin_time_columns)
         for extra in (self.time_column, self.index_column):
             if extra is not None:
                 cols.append(extra)
@@ -140,27 +158,31 @@ def plan_read(sample: TextSample, shape: TextShape, *, sample_interval: float | 
         found = md.sample_interval(meta)
         interval, interval_src = (found[0], f"from {found[1]!r}") if found else (None, None)
 
+    bad_interval = md.nonpositive_interval(meta) if interval is None else None
     time_col, index_col, time_source = _choose_time_axis(shape, names, units, meta, interval,
-                                                         time_column, decisions, path)
+                                                         time_column, decisions, path, bad_interval)
+    if bad_interval:
+        warnings.append(f"the header's sample interval {bad_interval[0]} = {bad_interval[1]} is not positive: "
+                        "ignored, the time column is used")
     tfactor = 1.0
     if time_col is not None:
-        t_unit = time_unit or units.get(time_col) or meta.get("Horizontal Units", "")
-        f = time_factor(t_unit) if t_unit else None
-        if t_unit and f is None:
-            raise CaptureError(f"time column unit {t_unit!r} is not a time unit", path=path,
-                               hint="give the unit with --time-unit (s, ms, us, ns)")
-        if f is None:
-            decisions.append("time unit: not written in the file; taken as seconds")
-        else:
-            tfactor = f
-            decisions.append(f"time unit: {_clean_unit(t_unit)}" + (" (given)" if time_unit else ""))
+        tfactor = _time_column_factor(shape, time_col, time_unit or units.get(time_col)
+                                      or meta.get("Horizontal Units", ""), bool(time_unit),
+                                      interval if interval_src != "given" else None,
+                                      decisions, warnings, path)
     if interval is not None and time_source != "column":
         decisions.append(f"sample interval: {interval:.6g} s ({interval_src})")
     if sample_interval is not None and time_source == "column":
         warnings.append("--sample-interval ignored: the file has a time column "
                         "(add --time-column none to build the axis from the interval instead)")
+        found = md.sample_interval(meta)
+        interval = found[0] if found else None
+    twins = _twin_time_columns(shape, time_col, index_col, names) if time_column is None else []
+    stamp_col = None
+    if time_source == "stamps":
+        stamp_col = shape.datetime_columns[0]
 
-    channel_cols = [j for j in shape.numeric_columns if j not in (time_col, index_col)]
+    channel_cols = [j for j in shape.numeric_columns if j not in (time_col, index_col) and j not in twins]
     if not channel_cols:
         raise CaptureError("no data channels besides the time column", path=path,
                            hint="check --time-column, or that the file holds a signal column")
@@ -186,7 +208,60 @@ def plan_read(sample: TextSample, shape: TextShape, *, sample_interval: float | 
     time_name = names.get(time_col, "time") if time_col is not None else "time"
     return ReadPlan(time_col, index_col, tuple(plans), time_source, tfactor, interval, origin,
                     origin_given, meta, layout, tuple(decisions), md.record_length(meta), quantum,
-                    time_name, tuple(warnings))
+                    time_name, tuple(warnings), tuple(twins), time_column is not None, stamp_col)
+
+
+def _time_column_factor(shape: TextShape, j: int, t_unit: str, given: bool, header_interval: float | None,
+                        decisions: list[str], warnings: list[str], path: str) -> float:
+    """Seconds per unit of the time column, with the decision written down.
+
+    A unit written in the file (or given) is used. With none, whole-number
+    stamps are a logger's millisecond counter unless the header's sample
+    interval says otherwise; other stamps are taken as seconds, again unless
+    the header's interval matches them read in another unit. Either way the
+    guess is a warning, so every command shows it.
+    """
+    f = time_factor(t_unit) if t_unit else None
+    if t_unit and f is None:
+        raise CaptureError(f"time column unit {t_unit!r} is not a time unit", path=path,
+                           hint="give the unit with --time-unit (s, ms, us, ns)")
+    if f is not None:
+        decisions.append(f"time unit: {_clean_unit(t_unit)}" + (" (given)" if given else ""))
+        return f
+    v = _numbers(shape, j, shape.decimal)
+    step = (v[-1] - v[0]) / (len(v) - 1) if len(v) >= 2 and v[-1] > v[0] else None
+    if header_interval and step:
+        unit = next((u for u, k in _TIME_FACTORS.items()
+                     if abs(step * k - header_interval) <= 0.01 * header_interval), None)
+        if unit:
+            decisions.append(f"time unit: not written in the file; {unit}, which matches the "
+                             f"header's sample interval of {header_interval:.6g} s")
+            return _TIME_FACTORS[unit]
+    if _integers(shape, j):
+        warnings.append("the time column holds whole numbers with no unit: taken as milliseconds "
+                        "(a logger's millisecond counter); give --time-unit s if they are seconds")
+        return 1e-3
+    if step is not None and step >= PLAUSIBLY_MS_STEP:
+        warnings.append(f"the time column has no unit written and steps by {step:.6g}: taken as seconds "
+                        "(give --time-unit ms if they are milliseconds)")
+    else:
+        decisions.append("time unit: not written in the file; taken as seconds")
+    return 1.0
+
+
+def _twin_time_columns(shape: TextShape, time_col: int | None, index_col: int | None,
+                       names: dict[int, str]) -> list[int]:
+    """Further columns whose name says time, beside a time column found by its name
+    (exports that give each channel its own time column)."""
+    if time_col is None or not _says_time(names.get(time_col, "")):
+        return []
+    return [j for j in shape.numeric_columns
+            if j not in (time_col, index_col) and _says_time(names.get(j, ""))]
+
+
+def _says_time(name: str) -> bool:
+    base = name.lower()
+    return base in TIME_NAMES or base.startswith("time")
 
 
 def _names_and_units(shape: TextShape, meta: dict[str, str]) -> tuple[dict[int, str], dict[int, str]]:
@@ -214,7 +289,8 @@ def _names_and_units(shape: TextShape, meta: dict[str, str]) -> tuple[dict[int, 
 
 def _choose_time_axis(shape: TextShape, names: dict[int, str], units: dict[int, str],
                       meta: dict[str, str], interval: float | None, time_column: str | int | None,
-                      decisions: list[str], path: str) -> tuple[int | None, int | None, str]:
+                      decisions: list[str], path: str, bad_interval: tuple[str, str] | None = None
+                      ) -> tuple[int | None, int | None, str]:
     """(time column, sample-index column, time source) with the reason in ``decisions``.
 
     Order: the --time-column option; a column named as time; a sample-index
@@ -234,12 +310,12 @@ def _choose_time_axis(shape: TextShape, names: dict[int, str], units: dict[int, 
             time_col = _column_by_key(key, cols, names, path)
             decisions.append(f"time: column {_col_label(time_col, names)} (given)")
     else:
-        index_col = next((j for j in cols if units.get(j, "").lower() in INDEX_WORDS
-                          or names.get(j, "").lower() in INDEX_WORDS), None)
+        index_col = next((j for j in cols if (units.get(j, "").lower() in INDEX_WORDS
+                                              or names.get(j, "").lower() in INDEX_WORDS)
+                          and _counts_up(shape, j)), None)
         for j in cols:
             base = names.get(j, "").lower()
-            if j != index_col and (base in TIME_NAMES or base.startswith("time")
-                                   or (base == "x" and time_factor(units.get(j, "")))):
+            if j != index_col and (_says_time(base) or (base == "x" and time_factor(units.get(j, "")))):
                 time_col = j
                 break
         if time_col is not None:
@@ -249,20 +325,27 @@ def _choose_time_axis(shape: TextShape, names: dict[int, str], units: dict[int, 
             decisions.append(f"time: sample-index column {_col_label(index_col, names)} "
                              "times the sample interval")
         elif shape.datetime_columns:
-            time_source = "interval"
             stamp = shape.data_cells[0][shape.datetime_columns[0]] if shape.data_cells else ""
             meta.setdefault("first time stamp", stamp)
-            decisions.append("time: wall-clock stamps found; time axis built from the sample interval "
-                             f"(first stamp {stamp!r} kept in the metadata)")
-        elif len(cols) >= 2 and _increasing(shape, cols[0], shape.decimal, interval):
+            if interval is not None:
+                time_source = "interval"
+                decisions.append("time: wall-clock stamps found; time axis built from the sample interval "
+                                 f"(first stamp {stamp!r} kept in the metadata)")
+            else:
+                time_source = "stamps"
+                decisions.append(f"time: wall-clock stamps read as time from the first sample ({stamp!r})")
+        elif len(cols) >= 2 and _increasing(shape, cols[0], shape.decimal):
             time_col = cols[0]
             decisions.append(f"time: first column {_col_label(time_col, names)} taken as time "
-                             "(it increases steadily" + (" at the stated sample interval" if interval else "")
-                             + "; override with --time-column)")
+                             "(it increases steadily; override with --time-column)")
         else:
             time_source = "interval"
             if interval is not None:
                 decisions.append("time: no time column; axis built from the sample interval")
+    if time_source in ("interval", "index") and interval is None and bad_interval:
+        raise CaptureError(f"no time column, and the header's sample interval {bad_interval[0]} = "
+                           f"{bad_interval[1]} is not positive", path=path,
+                           hint="give the true interval with --sample-interval (for example 1u)")
     if time_source in ("interval", "index") and interval is None:
         why = "wall-clock stamps are not a usable time axis" if shape.datetime_columns else "no time column"
         raise CaptureError(f"{why} and no sample interval in the file", path=path,
@@ -285,17 +368,23 @@ def _channel_plans(shape: TextShape, channel_cols: list[int], names: dict[int, s
         name = names.get(j) or source_name or f"ch{k}"
         src_unit = _clean_unit(value_unit or units.get(j) or vertical_units or "")
         counts = None
+        raw_counts = src_unit.lower() in COUNT_WORDS or (not src_unit and _integers(shape, j))
         if vertical_scale is not None:
             counts = (float(vertical_scale), 0.0, float(vertical_offset or 0.0))
             decisions.append(f"channel {name!r}: values x {vertical_scale:g} V + "
                              f"{vertical_offset or 0:g} V (given)")
-        elif src_unit.lower() in COUNT_WORDS or (not src_unit and _integers(shape, j)):
+        elif raw_counts:
             conv = md.counts_conversion(meta, name)
             if conv:
                 counts = conv[:3]
                 decisions.append(f"channel {name!r}: {conv[3]}")
         if counts is not None:
             plans.append(ChannelPlan(j, name, src_unit or "counts", 1.0, "V", counts))
+            continue
+        if raw_counts:
+            plans.append(ChannelPlan(j, name, src_unit or "counts", 1.0, "counts"))
+            decisions.append(f"channel {name!r}: whole numbers with no unit, kept as raw ADC counts "
+                             "(give --vertical-scale, volts per count, to read volts)")
             continue
         factor, si = unit_scale(src_unit) if src_unit else (1.0, "")
         plans.append(ChannelPlan(j, name, src_unit, factor, si))
@@ -336,15 +425,17 @@ def _numbers(shape: TextShape, j: int, decimal: str) -> list[float]:
     return out
 
 
-def _increasing(shape: TextShape, j: int, decimal: str, interval: float | None) -> bool:
-    """Column j increases strictly in the sample (and steps by ``interval``, when one is known)."""
+def _increasing(shape: TextShape, j: int, decimal: str) -> bool:
+    """Column j increases strictly in the sample (a time axis; whether it agrees with
+    the header's sample interval is checked on the whole column by the reader)."""
     v = _numbers(shape, j, decimal)
-    if len(v) < 3 or not all(b > a for a, b in zip(v, v[1:])):
-        return False
-    if interval is None:
-        return True
-    step = (v[-1] - v[0]) / (len(v) - 1)
-    return abs(step - interval) <= 0.01 * interval
+    return len(v) >= 3 and all(b > a for a, b in zip(v, v[1:]))
+
+
+def _counts_up(shape: TextShape, j: int) -> bool:
+    """Column j holds whole numbers counting up by one (a sample index), in the sample."""
+    v = _numbers(shape, j, shape.decimal)
+    return len(v) >= 2 and all(float(x).is_integer() for x in v) and all(b - a == 1 for a, b in zip(v, v[1:]))
 
 
 def _integers(shape: TextShape, j: int) -> bool:

@@ -146,6 +146,17 @@ def sample_interval(meta: Mapping[str, str]) -> tuple[float, str] | None:
     return None
 
 
+def nonpositive_interval(meta: Mapping[str, str]) -> tuple[str, str] | None:
+    """(key, value as written) of a sample interval or rate the header states as zero or negative."""
+    for keys, base in ((INTERVAL_KEYS, "s"), (RATE_KEYS, "Hz")):
+        hit = find(meta, keys)
+        if hit:
+            v = _number_with_unit(hit[1], hit[2], base)
+            if v is not None and not v > 0:
+                return hit[0], hit[1]
+    return None
+
+
 def time_origin(meta: Mapping[str, str], interval: float | None, n_points: int) -> tuple[float, str] | None:
     """(time of the first sample in seconds, explanation), from a start time or a trigger sample."""
     hit = find(meta, ORIGIN_KEYS)

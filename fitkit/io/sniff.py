@@ -18,6 +18,9 @@ from ..errors import CaptureError
 
 #: Bytes read for sniffing. Headers of bench exports are a few KB at most.
 SAMPLE_BYTES = 32 * 1024
+#: Bytes read for sniffing when the data does not start within SAMPLE_BYTES
+#: (exports with long comment headers); --skip-rows reaches anything longer.
+MAX_SAMPLE_BYTES = 4 * 1024 * 1024
 #: Content lines searched for the start of the data (headers are never longer).
 MAX_HEADER_SCAN = 400
 #: Number of content lines at the end of the sample used to learn the data's shape.
@@ -110,19 +113,32 @@ def read_head(path: str | Path, nbytes: int) -> bytes:
         raise CaptureError(f"cannot read the file ({exc.strerror})", path=str(path)) from None
 
 
-def read_sample(path: str | Path, *, encoding: str | None = None) -> TextSample:
-    """Read and decode the first SAMPLE_BYTES of ``path`` (never writes).
+def read_sample(path: str | Path, *, encoding: str | None = None, window: int = SAMPLE_BYTES,
+                skip_lines: int = 0) -> TextSample:
+    """Read and decode ``window`` bytes of ``path`` (never writes), from the start
+    or from after its first ``skip_lines`` lines (line numbers and byte offsets
+    stay those of the whole file).
 
-    Raises CaptureError for a missing, empty or binary file.
+    Raises CaptureError for a missing, empty or binary file, one whose lines end
+    with a carriage return only, or one with no line end in the window.
     """
     p = Path(path)
-    raw = read_head(p, SAMPLE_BYTES)
+    head = read_head(p, window)
     size = p.stat().st_size
-    if size == 0 or not raw.strip():
+    if size == 0 or not head.strip():
         raise CaptureError("the file is empty", path=str(path),
                            hint="export the capture again; the file holds no data")
-    enc, bom = _decide_encoding(raw, encoding)
-    whole = size <= SAMPLE_BYTES
+    start = _offset_after_lines(p, skip_lines) if skip_lines and not head.startswith((b"\xff\xfe", b"\xfe\xff")) \
+        else 0
+    raw = head if start == 0 else _read_at(p, start, window)
+    if start and not raw.strip():
+        raise CaptureError(f"nothing after the {skip_lines} skipped lines", path=str(path),
+                           hint="check --skip-rows")
+    _reject_line_ends(raw, size, start + len(raw) >= size, str(path), window)
+    enc, bom = _decide_encoding(head, encoding)
+    if start:
+        bom = 0
+    whole = start + len(raw) >= size
     if enc.startswith("utf-16"):
         # Rare (some Windows tools): decode the sample as text; offsets are in characters.
         text = raw[bom:].decode(enc, errors="replace")
@@ -138,18 +154,54 @@ def read_sample(path: str | Path, *, encoding: str | None = None) -> TextSample:
         if not whole:
             cut = body.rfind(b"\n")
             body = body[: cut + 1] if cut >= 0 else b""
-        lines, pos = [], 0
+        lines, pos = [], start
         for i, part in enumerate(body.split(b"\n")):
-            start = pos
+            offset = pos
             pos += len(part) + 1
-            if i == 0:
-                start, part = bom, part[bom:]
-            lines.append(TextLine(i + 1, start, part.decode(enc, errors="replace").rstrip("\r")))
+            if i == 0 and bom:
+                offset, part = bom, part[bom:]
+            lines.append(TextLine(skip_lines * (start > 0) + i + 1, offset,
+                                  part.decode(enc, errors="replace").rstrip("\r")))
         if lines and lines[-1].text == "" and body.endswith(b"\n"):
             lines.pop()
     text_all = "\n".join(line.text for line in lines)
     _reject_binary(text_all, raw, str(path), enc)
     return TextSample(str(path), enc, tuple(lines), whole, size)
+
+
+def _offset_after_lines(path: Path, n: int) -> int:
+    """Byte offset of the start of line n + 1 (the end of the file when it has fewer lines)."""
+    try:
+        with open(path, "rb") as fh:
+            for _ in range(n):
+                if not fh.readline(64 * 1024 * 1024):
+                    break
+            return fh.tell()
+    except OSError as exc:
+        raise CaptureError(f"cannot read the file ({exc.strerror})", path=str(path)) from None
+
+
+def _read_at(path: Path, offset: int, n: int) -> bytes:
+    try:
+        with open(path, "rb") as fh:
+            fh.seek(offset)
+            return fh.read(n)
+    except OSError as exc:
+        raise CaptureError(f"cannot read the file ({exc.strerror})", path=str(path)) from None
+
+
+def _reject_line_ends(raw: bytes, size: int, whole: bool, path: str, window: int) -> None:
+    """Name the problem of a file whose lines cannot be found: CR-only line ends, or no line end at all."""
+    if b"\n" in raw or b"\x00" in raw:
+        return
+    if raw.count(b"\r") >= 2:
+        raise CaptureError("the lines end with a carriage return only (an old Mac line end), which fitkit "
+                           "does not read", path=path,
+                           hint="convert the line ends to LF or CRLF, e.g. tr '\\r' '\\n' < IN > OUT")
+    if not whole:
+        raise CaptureError(f"no line end in the first {window // 1024} KB of a {size / 1e6:.3g} MB file: "
+                           "it is not a capture with one sample per line", path=path,
+                           hint="export the capture again as one row per sample")
 
 
 def _decide_encoding(raw: bytes, forced: str | None) -> tuple[str, int]:
@@ -247,6 +299,7 @@ def decide_shape(sample: TextSample, *, delimiter: str | None = None, decimal: s
                            hint="check --skip-rows, or export the capture again")
     tail = content[-TAIL_LINES:]
 
+    guessed = delimiter is None
     if delimiter is None:
         delimiter = _guess_delimiter(tail)
         decisions.append(f"delimiter: {DELIMITER_NAMES[delimiter]} (guessed from the data lines)")
@@ -288,6 +341,8 @@ def decide_shape(sample: TextSample, *, delimiter: str | None = None, decimal: s
         raise CaptureError("cannot find where the numeric data starts", path=path,
                            hint="give --skip-rows (lines before the header) and --header-rows")
     data_line = split[start_idx][0]
+    if guessed:
+        _reject_mixed_delimiters(split[:start_idx], delimiter, decimal, len(numeric_cols), data_line, path)
     data_split = split[start_idx:]
     n_fields = max(len(cells) for _, cells in data_split)
     data_cols = set(numeric_cols) | set(datetime_cols)
@@ -309,6 +364,22 @@ def decide_shape(sample: TextSample, *, delimiter: str | None = None, decimal: s
     return TextShape(delimiter, decimal, n_fields, data_line, tuple(numeric_cols), tuple(datetime_cols),
                      headers, metadata_lines, tuple(s for s in side if s),
                      tuple(tuple(c) for _, c in data_split[:TAIL_LINES]), tuple(decisions))
+
+
+def _reject_mixed_delimiters(above: list[tuple[TextLine, list[str]]], delimiter: str, decimal: str,
+                             width: int, data_line: TextLine, path: str) -> None:
+    """CaptureError when the lines above the data are rows of numbers split by another delimiter."""
+    for other in DELIMITERS:
+        if other == delimiter:
+            continue
+        rows = [ln for ln, _ in above
+                if sum(is_number(c, decimal) for c in split_cells(ln.text, other)) >= max(width, 2)]
+        if len(rows) >= RUN_TO_START:
+            raise CaptureError(f"the file mixes delimiters: lines {rows[0].number} to {rows[-1].number} are "
+                               f"split by {DELIMITER_NAMES[other]}s, the data from line {data_line.number} by "
+                               f"{DELIMITER_NAMES[delimiter]}s", path=path,
+                               hint="export the capture again, or give --delimiter and --skip-rows "
+                                    "to read one part")
 
 
 def _header_cells(text: str, cells: list[str], delimiter: str, n_fields: int) -> list[str]:
@@ -391,7 +462,13 @@ def _count_header_rows(above: list[tuple[TextLine, list[str]]], data_cols: set[i
     if not above:
         return 0
     last = above[-1][1]
-    if len(above) >= 2 and units_like(last) and names_like(above[-2][1]):
+    def numbered_names(cells: list[str]) -> bool:
+        # channel numbers as names ("x-axis,1,2,3,F1") above a units row
+        at = cells_at(cells)
+        return (len(at) == len(data_cols) and all(at) and any(not number_either(c) for c in at)
+                and not any(re.search(r"[:=]", c) for c in at))
+
+    if len(above) >= 2 and units_like(last) and (names_like(above[-2][1]) or numbered_names(above[-2][1])):
         return 2
     if names_like(last):
         return 1

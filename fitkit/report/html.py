@@ -158,7 +158,7 @@ def _selection_table(result: FitResult) -> str:
                      f"<td>{'yes' if c.converged else 'no'}</td><td>{c.n_parameters}</td>"
                      f'<td class="num">{f"{c.criterion:.1f}" if ok else "-"}</td>'
                      f'<td class="num">{f"{c.delta:+.1f}" if ok and math.isfinite(c.delta) else "-"}</td>'
-                     f'<td class="num">{_e(format_quantity(c.rms_residual, "V", 3)) if ok else "-"}</td>'
+                     f'<td class="num">{_e(format_quantity(c.rms_residual, result.output_unit, 3)) if ok else "-"}</td>'
                      f"<td>{_e(c.note)}</td></tr>")
     return (f'<h2>Candidate forms</h2><table class="selection"><thead>{head}</thead>'
             f"<tbody>{''.join(lines)}</tbody></table>")
@@ -175,8 +175,8 @@ def _diagnostics_table(result: FitResult) -> str:
     ratio = d.rms_residual / d.noise_rms if d.noise_rms and math.isfinite(d.noise_rms) else float("nan")
     rows = [
         ("samples fitted", f"{d.n_samples} (effective {num(d.effective_samples, '.0f')})"),
-        ("RMS residual", format_quantity(d.rms_residual, "V", 3)),
-        ("noise estimate (RMS)", format_quantity(d.noise_rms, "V", 3)),
+        ("RMS residual", format_quantity(d.rms_residual, result.output_unit, 3)),
+        ("noise estimate (RMS)", format_quantity(d.noise_rms, result.output_unit, 3)),
         ("residual / noise", num(ratio, ".2f")),
         ("residual lag-1 correlation", num(d.residual_lag1, ".2f")),
         ("interval correction", d.correction or "none"),

@@ -139,8 +139,7 @@ def plot_fit(result: FitResult, path: str | os.PathLike | None = None, ax: Any =
             raise OptionError(f"cannot write a plot to {path}: unknown file type",
                               path=str(path), hint="name the plot file .png, .svg or .pdf")
     fig, ax_data, ax_res, ax_box = _resolve_axes(ax)
-    out_unit = result.parameters["step"].unit if "step" in result.parameters else "V"
-    out_unit = out_unit or "V"
+    out_unit = result.output_unit
 
     if envelope is not None:
         t_env, lo_env, hi_env = (np.asarray(a, dtype=float) for a in envelope)
@@ -172,10 +171,13 @@ def plot_fit(result: FitResult, path: str | os.PathLike | None = None, ax: Any =
 
     ax_data.xaxis.set_major_formatter(EngFormatter(unit="s"))
     ax_res.xaxis.set_major_formatter(EngFormatter(unit="s"))
-    ax_data.yaxis.set_major_formatter(EngFormatter(unit=out_unit))
-    ax_res.yaxis.set_major_formatter(EngFormatter(unit=out_unit))
-    ax_data.set_ylabel("output")
-    ax_res.set_ylabel("residual")
+    if out_unit == "V":
+        ax_data.yaxis.set_major_formatter(EngFormatter(unit=out_unit))
+        ax_res.yaxis.set_major_formatter(EngFormatter(unit=out_unit))
+    # raw counts and unitless values keep plain numbers; the unit goes in the label
+    suffix = f" ({out_unit})" if out_unit not in ("V", "") else ""
+    ax_data.set_ylabel("output" + suffix)
+    ax_res.set_ylabel("residual" + suffix)
     ax_res.set_xlabel("time")
     ax_data.tick_params(labelbottom=False)
     for axis in (ax_data, ax_res):

@@ -169,7 +169,7 @@ def _candidates_table(result: FitResult) -> str:
         chosen = " (chosen)" if cand.model == result.model else ""
         delta = (f"{cand.delta:+.1f}" if cand.converged and cand.delta is not None
                  and math.isfinite(cand.delta) else "-")
-        rms = format_quantity(cand.rms_residual, "V", 3) if cand.converged else "did not converge"
+        rms = format_quantity(cand.rms_residual, result.output_unit, 3) if cand.converged else "did not converge"
         table.append([cand.model + chosen, str(cand.n_parameters), delta, rms, cand.note or ""])
     return "Candidate forms\n" + "\n".join(_align(table))
 
@@ -178,15 +178,16 @@ def _diagnostics_block(result: FitResult) -> str:
     d = result.diagnostics
     ratio = (d.rms_residual / d.noise_rms if d.noise_rms and math.isfinite(d.noise_rms)
              and d.noise_rms > 0 else float("nan"))
-    rms = f"{format_quantity(d.rms_residual, 'V', 3)}"
+    rms = f"{format_quantity(d.rms_residual, result.output_unit, 3)}"
     if math.isfinite(ratio):
-        rms += f", noise estimate {format_quantity(d.noise_rms, 'V', 3)} (ratio {ratio:.2f})"
+        rms += f", noise estimate {format_quantity(d.noise_rms, result.output_unit, 3)} (ratio {ratio:.2f})"
     eff = (f" (effective {d.effective_samples:.0f})" if d.effective_samples is not None
            and math.isfinite(d.effective_samples) else "")
     widening = (f"x{d.ci_widening:.2f}" if d.ci_widening is not None
                 and math.isfinite(d.ci_widening) else "n/a")
     rows = [
         ["samples fitted", f"{d.n_samples}{eff}"],
+        *([["binned", str(result.extra["binning"])]] if result.extra.get("binning") else []),
         ["residual RMS", rms],
         ["residual lag-1 correlation", f"{d.residual_lag1:.2f}" if math.isfinite(d.residual_lag1) else "n/a"],
         ["interval correction", d.correction or "none"],
