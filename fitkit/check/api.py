@@ -8,7 +8,8 @@ Steps (each in its own module):
    with 95 % intervals;
 3. tolerance envelope (envelope.py): the responses and quantity ranges the
    design allows; the capture compared with it;
-4. fault hypotheses (diagnosis.py): each part alone, swaps, ranked by AICc;
+4. fault hypotheses (diagnosis.py, fitted by the engine in hypotheses.py):
+   each part alone, swaps, pairs, ranked by the engine's AICc;
 5. verdicts (verdicts.py): per quantity, per part, overall, and what would
    resolve an inconclusive check.
 """
@@ -28,9 +29,10 @@ from ..conditioning import analyse_steps
 from ..errors import FitkitError
 from ..results import Estimate, FitResult
 from .design import Design, load_design, resolve_limits
+from ..fitting.information import has_measured_input
+from .design import analysed_circuit
 from .diagnosis import Diagnosis, diagnose
 from .envelope import Envelope, EnvelopeComparison, compare, tolerance_envelope
-from .response import analysed_circuit, uses_measured_input
 from .verdicts import (PartVerdict, QuantityVerdict, judge_parts, judge_quantities, overall_verdict,
                        resolve_hints, tolerance_widening)
 
@@ -131,10 +133,9 @@ def behavioural_form(design: Design, measured_input: bool) -> str:
 
 def check_capture(capture: Capture, design: Design | str | Path, *, input: str | int | None = None,
                   output: str | int | None = None, average: bool = False, envelope_trials: int = 200,
-                  seed: int = 0, edge_time: float | None = None, part_fitter: str = "quick") -> CheckResult:
+                  seed: int = 0, edge_time: float | None = None) -> CheckResult:
     """Check one capture against a design (a Design or a design file path).
 
-    part_fitter: "quick" (default) or "partfit" for the single-part fits (diagnosis.py).
     Raises FitkitError (DesignError, CaptureError, ConditioningError, FitError)
     when the inputs cannot be used; a board that fails is a result, not an error.
     """
@@ -145,7 +146,7 @@ def check_capture(capture: Capture, design: Design | str | Path, *, input: str |
     file = capture.provenance.path
     analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average)
     segments = analysis.segments
-    measured = uses_measured_input(segments)
+    measured = has_measured_input(segments)
     warnings = list(analysis.flags)
     # The behavioural fit is driven by an ideal step (the generator's), so its
     # tau / f0 / Q are those of the circuit with the whole fixture; the gain is
@@ -171,7 +172,7 @@ def check_capture(capture: Capture, design: Design | str | Path, *, input: str |
 
     diagnosis = None
     try:
-        diagnosis = diagnose(design, segments, file=file, measured_input=measured, part_fitter=part_fitter)
+        diagnosis = diagnose(design, segments, file=file, measured_input=measured)
     except FitkitError as exc:
         warnings.append(f"fault diagnosis did not run: {exc.message}")
     widening = tolerance_widening(design, gain_known=measured)

@@ -314,3 +314,16 @@ def resolve_limits(design: Design, nominal_quantities: Mapping[str, float]) -> d
 
 
 __all__ = ["Design", "PartSpec", "load_design", "loads_design", "resolve_limits"]
+
+
+def analysed_circuit(circuit: Circuit, measured_input: bool) -> Circuit:
+    """The circuit with its measurement chain as known parts, as a capture sees it:
+    without the generator's source resistance when the input is measured at the
+    driven pad (the model is then driven from that pad; the probe stays in)."""
+    from dataclasses import replace
+    from ..circuits.description import SOURCE_PART
+    full = circuit.with_chain_parts()
+    if measured_input and circuit.chain.source_resistance is not None:
+        parts = tuple(p for p in full.parts if p.name != SOURCE_PART)
+        return replace(full, parts=parts, drive=circuit.drive)
+    return full

@@ -25,7 +25,8 @@ from ..conditioning.segment import StepSegment
 from ..errors import CircuitError, FitError
 from ..results import Estimate, FitResult, json_number
 from .behavioural import RouteOne, route_one
-from .direct import DirectFit, direct_fits, has_input
+from ..fitting.information import has_measured_input
+from .direct import DirectFit, direct_fits
 from .problem import PartProblem, ensure_values, prepare_problem
 
 #: Series reported for the nearest preferred values.
@@ -82,7 +83,7 @@ def fit_circuit_segments(segments: Sequence[StepSegment], circuit: Circuit, *,
     if not segments:
         raise FitError("no step segments to fit", path=file or None,
                        hint="check that the capture holds at least one edge")
-    measured = has_input(segments) if measured_input is None else measured_input
+    measured = has_measured_input(segments) if measured_input is None else measured_input
     problem = prepare_problem(circuit, unknowns, design_values=design_values, gain_known=False)
     notes: list[str] = list(problem.warnings)
     r1: RouteOne | None = None
