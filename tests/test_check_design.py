@@ -9,7 +9,7 @@ import pytest
 from fitkit.check import load_design, loads_design
 from fitkit.check.design import resolve_limits
 from fitkit.errors import DesignError
-from check_simulator import RC_DESIGN_TOML
+from check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_captures" / "designs"
 
@@ -46,9 +46,11 @@ def test_tolerance_forms(text, band):
 
 
 def test_limits_relative_and_absolute():
-    d = loads_design(BASE + '[limits]\ntau = "+-10%"\nQ = [0.6, 0.8]\nf0 = ["1k", "1.2k"]\n')
+    d = loads_design(BASE + '[limits]\ntau = "+-10%"\n')
     limits = resolve_limits(d, {"tau": 1e-3})
     assert limits["tau"] == pytest.approx((0.9e-3, 1.1e-3))
+    d = loads_design(SK_DESIGN_TOML + '[limits]\nQ = [0.6, 0.8]\nf0 = ["1k", "1.2k"]\n')
+    limits = resolve_limits(d, {})
     assert limits["Q"] == (0.6, 0.8)
     assert limits["f0"] == (1000.0, 1200.0)
 
@@ -84,3 +86,40 @@ def test_bad_limits_and_missing_file(tmp_path):
         loads_design("name = ")
     with pytest.raises(DesignError, match="topology rc-low-pass has no part R9"):
         loads_design(BASE + '[parts.R9]\nvalue = "1k"\ntolerance = "1%"\n')
+
+
+# -- values no part of its kind has, and limits the design's order does not have (issue 19, item 3) --
+
+@pytest.mark.parametrize("change,part,line", [
+    (('value = "100n"', 'value = "10k"'), "C1", 10),       # 10 kF: "10k" written for a capacitor
+    (('value = "100n"', 'value = 1e300'), "C1", 10),
+    (('value = "10k"', 'value = 1e300'), "R1", 7),
+    (('value = "10k"', 'value = "1f"'), "R1", 7),          # a femto-ohm resistor
+])
+def test_implausible_part_values_are_refused_naming_file_and_part(tmp_path, change, part, line):
+    # plausible ranges: common practice, no source (fitkit.check.design.PLAUSIBLE_VALUES)
+    path = tmp_path / "board.toml"
+    path.write_text(BASE.replace(*change), encoding="utf-8")
+    with pytest.raises(DesignError) as info:
+        load_design(path)
+    one = info.value.one_line()
+    assert one.startswith(f"{path}:{line}:") and f"part {part}" in one and "plausible" in one
+    assert "\n" not in one
+
+
+@pytest.mark.parametrize("design,limit,ok", [
+    (BASE, 'f0 = "+-10%"', False),        # a first-order design has tau, not f0 / Q
+    (BASE, 'Q = [0.6, 0.8]', False),
+    (BASE, 'tau = "+-10%"', True),
+    (BASE, 'gain = [0.9, 1.1]', True),
+    (SK_DESIGN_TOML, 'tau = "+-10%"', False),   # a second-order design has f0 and Q
+    (SK_DESIGN_TOML, 'f0 = "+-10%"', True),
+])
+def test_limits_must_apply_to_the_designs_order(design, limit, ok):
+    text = design + "[limits]\n" + limit + "\n"
+    if ok:
+        assert loads_design(text).limits
+    else:
+        with pytest.raises(DesignError, match="does not apply to this design") as info:
+            loads_design(text)
+        assert "[limits]" in info.value.one_line() and info.value.hint

@@ -7,8 +7,8 @@ The scheme, in the order it runs (the fits are the engine's, hypotheses.py):
 2. Each toleranced part that the capture determines on its own
    (identifiability, levels free) is fitted alone with every other part at
    nominal, by the same engine as `fitkit fit --topology`: implied value and
-   95 % interval. The two best of these are refitted with one other part
-   free within its tolerance (hypotheses.within_tolerance_refit), because a
+   95 % interval. The two best of these, when outside their tolerance, are
+   refitted with one other part free within its tolerance (hypotheses.within_tolerance_refit), because a
    neighbour inside its band can pull a one-part fit far off.
 3. Two parts of the same kind with different nominal values are tried
    swapped (each on the other's pads), with no free part.
@@ -214,8 +214,10 @@ def _single_hypotheses(design: Design, segments, measured: bool, noise: float, f
             fits.append(h)
     fits.sort(key=_rank_key)
     for i, h in enumerate(fits[:REFINED_SINGLES]):
-        if not h.runaway and h.rms > EXPLAINED_RATIO * noise / 3:
+        spec = design.parts[h.parts[0]]
+        if not h.runaway and not (spec.low <= h.values[h.parts[0]] <= spec.high):
             fits[i] = within_tolerance_refit(design, segments, h, measured, file)
+    fits.sort(key=_rank_key)
     return fits, undetermined, messages
 
 
