@@ -63,6 +63,39 @@ def test_demo_board_verdicts(demo_results, name, expected):
     assert demo_results[name].verdict == expected, demo_results[name].summary
 
 
+@pytest.mark.parametrize("name", [c[0] for c in DEMO_CASES])
+def test_fit_and_check_report_the_same_behaviour(demo_results, name):
+    # one engine: `fitkit fit --model FORM` on the same capture gives the check's tau / f0 / Q
+    # and intervals, to rounding (the check's own fit must not drift from the fit command's)
+    from fitkit.fitting import fit_capture
+    case = next(c for c in DEMO_CASES if c[0] == name)
+    cap = load_capture(DEMO / name, second_path=None if case[1] is None else DEMO / case[1], **case[3])
+    r = demo_results[name]
+    fit = fit_capture(cap, model=r.fit.model)
+    judged = [q.name for q in r.quantities if q.name in ("tau", "f0", "Q")]
+    assert judged
+    for q in judged:
+        a, b = fit.quantity(q), r.fit.quantity(q)
+        assert a.value == pytest.approx(b.value, rel=1e-9)
+        assert a.ci95 == pytest.approx(b.ci95, rel=1e-9)
+        verdict = next(v for v in r.quantities if v.name == q)
+        assert verdict.value == pytest.approx(a.value, rel=1e-12)
+
+
+def test_a_passing_board_is_quiet(demo_results):
+    from fitkit.report.check_text import render_check_text
+    r = demo_results["good_board_ladder.csv"]
+    assert r.verdict == "pass" and r.suspects              # still in the result and the JSON
+    text = render_check_text(r)
+    assert "suspects" not in text and "drifted" not in text and "does not explain" not in text
+
+
+def test_envelope_holds_a_nominal_board(demo_results):
+    # aligned on the fitted edge time, baseline and step: a good board sits inside its own envelope
+    for name in ("good_board.csv", "good_board_ladder.csv", "good_board_sallen_key.csv"):
+        assert demo_results[name].envelope_comparison.fraction_outside < 0.05, name
+
+
 def test_drifted_sallen_key_names_c31_drifted(demo_results):
     # README: C31 13.86 nF where 22 nF belongs, 6.6 % from the nearest E24 value: drifted
     r = demo_results["drifted_board_sallen_key.csv"]

@@ -9,11 +9,20 @@ import pytest
 from fitkit.check import load_design, loads_design
 from fitkit.check.design import resolve_limits
 from fitkit.errors import DesignError
-from check_simulator import RC_DESIGN_TOML
+from check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_captures" / "designs"
 
 BASE = RC_DESIGN_TOML
+
+# extra cases of the table above: values no part of its kind has (issue 19, item 3); the
+# plausible ranges are common practice, no source (fitkit.check.design.PLAUSIBLE_VALUES)
+IMPLAUSIBLE = [
+    (('value = "100n"', 'value = "10k"'), "part C1: value 10 kF is not a plausible capacitor", 10),
+    (('value = "100n"', 'value = 1e300'), "part C1: value", 10),
+    (('value = "10k"', 'value = 1e300'), "part R1: value", 7),
+    (('value = "10k"', 'value = "1f"'), "is not a plausible resistor", 7),     # a femto-ohm resistor
+]
 
 
 def test_demo_designs_read_with_designators_tolerances_and_fixture():
@@ -46,9 +55,11 @@ def test_tolerance_forms(text, band):
 
 
 def test_limits_relative_and_absolute():
-    d = loads_design(BASE + '[limits]\ntau = "+-10%"\nQ = [0.6, 0.8]\nf0 = ["1k", "1.2k"]\n')
+    d = loads_design(BASE + '[limits]\ntau = "+-10%"\n')
     limits = resolve_limits(d, {"tau": 1e-3})
     assert limits["tau"] == pytest.approx((0.9e-3, 1.1e-3))
+    d = loads_design(SK_DESIGN_TOML + '[limits]\nQ = [0.6, 0.8]\nf0 = ["1k", "1.2k"]\n')
+    limits = resolve_limits(d, {})
     assert limits["Q"] == (0.6, 0.8)
     assert limits["f0"] == (1000.0, 1200.0)
 
@@ -61,7 +72,7 @@ def test_limits_relative_and_absolute():
     (('value = "10k"', 'value = "?"'), "nominal value", 7),
     (('value = "10k"', 'value = "10kF"'), "part R1", 7),
     (('topology = "rc-low-pass"', 'topology = "rc-lowpass"'), "no circuit topology named", 5),
-])
+] + IMPLAUSIBLE)
 def test_bad_design_files_name_file_line_and_remedy(tmp_path, change, words, line):
     path = tmp_path / "board.toml"
     path.write_text(BASE.replace(*change), encoding="utf-8")
@@ -84,3 +95,23 @@ def test_bad_limits_and_missing_file(tmp_path):
         loads_design("name = ")
     with pytest.raises(DesignError, match="topology rc-low-pass has no part R9"):
         loads_design(BASE + '[parts.R9]\nvalue = "1k"\ntolerance = "1%"\n')
+
+
+# -- values no part of its kind has, and limits the design's order does not have (issue 19, item 3) --
+
+@pytest.mark.parametrize("design,limit,ok", [
+    (BASE, 'f0 = "+-10%"', False),        # a first-order design has tau, not f0 / Q
+    (BASE, 'Q = [0.6, 0.8]', False),
+    (BASE, 'tau = "+-10%"', True),
+    (BASE, 'gain = [0.9, 1.1]', True),
+    (SK_DESIGN_TOML, 'tau = "+-10%"', False),   # a second-order design has f0 and Q
+    (SK_DESIGN_TOML, 'f0 = "+-10%"', True),
+])
+def test_limits_must_apply_to_the_designs_order(design, limit, ok):
+    text = design + "[limits]\n" + limit + "\n"
+    if ok:
+        assert loads_design(text).limits
+    else:
+        with pytest.raises(DesignError, match="does not apply to this design") as info:
+            loads_design(text)
+        assert "[limits]" in info.value.one_line() and info.value.hint

@@ -1,5 +1,5 @@
 """Fault diagnosis on simulated boards: every library topology, every part position,
-one part wrong (a decade off, the neighbouring E24 value, drifted 30 %).
+one part wrong (a decade off, the neighbouring E24 value, drifted 30 %, taken in turn).
 
 The boards come from an independent simulator (tests/check_simulator.py:
 closed-form transfer functions from circuit textbooks, scipy.signal.lsim),
@@ -52,8 +52,11 @@ def faulty_value(nominal: float, fault: str) -> float:
     return nominal * FAULTS[fault]
 
 
-CASES = [(topo, part, fault) for topo, t in TOPOLOGIES.items()
-         for part, kind, _, _ in t.parts if kind != "amplifier" for fault in FAULTS]
+#: Every topology and part position, one fault each, the three faults taken in turn (the full
+#: topology x part x fault grid, with output-only and square-wave captures, is
+#: benchmarks/bench_check.py: each case is a few engine fits, too slow for the suite).
+POSITIONS = [(topo, part) for topo, t in TOPOLOGIES.items() for part, kind, _, _ in t.parts if kind != "amplifier"]
+CASES = [(topo, part, list(FAULTS)[i % len(FAULTS)]) for i, (topo, part) in enumerate(POSITIONS)]
 
 
 def run_case(topo: str, part: str, fault: str, seed: int):
@@ -76,9 +79,10 @@ def sweep():
 
 
 def test_every_topology_and_part_is_covered():
-    # 10 library topologies; every resistor, capacitor and inductor position, three faults each
+    # 10 library topologies; every resistor, capacitor and inductor position; every fault kind
     assert len(TOPOLOGIES) == 10
-    assert len(CASES) == 3 * sum(k != "amplifier" for t in TOPOLOGIES.values() for _, k, _, _ in t.parts)
+    assert len(CASES) == sum(k != "amplifier" for t in TOPOLOGIES.values() for _, k, _, _ in t.parts)
+    assert {c[2] for c in CASES} == set(FAULTS)
 
 
 def test_right_part_ranks_first_or_among_tied_leaders(sweep):
@@ -96,6 +100,16 @@ def test_implied_value_interval_holds_the_truth(sweep):
             held += est.contains(truth)
     assert total >= 0.9 * len(sweep)
     assert held >= 0.85 * total, (held, total)
+
+
+def test_no_reported_value_sits_at_a_search_bound(sweep):
+    # a fit that ran beyond PLAUSIBLE_SPAN x nominal "does not explain the capture" and has no value
+    from fitkit.check.hypotheses import PLAUSIBLE_SPAN
+    for *_, dx in sweep:
+        for s in dx.suspects:
+            if s.value is not None:
+                assert abs(math.log(s.value / s.nominal)) < math.log(PLAUSIBLE_SPAN), s
+                assert s.ci95 is not None, s
 
 
 def test_leading_suspect_explains_the_capture_to_the_noise(sweep):

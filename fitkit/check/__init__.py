@@ -2,7 +2,7 @@
 
 * design.py     the design file: nominal circuit, tolerances, fixture, acceptance limits
 * envelope.py   the tolerance envelope (Monte Carlo, uniform within tolerance, plus corners)
-* response.py   the yardstick: how well fixed part values explain a capture (RSS, AICc)
+* hypotheses.py fault hypotheses fitted by the engine (the fit of `fitkit fit --topology`)
 * diagnosis.py  fault hypotheses: each part alone, swaps, pairs; ranked by AICc; fault patterns
 * verdicts.py   per-quantity, per-part and overall verdicts from 95 % intervals
 * api.py        check_capture(capture, design, ...) -> CheckResult

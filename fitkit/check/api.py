@@ -8,7 +8,8 @@ Steps (each in its own module):
    with 95 % intervals;
 3. tolerance envelope (envelope.py): the responses and quantity ranges the
    design allows; the capture compared with it;
-4. fault hypotheses (diagnosis.py): each part alone, swaps, ranked by AICc;
+4. fault hypotheses (diagnosis.py, fitted by the engine in hypotheses.py):
+   each part alone, swaps, pairs, ranked by the engine's AICc;
 5. verdicts (verdicts.py): per quantity, per part, overall, and what would
    resolve an inconclusive check.
 """
@@ -28,9 +29,10 @@ from ..conditioning import analyse_steps
 from ..errors import FitkitError
 from ..results import Estimate, FitResult
 from .design import Design, load_design, resolve_limits
+from ..fitting.information import has_measured_input
+from .design import analysed_circuit
 from .diagnosis import Diagnosis, diagnose
 from .envelope import Envelope, EnvelopeComparison, compare, tolerance_envelope
-from .response import analysed_circuit, uses_measured_input
 from .verdicts import (PartVerdict, QuantityVerdict, judge_parts, judge_quantities, overall_verdict,
                        resolve_hints, tolerance_widening)
 
@@ -131,74 +133,116 @@ def behavioural_form(design: Design, measured_input: bool) -> str:
 
 def check_capture(capture: Capture, design: Design | str | Path, *, input: str | int | None = None,
                   output: str | int | None = None, average: bool = False, envelope_trials: int = 200,
-                  seed: int = 0, edge_time: float | None = None, part_fitter: str = "quick") -> CheckResult:
+                  seed: int = 0, edge_time: float | None = None) -> CheckResult:
     """Check one capture against a design (a Design or a design file path).
 
-    part_fitter: "quick" (default) or "partfit" for the single-part fits (diagnosis.py).
     Raises FitkitError (DesignError, CaptureError, ConditioningError, FitError)
     when the inputs cannot be used; a board that fails is a result, not an error.
     """
-    from ..fitting import fit_segments
-
     if not isinstance(design, Design):
         design = load_design(design)
     file = capture.provenance.path
     analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average)
     segments = analysis.segments
-    measured = uses_measured_input(segments)
+    measured = has_measured_input(segments)
     warnings = list(analysis.flags)
-    # The behavioural fit is driven by an ideal step (the generator's), so its
-    # tau / f0 / Q are those of the circuit with the whole fixture; the gain is
-    # judged model-free from the levels when the input is measured.
-    form = behavioural_form(design, False)
-    fit = fit_segments(segments, form, file=file, measured_input=False)
-    warnings += list(fit.warnings)
-    estimates = {k: v for k, v in {**fit.derived, **fit.parameters}.items() if k in ("tau", "f0", "Q")}
-    if measured:
-        estimates["gain"] = _level_gain(segments)
-
-    seg = segments[0]
-    after = seg.time[seg.time >= seg.edge_time] - seg.edge_time
-    span = float(after.max()) if after.size else 1.0
-    t_env = np.linspace(0.0, span, ENVELOPE_POINTS)
-    envelope = tolerance_envelope(design, t_env, trials=envelope_trials, seed=seed, measured_input=False)
+    fit, estimates = _behaviour(design, segments, measured, file, warnings)
+    span = _record_after_edge(segments)
+    envelope = tolerance_envelope(design, np.linspace(0.0, span, ENVELOPE_POINTS), trials=envelope_trials,
+                                  seed=seed, measured_input=measured)
     limits = _default_limits(envelope, measured)
     design_limits = resolve_limits(design, envelope.nominal_quantities)
     limits.update(design_limits)
     quantities = judge_quantities(estimates, limits, list(design_limits), envelope.nominal_quantities)
-
-    comparison, env_volts = _compare(envelope, segments, measured)
-
+    comparison, env_volts = _compare(envelope, segments, fit, measured)
     diagnosis = None
     try:
-        diagnosis = diagnose(design, segments, file=file, measured_input=measured, part_fitter=part_fitter)
+        diagnosis = diagnose(design, segments, file=file, measured_input=measured)
     except FitkitError as exc:
         warnings.append(f"fault diagnosis did not run: {exc.message}")
-    widening = tolerance_widening(design, gain_known=measured)
-    if diagnosis is not None:
-        components = judge_parts(design, diagnosis.estimates, diagnosis.leaders, diagnosis.undetermined, widening)
-        warnings += [m for m in diagnosis.messages if m.startswith("no single part")]
-    else:
-        components = judge_parts(design, {}, (), tuple(design.parts), widening)
+    components = _judge_parts(design, diagnosis, measured, warnings)
     verdict = overall_verdict(quantities, components)
+    verdict = _adequacy_verdict(verdict, fit, design, warnings)
     if comparison is not None and comparison.fraction_outside > 0.2 and verdict == "pass":
         warnings.append(f"{100 * comparison.fraction_outside:.0f} % of the samples lie outside the tolerance "
                         "envelope by more than 3 noise sigma although every quantity is within its limits")
-    tied = [s.part for s in (diagnosis.suspects if diagnosis else ()) if s.tied]
-    resolve = ()
-    if verdict == "inconclusive":
-        tf = transfer_function(analysed_circuit(design.circuit, measured))
-        poles = np.abs(tf.poles.real)
-        poles = poles[poles > 0]
-        resolve = resolve_hints(quantities, components, tied=tied if len(tied) > 1 else (),
-                                sample_interval=analysis.sample_interval,
-                                fastest_time=float(1 / poles.max()) if poles.size else None,
-                                record_length=span, slowest_time=float(1 / poles.min()) if poles.size else None,
-                                edges=len(segments))
+    resolve = _resolve(verdict, design, quantities, components, diagnosis, measured, analysis, span)
     summary = _summary(verdict, quantities, diagnosis, design)
     return CheckResult(file, design, verdict, summary, components, quantities,
                        diagnosis.suspects if diagnosis else (), envelope, comparison, tuple(resolve),
                        tuple(dict.fromkeys(warnings)), fit, diagnosis, measured, env_volts)
+
+
+def _behaviour(design: Design, segments, measured: bool, file: str, warnings: list[str]):
+    """The behavioural fit, made exactly as `fitkit fit --model FORM` makes it (the same
+    engine call, measured-input mode when the capture has an input channel), with the
+    form the design's order calls for; (FitResult, estimates judged)."""
+    from ..fitting import fit_segments
+    form = behavioural_form(design, measured)
+    try:
+        fit = fit_segments(segments, form, file=file)
+    except FitkitError as exc:
+        if form == "auto":
+            raise
+        warnings.append(f"the design's {form} response does not describe this capture ({exc.message}); "
+                        "check that the design file belongs to this stage")
+        fit = fit_segments(segments, "auto", file=file)
+    warnings += list(fit.warnings)
+    estimates = {k: v for k, v in {**fit.derived, **fit.parameters}.items() if k in ("tau", "f0", "Q")}
+    if measured:
+        estimates["gain"] = _level_gain(segments)
+    return fit, estimates
+
+
+def describes_capture(fit: FitResult) -> tuple[bool, str]:
+    """Whether the behavioural fit describes the capture (the fitting layer's adequacy
+    record, ``fit.adequacy.describes_data``), and its words; (True, "") when the fit
+    carries no such record. The one place the check reads it."""
+    adequacy = getattr(fit, "adequacy", None)
+    if adequacy is None:
+        return True, ""
+    ok = bool(getattr(adequacy, "describes_data", True))
+    return ok, str(getattr(adequacy, "summary", "") or getattr(adequacy, "message", "") or "")
+
+
+def _adequacy_verdict(verdict: str, fit: FitResult, design: Design, warnings: list[str]) -> str:
+    """An inadequate fit cannot judge the board: the verdict is then inconclusive."""
+    ok, words = describes_capture(fit)
+    if ok:
+        return verdict
+    warnings.insert(0, "the fitted response does not describe the capture" + (f" ({words})" if words else "")
+                    + f"; no verdict against {design.name!r} can rest on it")
+    return "inconclusive"
+
+
+def _judge_parts(design: Design, diagnosis: Diagnosis | None, measured: bool, warnings: list[str]):
+    widening = tolerance_widening(design, gain_known=measured)
+    if diagnosis is None:
+        return judge_parts(design, {}, (), tuple(design.parts), widening)
+    warnings += [m for m in diagnosis.messages if m.startswith("no single part")]
+    return judge_parts(design, diagnosis.estimates, diagnosis.leaders, diagnosis.undetermined, widening)
+
+
+def _record_after_edge(segments) -> float:
+    """Seconds of record after the first segment's edge (1.0 when there is none)."""
+    seg = segments[0]
+    after = seg.time[seg.time >= seg.edge_time] - seg.edge_time
+    return float(after.max()) if after.size else 1.0
+
+
+def _resolve(verdict: str, design: Design, quantities, components, diagnosis, measured: bool, analysis,
+             span: float) -> tuple[str, ...]:
+    if verdict != "inconclusive":
+        return ()
+    tied = [s.part for s in (diagnosis.suspects if diagnosis else ()) if s.tied]
+    tf = transfer_function(analysed_circuit(design.circuit, measured))
+    poles = np.abs(tf.poles.real)
+    poles = poles[poles > 0]
+    return resolve_hints(quantities, components, tied=tied if len(tied) > 1 else (),
+                         sample_interval=analysis.sample_interval,
+                         fastest_time=float(1 / poles.max()) if poles.size else None,
+                         record_length=span, slowest_time=float(1 / poles.min()) if poles.size else None,
+                         edges=len(analysis.segments))
 
 
 def _level_gain(segments) -> Estimate:
@@ -228,23 +272,41 @@ def _default_limits(envelope: Envelope, measured: bool) -> dict[str, tuple[float
     return limits
 
 
-def _compare(envelope: Envelope, segments, measured: bool):
+def _fitted_edge(fit: FitResult, index: int, seg) -> tuple[float, float, float | None]:
+    """(edge time s, baseline V, output step V or None) of edge ``index`` as the
+    behavioural fit placed it; the conditioning's values where the fit has none."""
+    edges = fit.extra.get("edges", ()) if isinstance(fit.extra, dict) else ()
+    levels = edges[index] if index < len(edges) else {}
+
+    def value(name: str):
+        v = levels.get(name, {}).get("value") if isinstance(levels.get(name), dict) else None
+        return float(v) if v is not None and math.isfinite(v) else None
+
+    t0, baseline, step = value("t0"), value("baseline"), value("step")
+    return (seg.edge_time if t0 is None else t0, seg.baseline if baseline is None else baseline, step)
+
+
+def _compare(envelope: Envelope, segments, fit: FitResult, measured: bool):
+    """The capture against the envelope, aligned on the fitted edge time, baseline and
+    step of each edge (the envelope is per volt of input step)."""
     results = []
     env_volts = None
     gain = envelope.nominal_quantities.get("gain", 1.0)
-    for seg in segments:
+    for i, seg in enumerate(segments):
+        edge, baseline, out_step = _fitted_edge(fit, i, seg)
         if measured:
             step = seg.input_after - seg.input_before
         else:
-            step = seg.step_size / gain if math.isfinite(gain) and abs(gain) > 1e-9 else seg.step_size
+            out_step = seg.step_size if out_step is None else out_step
+            step = out_step / gain if math.isfinite(gain) and abs(gain) > 1e-9 else out_step
         if not math.isfinite(step) or step == 0:
             continue
-        results.append(compare(envelope, seg.time - seg.edge_time, seg.output, baseline=seg.baseline, step=step,
+        results.append(compare(envelope, seg.time - edge, seg.output, baseline=baseline, step=step,
                                noise_rms=seg.noise_rms))
         if env_volts is None:
-            lo = seg.baseline + step * envelope.low
-            hi = seg.baseline + step * envelope.high
-            env_volts = (seg.edge_time + envelope.time, np.minimum(lo, hi), np.maximum(lo, hi))
+            lo = baseline + step * envelope.low
+            hi = baseline + step * envelope.high
+            env_volts = (edge + envelope.time, np.minimum(lo, hi), np.maximum(lo, hi))
     if not results:
         return None, None
     n = sum(r.n_samples for r in results)

@@ -52,6 +52,11 @@ from ..units import parse_value
 #: Keys a design adds to the circuit format.
 DESIGN_PART_KEYS = {"designator", "tolerance", "series"}
 DESIGN_TOP_KEYS = {"circuit", "limits"}
+#: Nominal values a design may give each kind of part (SI): beyond these the value is a
+#: mistake of the file, such as "10k" written for a capacitor (10 kF). Common practice,
+#: no source: wider than any part on a signal board, from milliohm shunts to teraohm
+#: electrometer resistors, femtofarads to farad supercapacitors, picohenries to henries.
+PLAUSIBLE_VALUES = {"resistor": (1e-4, 1e13), "capacitor": (1e-16, 10.0), "inductor": (1e-13, 1e3)}
 #: Behavioural quantities a design may put limits on, and their SI units.
 LIMIT_QUANTITIES = {"tau": "s", "f0": "Hz", "Q": "", "gain": ""}
 
@@ -194,6 +199,7 @@ class _DesignReader:
                 continue
             specs[p.name] = self.part_spec(p.name, p.kind, p.value, extras[p.name])
         limits, texts = self.limits(data.get("limits", {}))
+        self.applicable_limits(circuit, limits)
         name = str(data.get("name", Path(self.path).stem))
         return Design(name, circuit, specs, limits, texts, topo_name or "", self.path)
 
@@ -238,11 +244,39 @@ class _DesignReader:
             raise self.fail("has no tolerance", 'add tolerance = "1%" (percent) or an absolute value like "50p"',
                             name)
         unit = {"resistor": "Ohm", "capacitor": "F", "inductor": "H"}[kind]
+        self.plausible(name, kind, nominal, unit)
         low, high = self.tolerance(raw, nominal, unit, name)
         series = str(extra.get("series", "E24")).strip().upper()
         if series not in SERIES:
             raise self.fail(f"unknown series {series!r}", "use one of " + ", ".join(SERIES), name, "series")
         return PartSpec(name, str(extra.get("designator", name)), kind, float(nominal), low, high, str(raw), series)
+
+    def plausible(self, name: str, kind: str, nominal: float, unit: str) -> None:
+        """Refuse a nominal value no part of this kind has (PLAUSIBLE_VALUES)."""
+        from ..units import format_value
+        lo, hi = PLAUSIBLE_VALUES[kind]
+        if not (math.isfinite(nominal) and lo <= nominal <= hi):
+            raise self.fail(f"value {format_value(nominal, unit)} is not a plausible {kind} "
+                            f"(expected {format_value(lo, unit)} to {format_value(hi, unit)})",
+                            f"check the value and its suffix (for a {kind}, e.g. "
+                            + {"resistor": '"10k"', "capacitor": '"100n"', "inductor": '"10m"'}[kind] + ")",
+                            name, "value")
+
+    def applicable_limits(self, circuit: Circuit, limits: Mapping[str, Any]) -> None:
+        """Refuse a limit on a quantity the design's response does not have (an f0 limit
+        on a first-order design, a tau limit on a second-order one)."""
+        from ..circuits import transfer_function
+        try:
+            quantities = transfer_function(circuit.with_chain_parts()).quantities()
+        except (CircuitError, ValueError, ArithmeticError):
+            return
+        has = {"gain"} | {q for q in ("tau", "f0", "Q") if q in quantities}
+        for q in limits:
+            if q not in has:
+                raise self.fail(f"[limits] {q} does not apply to this design: its response has "
+                                + ", ".join(sorted(has - {"gain"})) + " (and gain)",
+                                "remove the limit, or put it on " + " or ".join(sorted(has)),
+                                table="limits", key=q)
 
     def tolerance(self, raw: Any, nominal: float, unit: str, name: str) -> tuple[float, float]:
         hint = 'write tolerance = "1%", "+-5%", "-20%/+80%" or an absolute value such as "50p"'
@@ -314,3 +348,16 @@ def resolve_limits(design: Design, nominal_quantities: Mapping[str, float]) -> d
 
 
 __all__ = ["Design", "PartSpec", "load_design", "loads_design", "resolve_limits"]
+
+
+def analysed_circuit(circuit: Circuit, measured_input: bool) -> Circuit:
+    """The circuit with its measurement chain as known parts, as a capture sees it:
+    without the generator's source resistance when the input is measured at the
+    driven pad (the model is then driven from that pad; the probe stays in)."""
+    from dataclasses import replace
+    from ..circuits.description import SOURCE_PART
+    full = circuit.with_chain_parts()
+    if measured_input and circuit.chain.source_resistance is not None:
+        parts = tuple(p for p in full.parts if p.name != SOURCE_PART)
+        return replace(full, parts=parts, drive=circuit.drive)
+    return full

@@ -28,8 +28,7 @@ import numpy as np
 from ..circuits import transfer_function
 from ..errors import CircuitError
 from ..results import json_number
-from .design import Design
-from .response import analysed_circuit, step_response
+from .design import Design, analysed_circuit
 
 MAX_CORNER_PARTS = 8
 DISTRIBUTION = "uniform within each part's tolerance, independent parts"
@@ -93,7 +92,7 @@ def tolerance_envelope(design: Design, time: np.ndarray, *, trials: int = 200, s
             n_corners += 1
     nominal_circuit = analysed_circuit(design.circuit, measured_input)
     nominal_tf = transfer_function(nominal_circuit)
-    nominal = step_response(nominal_tf, time)
+    nominal = nominal_tf.step_response(time)
     nominal_q = behavioural_quantities(nominal_tf)
     low, high = nominal.copy(), nominal.copy()
     ranges = {k: [v, v] for k, v in nominal_q.items()}
@@ -101,7 +100,7 @@ def tolerance_envelope(design: Design, time: np.ndarray, *, trials: int = 200, s
         circuit = analysed_circuit(design.circuit.with_values(dict(zip(names, values))), measured_input)
         try:
             tf = transfer_function(circuit)
-            y = step_response(tf, time)
+            y = tf.step_response(time)
         except CircuitError:
             continue
         np.minimum(low, y, out=low)

@@ -144,9 +144,15 @@ def tolerance_widening(design: Design, gain_known: bool) -> dict[str, float]:
         w = 0.0
         for j, q in enumerate(names):
             if j != i:
-                w += abs(float(jp @ J[:, j]) / norm) * math.log1p(design.parts[q].relative_half_width)
+                w += abs(float(jp @ J[:, j]) / norm) * _log_half_width(design.parts[q])
         out[p] = w
     return out
+
+
+def _log_half_width(spec) -> float:
+    """The wider side of a part's tolerance band on the log scale (a 5 % band is
+    ln(1/0.95) = 0.0513 below nominal and ln(1.05) = 0.0488 above)."""
+    return max(abs(math.log(spec.low / spec.nominal)), abs(math.log(spec.high / spec.nominal)))
 
 
 def judge_parts(design: Design, estimates: Mapping[str, Estimate], leaders: Sequence[str],

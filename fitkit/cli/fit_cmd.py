@@ -41,7 +41,7 @@ class CircuitArgs:
 
     def __init__(self, circuit_file, topology, known, unknown_parts, design_values, probe, source_resistance):
         self.circuit_file, self.topology = circuit_file, topology
-        self.known = name_value_pairs(known, "--known")
+        self.known, self.known_tolerances = _known_with_tolerances(name_value_pairs(known, "--known"))
         self.unknown = [n.strip() for item in unknown_parts for n in item.split(",") if n.strip()]
         self.design = name_value_pairs(design_values, "--design-values")
         self.probe, self.source_resistance = probe, source_resistance
@@ -109,7 +109,37 @@ class CircuitArgs:
         design = {}
         for n, v in self.design.items():
             design[n] = parse_value(v, circuit.part(n).unit or None)
-        return fit_circuit(capture, circuit, design_values=design or None, **kwargs)
+        tolerances = {n: _relative_tolerance(t, circuit.part(n).unit, self.known[n], n)
+                      for n, t in self.known_tolerances.items()}
+        return fit_circuit(capture, circuit, design_values=design or None, known_tolerances=tolerances or None,
+                           **kwargs)
+
+
+def _known_with_tolerances(pairs: dict[str, str]) -> tuple[dict[str, str], dict[str, str]]:
+    """Split "76.72+-1%" into the value "76.72" and the tolerance "1%" (also "±")."""
+    values, tolerances = {}, {}
+    for name, text in pairs.items():
+        value, sep, tol = text.replace("±", "+-").partition("+-")
+        values[name] = value.strip() if sep else text
+        if sep:
+            tolerances[name] = tol.strip()
+    return values, tolerances
+
+
+def _relative_tolerance(text: str, unit: str, value_text: str, name: str) -> float:
+    """A tolerance as a fraction of the value: "1%" -> 0.01, "0.5" (absolute, part's unit) -> 0.5/value."""
+    from ..errors import OptionError
+    hint = f"write --known {name}=VALUE+-1% (percent) or +-ABSOLUTE in the part's unit"
+    try:
+        if text.endswith("%"):
+            frac = float(text[:-1]) / 100
+        else:
+            frac = parse_value(text, unit or None) / parse_value(value_text, unit or None)
+    except (ValueError, ZeroDivisionError, OptionError):
+        raise OptionError(f"--known {name}: cannot read the tolerance {text!r}", hint=hint) from None
+    if not (0 < frac < 1):
+        raise OptionError(f"--known {name}: tolerance {text!r} must be above 0 and below 100 %", hint=hint)
+    return frac
 
 
 @click.command("fit")

@@ -26,6 +26,7 @@ from ..conditioning.segment import StepSegment
 from ..errors import FitError
 from ..forms.base import Form, rise_time_scale
 from .core import ModelFit, fit_model
+from .information import corrected_aic, has_measured_input
 from .input_noise import input_noise_covariance
 from .joint_model import MAX_POINTS_PER_SEGMENT, JointModel
 from .projection import (ProjectedSearch, can_project, finish_projected, nonlinear_names,
@@ -90,10 +91,7 @@ class FormFit:
         correlated residuals (fewer effective samples) do not make noise look
         like evidence.
         """
-        n, k = self.fit.n, self.n_parameters + 1
-        if n - k - 1 <= 0 or not (self.fit.rss > 0):
-            return math.inf
-        return n * math.log(self.fit.rss / n) / variance_inflation + 2 * k + 2 * k * (k + 1) / (n - k - 1)
+        return corrected_aic(self.fit.rss, self.fit.n, self.n_parameters, variance_inflation)
 
 
 def make_scaling(segments: Sequence[StepSegment], form: Form, measured_input: bool) -> Scaling:
@@ -174,7 +172,7 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     """
     if not segments:
         raise FitError("no step segments to fit", hint="check that the capture holds at least one edge")
-    has_input = all(s.input is not None and s.input_before is not None for s in segments)
+    has_input = has_measured_input(segments)
     measured_input = has_input if measured_input is None else measured_input
     if free_t0 is None:
         # A response that jumps at the edge (final value 0, e.g. first-order-decay)

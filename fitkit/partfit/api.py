@@ -25,7 +25,9 @@ from ..conditioning.segment import StepSegment
 from ..errors import CircuitError, FitError
 from ..results import Estimate, FitResult, json_number
 from .behavioural import RouteOne, route_one
-from .direct import DirectFit, direct_fits, has_input
+from ..fitting.information import has_measured_input
+from .direct import DirectFit, direct_fits
+from .known_tolerance import with_known_tolerances
 from .problem import PartProblem, ensure_values, prepare_problem
 
 #: Series reported for the nearest preferred values.
@@ -37,12 +39,15 @@ POORLY_DETERMINED = 0.10
 def fit_circuit(capture: Capture, circuit: Circuit, *, unknowns: Sequence[str] | None = None,
                 input: str | int | None = None, output: str | int | None = None,
                 edge_time: float | None = None, average: bool = False,
-                design_values: Mapping[str, float] | None = None, intervals: str = "auto") -> FitResult:
+                design_values: Mapping[str, float] | None = None, intervals: str = "auto",
+                known_tolerances: Mapping[str, float] | None = None) -> FitResult:
     """Find the steps in ``capture`` and solve the circuit's unknown parts from them.
 
     unknowns: parts to solve (default: those marked unknown in ``circuit``).
     input, output, edge_time (s), average: as for fitkit.fitting.fit_capture.
     design_values: part -> SI value, to rank several solutions (default: the circuit's).
+    known_tolerances: known part -> relative tolerance (0.01 for +-1 %), carried into
+        the solved parts' intervals (known_tolerance.py).
     Returns a FitResult with ``components`` (see fit_circuit_segments).
     """
     from ..conditioning import analyse_steps
@@ -54,7 +59,8 @@ def fit_circuit(capture: Capture, circuit: Circuit, *, unknowns: Sequence[str] |
     path = capture.provenance.path or ""
     try:
         return fit_circuit_segments(analysis.segments, circuit, unknowns=unknowns, design_values=design_values,
-                                    intervals=intervals, file=path, warnings=warnings)
+                                    intervals=intervals, file=path, warnings=warnings,
+                                    known_tolerances=known_tolerances)
     except (FitError, CircuitError) as err:
         if err.path is None and path:
             raise type(err)(err.message, path=path, hint=err.hint) from None
@@ -65,7 +71,8 @@ def fit_circuit_segments(segments: Sequence[StepSegment], circuit: Circuit, *,
                          unknowns: Sequence[str] | None = None, measured_input: bool | None = None,
                          design_values: Mapping[str, float] | None = None,
                          start_values: Mapping[str, float] | None = None, intervals: str = "auto",
-                         file: str = "", warnings: Sequence[str] = ()) -> FitResult:
+                         file: str = "", warnings: Sequence[str] = (),
+                         known_tolerances: Mapping[str, float] | None = None) -> FitResult:
     """Solve the unknown parts of ``circuit`` from step segments; both routes, all solutions.
 
     Returns a FitResult with model "circuit:<name>"; ``components`` holds an
@@ -82,7 +89,7 @@ def fit_circuit_segments(segments: Sequence[StepSegment], circuit: Circuit, *,
     if not segments:
         raise FitError("no step segments to fit", path=file or None,
                        hint="check that the capture holds at least one edge")
-    measured = has_input(segments) if measured_input is None else measured_input
+    measured = has_measured_input(segments) if measured_input is None else measured_input
     problem = prepare_problem(circuit, unknowns, design_values=design_values, gain_known=False)
     notes: list[str] = list(problem.warnings)
     r1: RouteOne | None = None
@@ -112,7 +119,25 @@ def fit_circuit_segments(segments: Sequence[StepSegment], circuit: Circuit, *,
                        + (f" ({failed[0]})" if failed else ""), path=file or None,
                        hint="check the circuit and known parts against the board, or fit a form first")
     fits = _ranked(fits, problem)
-    return _assemble(fits, r1, problem, measured, notes)
+    result = _assemble(fits, r1, problem, measured, notes)
+    return _with_tolerances(result, problem, known_tolerances or {})
+
+
+def _with_tolerances(result: FitResult, problem: PartProblem, tolerances: Mapping[str, float]) -> FitResult:
+    """Carry the known parts' tolerances into the components' intervals."""
+    if not tolerances:
+        return result
+    circuit = problem.solve_circuit
+    for name in tolerances:
+        part = circuit.part(name)
+        if part.unknown or part.value is None:
+            raise circuit.error(f"a tolerance was given for {name}, which is not a known part",
+                                hint=f"give its value with the tolerance (--known {name}=VALUE+-1%)")
+    known = {n: float(circuit.part(n).value) for n in tolerances}
+    components = with_known_tolerances(result.components, circuit, known, tolerances)
+    note = ("intervals include the known parts' tolerances ("
+            + ", ".join(f"{n} +-{100 * t:g} %" for n, t in tolerances.items()) + ")")
+    return replace(result, components=components, warnings=tuple(result.warnings) + (note,))
 
 
 # -- assembling -------------------------------------------------------------------

@@ -31,6 +31,7 @@ from ..conditioning.segment import StepSegment
 from ..errors import FitError
 from ..fitting import fit_segments
 from ..fitting.engine import make_scaling
+from ..fitting.information import corrected_aic, has_measured_input
 from ..results import FitResult
 from .circuit_form import circuit_form
 from .problem import PartProblem
@@ -55,16 +56,8 @@ class DirectFit:
 
     @property
     def aicc(self) -> float:
-        """Corrected Akaike criterion, n ln(RSS/n) + 2k + 2k(k+1)/(n-k-1), k = parameters + 1
-        (Hurvich & Tsai, Biometrika 76 (1989) 297-307)."""
-        n, k = self.n_points, self.n_parameters + 1
-        if n - k - 1 <= 0 or not self.rss > 0:
-            return math.inf
-        return n * math.log(self.rss / n) + 2 * k + 2 * k * (k + 1) / (n - k - 1)
-
-
-def has_input(segments: Sequence[StepSegment]) -> bool:
-    return all(s.input is not None and s.input_before is not None for s in segments)
+        """The engine's corrected Akaike criterion (fitkit.fitting.information.corrected_aic)."""
+        return corrected_aic(self.rss, self.n_points, self.n_parameters)
 
 
 def _n_parameters(n_parts: int, n_edges: int, measured_input: bool, result: FitResult) -> int:
@@ -80,11 +73,8 @@ def direct_fits(segments: Sequence[StepSegment], problem: PartProblem, starts: S
                 warnings: Sequence[str] = ()) -> tuple[list[DirectFit], list[str]]:
     """One direct fit from each start; (distinct converged fits, notes on failed starts)."""
     segments = tuple(segments)
-    measured = has_input(segments) if measured_input is None else measured_input
-    name = "circuit:" + problem.circuit.name
-    probe_form = circuit_form(problem.solve_circuit, problem.fitted, 1.0, starts, name)
-    scaling = make_scaling(segments, probe_form, measured)
-    form = circuit_form(problem.solve_circuit, problem.fitted, scaling.time_unit, starts, name)
+    measured = has_measured_input(segments) if measured_input is None else measured_input
+    form = scaled_circuit_form(segments, problem.solve_circuit, problem.fitted, starts, measured)
     fits: list[DirectFit] = []
     notes: list[str] = []
     for start in starts:
@@ -104,6 +94,16 @@ def direct_fits(segments: Sequence[StepSegment], problem: PartProblem, starts: S
         k = _n_parameters(len(problem.fitted), len(segments), measured, result)
         fits.append(DirectFit(start, result, rss, n_points, k))
     return fits, notes
+
+
+def scaled_circuit_form(segments: Sequence[StepSegment], circuit, fitted: Sequence[str],
+                        starts: Sequence[Mapping[str, float]], measured_input: bool):
+    """The circuit as a form in the engine's scaled time unit for these segments
+    (circuit_form.circuit_form after fitkit.fitting.engine.make_scaling)."""
+    name = "circuit:" + circuit.name
+    probe_form = circuit_form(circuit, fitted, 1.0, starts, name)
+    scaling = make_scaling(segments, probe_form, measured_input)
+    return circuit_form(circuit, fitted, scaling.time_unit, starts, name)
 
 
 def _describe(values: Mapping[str, float]) -> str:

@@ -49,8 +49,8 @@ def render_check_text(result) -> str:
         lines.append(f"  {c.part:<8}{_v(c.nominal, c.unit):<13}{c.tolerance:<11}{_v(c.value, c.unit):<13}"
                      f"{_iv(c.judged_interval, c.unit):<31}{c.verdict}" + (f"  ({c.note})" if c.note else ""))
     lines.append("")
-    if result.suspects:
-        title = ("single-part explanations, best first (the board passes; for reference)"
+    if result.suspects and shows_suspects(result):
+        title = ("single-part explanations, best first (a part is judged outside)"
                  if result.verdict == "pass" else "suspects, most likely first")
         lines.append(title + " (evidence: AICc above the best, scaled for correlated noise;"
                      " below 2 = equally good; '=' marks the tied leaders)")
@@ -73,6 +73,12 @@ def render_check_text(result) -> str:
     lines += ["", "warnings:" + ("" if result.warnings else " none")]
     lines += [f"  - {w}" for w in result.warnings]
     return "\n".join(lines)
+
+
+def shows_suspects(result) -> bool:
+    """Quiet on a pass: the suspects are shown when the board does not pass or a part is
+    judged outside (they stay in the JSON either way)."""
+    return result.verdict != "pass" or any(c.verdict == "outside" for c in result.components)
 
 
 def suspect_notes(result, limit: int = 3) -> list[str]:

@@ -1,0 +1,54 @@
+"""The board check stands on the fitting engine (issue 16) and turns a wrong
+design into a verdict, not a crash (issue 19, item 1).
+
+Truth: demo_captures/truth.json, written by demo_captures/make_demo_captures.py
+(the wrong-part ladder has C22 = 9.71 nF where 100 nF belongs, C21 at
+103.1 nF inside its 5 %).
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import pytest
+
+from fitkit.check import check_capture
+from fitkit.check.hypotheses import PLAUSIBLE_SPAN
+from fitkit.io import load_capture
+
+DEMO = Path(__file__).resolve().parents[1] / "demo_captures"
+
+
+@pytest.fixture(scope="module")
+def output_only_ladder():
+    cap = load_capture(DEMO / "wrong_part_board_ladder_output.csv")
+    return check_capture(cap, DEMO / "designs" / "rc_ladder.toml", envelope_trials=40)
+
+
+def test_output_only_wrong_part_ladder_leads_with_c22_near_its_real_value(output_only_ladder):
+    r = output_only_ladder
+    assert r.verdict == "fail" and not r.measured_input
+    leaders = [s for s in r.suspects if s.tied]
+    c22 = next(s for s in r.suspects if s.part == "C22")
+    assert c22.tied and c22 in leaders                      # R21 a decade low looks the same: a tie
+    assert abs(c22.value / 9.71e-9 - 1) < 0.10
+    assert c22.ci95[0] <= 9.71e-9 <= c22.ci95[1]
+    assert "a decade low" in c22.pattern
+
+
+def test_no_suspect_value_sits_at_a_search_bound(output_only_ladder):
+    for s in output_only_ladder.suspects:
+        if s.value is not None:
+            assert abs(math.log(s.value / s.nominal)) < math.log(PLAUSIBLE_SPAN)
+            assert s.ci95 is not None
+        elif s.kind != "swap":
+            assert not s.explains and "does not explain" in s.pattern
+
+
+def test_capture_of_another_stage_gets_a_verdict_not_a_crash():
+    # good_board.csv is the first-order input stage; rc_ladder.toml the second-order ladder
+    cap = load_capture(DEMO / "good_board.csv")
+    r = check_capture(cap, DEMO / "designs" / "rc_ladder.toml", envelope_trials=20)
+    assert r.verdict in ("fail", "inconclusive")
+    assert not any(s.tied and s.explains for s in r.suspects)
