@@ -158,7 +158,8 @@ def finish_projected(joint: JointModel, search: ProjectedSearch, fixed: Mapping[
     """The full-parameter :class:`ModelFit` (Jacobian, covariance) where a search ended."""
     varied = tuple(n for n in joint.names if n not in fixed)
     return model_fit_at(joint.evaluate, search.values, varied, None, joint.y, joint.weights,
-                        converged=search.converged, message=search.message, nfev=search.nfev)
+                        converged=search.converged, message=search.message, nfev=search.nfev,
+                        edge_bounds=joint.bounds)
 
 
 def can_project(joint: JointModel, fixed: Mapping[str, float]) -> bool:
