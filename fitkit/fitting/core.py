@@ -19,9 +19,11 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, Callable, Mapping
+from typing import TYPE_CHECKING, Any, Callable, Mapping, Sequence
 
 import numpy as np
+
+from .block_jacobian import block_covariance, grouped_jacobian, is_sparse, weighted
 
 if TYPE_CHECKING:
     import lmfit
@@ -176,9 +178,13 @@ def fit_model(model: Callable[..., np.ndarray], params: Mapping[str, float] | lm
 
 def model_fit_at(model: Callable[..., np.ndarray], values: Mapping[str, float], names: tuple[str, ...],
                  x: Any, y: np.ndarray, weights: np.ndarray, *, converged: bool, message: str,
-                 nfev: int, lmfit_state: Any = None) -> ModelFit:
+                 nfev: int, lmfit_state: Any = None, edge_bounds: Sequence[int] | None = None) -> ModelFit:
     """The :class:`ModelFit` at given optimum ``values`` (varied ``names``, the rest fixed):
-    central-difference Jacobian over ``names``, covariance, residuals."""
+    central-difference Jacobian over ``names``, covariance, residuals.
+
+    edge_bounds: the point ranges of a joint fit's edges; the Jacobian is then
+    taken with the per-edge parameters grouped, and kept sparse with its
+    covariance by blocks when there are many (:mod:`.block_jacobian`)."""
     values = dict(values)
     y = np.asarray(y, dtype=float)
     w = np.asarray(weights, dtype=float)
@@ -192,13 +198,21 @@ def model_fit_at(model: Callable[..., np.ndarray], values: Mapping[str, float], 
     theta = np.array([values[n] for n in names], dtype=float)
     with np.errstate(all="ignore"):
         fitted = model_of_vector(theta)
-        jac = numeric_jacobian(model_of_vector, theta) if names else np.zeros((y.size, 0))
+        if not names:
+            jac = np.zeros((y.size, 0))
+        elif edge_bounds is not None:
+            jac = grouped_jacobian(model_of_vector, theta, names, edge_bounds)
+        else:
+            jac = numeric_jacobian(model_of_vector, theta)
     resid = y - fitted
     rss = float(np.sum((w * resid) ** 2))
     dof = y.size - len(names)
     finite = bool(np.all(np.isfinite(fitted)) and np.isfinite(rss))
     s2 = rss / dof if dof > 0 else float("nan")
-    cov, singular, cond = covariance_from_jacobian(jac * w[:, None], s2)
+    if is_sparse(jac):
+        cov, singular, cond = block_covariance(weighted(jac, w), names, s2)
+    else:
+        cov, singular, cond = covariance_from_jacobian(jac * w[:, None], s2)
     stderr = {n: float(math.sqrt(cov[i, i])) if np.isfinite(cov[i, i]) and cov[i, i] >= 0 else float("nan")
               for i, n in enumerate(names)}
     return ModelFit(names=names, values=values, stderr=stderr, covariance=cov, jacobian=jac,

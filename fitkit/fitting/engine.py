@@ -25,6 +25,7 @@ import numpy as np
 from ..conditioning.segment import StepSegment
 from ..errors import FitError
 from ..forms.base import Form, rise_time_scale
+from .block_jacobian import weighted
 from .core import ModelFit, fit_model
 from .information import corrected_aic, has_measured_input
 from .input_noise import input_noise_covariance
@@ -238,7 +239,7 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     best = _canonical(joint, best)
     w = joint.weights
     pieces = joint.split(w * best.residual)
-    correction = correlated_residual_correction(best.jacobian * w[:, None], pieces, list(joint.bounds),
+    correction = correlated_residual_correction(weighted(best.jacobian, w), pieces, list(joint.bounds),
                                                 best.covariance, best.s2, correlation)
     notes: list[str] = []
     searched = len(nonlinear_names(joint)) if project else len(best.names)

@@ -27,6 +27,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import linalg
 
+from .block_jacobian import edge_columns
 from .joint_model import JointModel
 from .measured_input import superposition_adjoint, superposition_kernel
 from .uncertainty import autoregressive_autocorrelation, residual_autocorrelation
@@ -80,10 +81,11 @@ def input_noise_covariance(joint: JointModel, jacobian: np.ndarray, bread: np.nd
         n = hi - lo
         kernel = superposition_kernel(lambda t: joint.form.unit_step(t, **shape), n, d.dt)
         weights = d.u_initial_weights if d.u_initial_weights is not None else np.eye(1, n)[0]
-        m = superposition_adjoint(kernel, dc, weights, w2[lo:hi, None] * jacobian[lo:hi])
+        cols, block = edge_columns(jacobian, lo, hi)  # the columns that move this edge
+        m = superposition_adjoint(kernel, dc, weights, w2[lo:hi, None] * block)
         gamma = input_noise_autocovariance(joint, i)
         if not np.any(gamma):
             continue
         sm = linalg.matmul_toeplitz(gamma, m, check_finite=False)
-        extra += gain * gain * (m.T @ sm)
+        extra[np.ix_(cols, cols)] += gain * gain * (m.T @ sm)
     return bread @ extra @ bread

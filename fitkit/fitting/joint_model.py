@@ -163,6 +163,52 @@ def pre_edge_weights(t_point: np.ndarray, dt: float) -> np.ndarray | None:
     return before / float(count)
 
 
+#: Ideal-step joint models of at least this many edges evaluate all edges in one call.
+STACKED_FROM_EDGES = 2
+
+
+@dataclass(frozen=True)
+class StackedEdges:
+    """Every edge's points in one array (ideal-step mode), see :meth:`JointModel.stacked`.
+
+    t_nodes, node_weights: (n, k) nodes and weights of all points (segments
+        with fewer nodes are padded with zero-weight nodes);
+    edge_of_point: (n,) the edge each point belongs to;
+    t_point: (n,) representative scaled time of each point;
+    tail_steps, tail_deltas: per edge, the previous edge's step and the time since
+        it (:meth:`JointModel._previous_step`; step 0 where there is none), or
+        None when no edge has a previous tail.
+    """
+
+    t_nodes: np.ndarray
+    node_weights: np.ndarray
+    edge_of_point: np.ndarray
+    t_point: np.ndarray
+    tail_steps: np.ndarray | None
+    tail_deltas: np.ndarray | None
+
+    @classmethod
+    def of(cls, joint: "JointModel") -> "StackedEdges":
+        k = max(d.t_nodes.shape[1] for d in joint.data)
+        nodes, weights = [], []
+        for d in joint.data:
+            t = d.t_nodes
+            w = np.broadcast_to(d.node_weights, t.shape)
+            if t.shape[1] < k:  # pad with copies of the first node at zero weight
+                t = np.column_stack([t] + [t[:, :1]] * (k - t.shape[1]))
+                w = np.column_stack([w] + [np.zeros((t.shape[0], 1))] * (k - w.shape[1]))
+            nodes.append(t)
+            weights.append(w)
+        edge_of_point = np.repeat(np.arange(len(joint.data)), [d.y.size for d in joint.data])
+        prev = joint.previous_steps
+        steps = deltas = None
+        if any(p is not None for p in prev):
+            steps = np.array([0.0 if p is None else p[1] for p in prev])
+            deltas = np.array([0.0 if p is None else p[0] for p in prev])
+        return cls(np.vstack(nodes), np.vstack(weights), edge_of_point,
+                   np.concatenate([d.t_point for d in joint.data]), steps, deltas)
+
+
 #: Prepared segments kept for reuse (oldest dropped first).
 PREPARED_CACHE_SIZE = 32
 _PREPARED: dict[tuple, tuple[StepSegment, "SegmentData"]] = {}
@@ -301,9 +347,51 @@ class JointModel:
         self._kernel_cache = (key, kernel)
         return kernel
 
+    # -- every edge at once (ideal-step mode) ------------------------------------------
+    @property
+    def stacked(self) -> "StackedEdges":
+        """The points of every edge in one array (built once), for evaluating
+        all edges in one call instead of one call per edge."""
+        cached = getattr(self, "_stacked", None)
+        if cached is None:
+            cached = self._stacked = StackedEdges.of(self)
+        return cached
+
+    def delays_of(self, values: Mapping[str, float]) -> np.ndarray:
+        """The edge delays t0_i (scaled) in ``values``, zero where absent."""
+        return np.array([values.get(f"t0_{i}", 0.0) for i in range(len(self.segments))])
+
+    def stacked_responses(self, shape: Mapping[str, float], delays: np.ndarray) -> np.ndarray:
+        """Unit responses of every edge (ideal step) at the given delays, all points."""
+        st = self.stacked
+        return (self.form.unit_step(st.t_nodes - delays[st.edge_of_point][:, None], **shape)
+                * st.node_weights).sum(axis=1)
+
+    def stacked_tails(self, shape: Mapping[str, float], delays: np.ndarray) -> np.ndarray | float:
+        """:meth:`previous_tail` of every edge (ideal step), all points (0.0 when none has one)."""
+        st = self.stacked
+        if st.tail_steps is None:
+            return 0.0
+        e = st.edge_of_point
+        previous = np.concatenate([[0.0], delays[:-1]])
+        final = getattr(self.form, "final_value", 1.0)
+        step = st.tail_steps[e]
+        has = step != 0.0
+        shift = st.tail_deltas[e] - previous[e]
+        out = np.zeros(st.t_point.size)
+        out[has] = step[has] * (self.form.unit_step(st.t_point[has] + shift[has], **shape) - final)
+        return out
+
     def evaluate(self, _x: object = None, **values: float) -> np.ndarray:
         """Model over all points (scaled volts), for the least-squares core."""
         shape = self.shape_scaled(values)
+        if not self.measured_input and len(self.data) >= STACKED_FROM_EDGES:
+            st = self.stacked
+            delays = self.delays_of(values)
+            levels = np.array([[values[f"baseline_{i}"], values[f"step_{i}"]] for i in range(len(self.data))])
+            e = st.edge_of_point
+            return (levels[e, 0] + levels[e, 1] * self.stacked_responses(shape, delays)
+                    + self.stacked_tails(shape, delays))
         parts = []
         for i in range(len(self.data)):
             tail = self.previous_tail(i, shape, values)

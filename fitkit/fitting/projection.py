@@ -26,6 +26,7 @@ import numpy as np
 from scipy import optimize
 
 from .core import ModelFit, model_fit_at
+from .edge_delays import nested_search, uses_nested_delays
 from .joint_model import JointModel
 
 
@@ -126,8 +127,13 @@ def search_projected(joint: JointModel, start: Mapping[str, float], fixed: Mappi
     full fit, :func:`.core.fit_model`). The Jacobian and covariance are left to
     :func:`finish_projected`, so of several starts only the best pays for them.
     """
-    names = tuple(n for n in nonlinear_names(joint) if n not in fixed)
     w = joint.weights
+    if uses_nested_delays(joint, fixed):  # many edges: delays solved per edge inside
+        values, converged, message, nfev = nested_search(joint, start, fixed, tol=tol, max_nfev=max_nfev)
+        with np.errstate(all="ignore"):
+            rss = float(np.sum((w * (joint.y - joint.evaluate(None, **values))) ** 2))
+        return ProjectedSearch(values, rss if math.isfinite(rss) else math.inf, converged, message, nfev)
+    names = tuple(n for n in nonlinear_names(joint) if n not in fixed)
 
     def values_and_model(theta: np.ndarray) -> tuple[dict[str, float], np.ndarray]:
         vals = dict(fixed)
@@ -152,7 +158,8 @@ def finish_projected(joint: JointModel, search: ProjectedSearch, fixed: Mapping[
     """The full-parameter :class:`ModelFit` (Jacobian, covariance) where a search ended."""
     varied = tuple(n for n in joint.names if n not in fixed)
     return model_fit_at(joint.evaluate, search.values, varied, None, joint.y, joint.weights,
-                        converged=search.converged, message=search.message, nfev=search.nfev)
+                        converged=search.converged, message=search.message, nfev=search.nfev,
+                        edge_bounds=joint.bounds)
 
 
 def can_project(joint: JointModel, fixed: Mapping[str, float]) -> bool:

@@ -40,6 +40,7 @@ from dataclasses import replace
 import numpy as np
 from scipy import optimize, special
 
+from .block_jacobian import dense
 from .core import ModelFit, covariance_from_jacobian, model_fit_at
 from .engine import FormFit
 from .joint_model import JointModel
@@ -229,7 +230,7 @@ def quantised_refit(ff: FormFit) -> FormFit | None:
     gradient = np.concatenate([current.jacobian.T @ d_mean, [float(d_log_sigma.sum())]])
     try:
         decrement = float(gradient @ np.linalg.solve(
-            _information(current.jacobian, current.fitted, sigma, q, float(y[0])), gradient))
+            _information(dense(current.jacobian), current.fitted, sigma, q, float(y[0])), gradient))
     except np.linalg.LinAlgError:
         return None
     converged = math.isfinite(found.fun) and decrement < DECREMENT_TOLERANCE
@@ -241,7 +242,7 @@ def quantised_refit(ff: FormFit) -> FormFit | None:
 def _as_form_fit(ff: FormFit, joint, fit: ModelFit, sigma: float, q: float) -> FormFit | None:
     """The FormFit of the maximum-likelihood estimate: covariance from the expected
     information of the parameters and ln sigma together (the parameters' block of its inverse)."""
-    full = _information(fit.jacobian, fit.fitted, sigma, q, float(joint.y[0]))
+    full = _information(dense(fit.jacobian), fit.fitted, sigma, q, float(joint.y[0]))
     k = fit.jacobian.shape[1]
     # through the SVD of a square root of the information, as for least squares
     w, v = np.linalg.eigh(full)

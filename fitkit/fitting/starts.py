@@ -16,13 +16,15 @@ from typing import Mapping
 
 import numpy as np
 
-from .joint_model import JointModel
+from .joint_model import STACKED_FROM_EDGES, JointModel
 from .scaling import decimated, reference_step
 
 #: Factors applied to each guessed shape parameter to build the grid.
 GRID_FACTORS = (1.0 / 3.0, 1.0, 3.0)
 #: A form offering at least this many guesses is not spread further.
 MANY_GUESSES = 4
+#: Joint models of more edges score their start grid on this many of them.
+GRID_EDGES = 8
 #: Multiples of the 10-50 % rise interval tried as edge delays before the 10 % crossing.
 DELAY_MULTIPLES = (0.0, 1.0, 2.0, 4.0)
 
@@ -115,6 +117,8 @@ def projected_levels(joint: JointModel, shape: Mapping[str, float], delay: float
         values["gain"] = float(coef[-1])
         values.update({f"baseline_{i}": float(coef[i]) for i in range(m)})
         return rss, values
+    if len(joint.data) >= STACKED_FROM_EDGES:  # every edge at once
+        return _projected_levels_stacked(joint, shape, delay)
     for i, d in enumerate(joint.data):
         f = joint.unit_response(i, shape, delay)
         fc, yc = f - f.mean(), d.y - d.y.mean()  # straight-line regression of y on f
@@ -128,8 +132,49 @@ def projected_levels(joint: JointModel, shape: Mapping[str, float], delay: float
     return rss, values
 
 
+def _projected_levels_stacked(joint: JointModel, shape: Mapping[str, float], delay: float
+                              ) -> tuple[float, dict[str, float]]:
+    """:func:`projected_levels` in ideal-step mode with every edge evaluated in one call."""
+    m = len(joint.data)
+    e = joint.stacked.edge_of_point
+    count = np.bincount(e, minlength=m).astype(float)
+
+    def centred(x: np.ndarray) -> np.ndarray:
+        return x - (np.bincount(e, weights=x, minlength=m) / count)[e]
+
+    f = joint.stacked_responses(shape, np.full(m, delay))
+    fc, yc = centred(f), centred(joint.y)
+    sxx = np.bincount(e, weights=fc * fc, minlength=m)
+    step = np.where(sxx > 0, np.bincount(e, weights=fc * yc, minlength=m) / np.where(sxx > 0, sxx, 1.0), 0.0)
+    base = (np.bincount(e, weights=joint.y, minlength=m) - step * np.bincount(e, weights=f, minlength=m)) / count
+    rss = float(np.sum((yc - step[e] * fc) ** 2))
+    values: dict[str, float] = {}
+    for i in range(m):
+        values[f"baseline_{i}"], values[f"step_{i}"] = float(base[i]), float(step[i])
+        if joint.free_t0:
+            values[f"t0_{i}"] = delay
+    return rss, values
+
+
 def best_starts(joint: JointModel, keep: int = 3) -> list[dict[str, float]]:
-    """The ``keep`` best starting points (internal parameter values), best first."""
+    """The ``keep`` best starting points (internal parameter values), best first.
+
+    With many edges the grid is scored on :data:`GRID_EDGES` of them spread
+    over the record (a start needs no more), and the chosen starts get every
+    edge's levels."""
+    m = len(joint.segments)
+    if m > GRID_EDGES:
+        pick = sorted({int(round(i * (m - 1) / (GRID_EDGES - 1))) for i in range(GRID_EDGES)})
+        sub = JointModel(joint.form, [joint.segments[i] for i in pick], joint.scaling,
+                         measured_input=joint.measured_input, free_t0=joint.free_t0,
+                         max_points=int(max(d.y.size for d in joint.data)))
+        out = []
+        for start in best_starts(sub, keep):
+            shape = {p.name: math.exp(start["log_" + p.name]) for p in joint.form.shape}
+            full = {k: v for k, v in start.items() if k.startswith("log_")}
+            full.update(projected_levels(joint, shape, start.get("t0_0", 0.0))[1])
+            out.append(full)
+        return out
     if joint.free_t0:
         delays = [d / joint.scaling.time_unit for d in trial_delays(*_reference(joint))]
     else:

@@ -36,6 +36,8 @@ from typing import Callable, Mapping, Sequence
 import numpy as np
 from scipy import linalg, special
 
+from .block_jacobian import edge_columns
+
 #: Ljung-Box test level and number of lags.
 LJUNG_BOX_ALPHA = 0.01
 LJUNG_BOX_LAGS = 10
@@ -232,19 +234,25 @@ def projection_bias(gamma: np.ndarray, jacobian: np.ndarray, bounds: Sequence[in
     the residual autocovariance removes the bias the fit's own parameters
     cause (they absorb the slow part of the noise, which matters most here).
     """
-    n = jacobian.shape[0]
+    n, p = jacobian.shape
     g = np.zeros(n + 1)
     g[:min(gamma.size, n + 1)] = gamma[:n + 1]
-    u = jacobian @ bread
-    v = np.zeros_like(jacobian)
+    # Edge by edge over the columns that move it (a sparse Jacobian of many
+    # edges: a few per edge); with u = J bread and v = Sigma J, the terms are
+    # sums over those columns only, and u w u^T = J (bread w bread) J^T.
+    blocks = []
+    w = np.zeros((p, p))
     for lo, hi in zip(bounds[:-1], bounds[1:]):
-        v[lo:hi] = linalg.matmul_toeplitz(g[:hi - lo], jacobian[lo:hi], check_finite=False)
-    w = jacobian.T @ v
+        cols, j = edge_columns(jacobian, lo, hi)
+        v = linalg.matmul_toeplitz(g[:hi - lo], j, check_finite=False)
+        w[np.ix_(cols, cols)] += j.T @ v
+        blocks.append((cols, j, v))
+    q = bread @ w @ bread
     bias = np.zeros(max_lag + 1)
-    for lo, hi in zip(bounds[:-1], bounds[1:]):
-        us, vs = u[lo:hi], v[lo:hi]
-        bias += lagged_products(us, vs, max_lag) + lagged_products(vs, us, max_lag) \
-            - lagged_products(us @ w, us, max_lag)
+    for cols, j, v in blocks:
+        u = j @ bread[np.ix_(cols, cols)]
+        bias += lagged_products(u, v, max_lag) + lagged_products(v, u, max_lag) \
+            - lagged_products(j @ q[np.ix_(cols, cols)], j, max_lag)
     return bias / n
 
 
@@ -325,11 +333,11 @@ def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequen
     # cut at m_max (= gamma_0 J^T J + sum_k gamma_k (C(k) + C(k)^T)), by FFT
     meat = np.zeros((p, p))
     for lo, hi in zip(jac_pieces_bounds[:-1], jac_pieces_bounds[1:]):
-        j = jacobian[lo:hi]
+        cols, j = edge_columns(jacobian, lo, hi)
         col = np.zeros(j.shape[0])
         m = min(m_max, j.shape[0] - 1) + 1
         col[:m] = gamma[:m]
-        meat += j.T @ linalg.matmul_toeplitz(col, j, check_finite=False)
+        meat[np.ix_(cols, cols)] += j.T @ linalg.matmul_toeplitz(col, j, check_finite=False)
     meat = 0.5 * (meat + meat.T)
     variance_ratio = max(1.0, 1.0 + 2.0 * float(np.sum(model_rho[1:m_max + 1])))
     n_eff = n / variance_ratio

@@ -43,6 +43,7 @@ import numpy as np
 from scipy import linalg
 
 from ..errors import FitError
+from .block_jacobian import dense, weighted
 from .core import ModelFit, covariance_from_jacobian, model_fit_at
 from .joint_model import JointModel
 from .projection import least_squares_search, nonlinear_names
@@ -73,6 +74,11 @@ MAX_SHIFT = 6.0
 #: The check on the whitened residuals is named in the output when it widens an
 #: interval by more than this fraction.
 LEFT_OVER_NOTED = 0.01
+#: Most edges of a whitened fit. Its search runs over every edge's delay with
+#: the shape (cost growing with the square of the edges); a joint fit of more
+#: edges keeps the ordinary fit, with the sandwich covariance for its correlated
+#: residuals (honest intervals, somewhat wider than generalised least squares').
+MAX_WHITENED_EDGES = 12
 #: Sample intervals may differ by this fraction of the median and still count as uniform.
 UNIFORM_TOLERANCE = 1e-3
 
@@ -134,10 +140,11 @@ class Whitener:
 
 def whitening_applies(joint: JointModel, min_points: int = MIN_WHITENING_POINTS) -> bool:
     """True when prewhitening is valid for this joint model: ideal-step mode,
-    unbinned points, uniformly sampled segments, at least ``min_points`` points
+    at most :data:`MAX_WHITENED_EDGES` edges, unbinned points, uniformly
+    sampled segments, at least ``min_points`` points
     (the default is for a noise model fitted to the residuals; a separate
     noise record needs none)."""
-    if joint.measured_input or joint.y.size < min_points:
+    if joint.measured_input or joint.y.size < min_points or len(joint.segments) > MAX_WHITENED_EDGES:
         return False
     for seg, d in zip(joint.segments, joint.data):
         if d.bin_size != 1 or d.y.size < MIN_PIECE_POINTS:
@@ -162,7 +169,7 @@ def whitener_for_fit(joint: JointModel, fit: ModelFit, max_order: int = MAX_WHIT
     pieces = joint.split(w * fit.residual)
     n = int(sum(len(r) for r in pieces))
     max_lag = max(1, min(n // 2, 2000, min(len(r) for r in pieces) - 2))
-    noise = noise_autocovariance(fit.jacobian * w[:, None], pieces, list(joint.bounds), fit.covariance / fit.s2,
+    noise = noise_autocovariance(weighted(fit.jacobian, w), pieces, list(joint.bounds), fit.covariance / fit.s2,
                                  max_lag)
     rho = noise.autocovariance / noise.autocovariance[0]
     rho[0] += WHITE_LOADING
@@ -193,7 +200,7 @@ class WhitenedProblem:
 def whitened_problem(joint: JointModel, fit: ModelFit, whitener: Whitener) -> WhitenedProblem:
     """Whitened Jacobian, residuals and GLS covariance of ``fit`` (see :class:`WhitenedProblem`)."""
     w = joint.weights
-    jac = whitener.apply(fit.jacobian * w[:, None], joint.bounds)
+    jac = whitener.apply(dense(weighted(fit.jacobian, w)), joint.bounds)
     res = whitener.apply(w * fit.residual, joint.bounds)
     # the AR coefficients cost degrees of freedom when fitted to these residuals
     dof = fit.dof - (whitener.order if whitener.record_samples is None else 0)
@@ -325,7 +332,7 @@ def standard_error_dof(joint: JointModel, fit: ModelFit, whitener: Whitener, n_s
     if p == 0 or k == 0 or rho is None or rho.size <= p:
         return np.full(k, math.inf)
     w = joint.weights
-    jac = fit.jacobian * w[:, None]
+    jac = dense(weighted(fit.jacobian, w))
     stacked = np.column_stack([jac, w * fit.residual])
 
     def log_variances(phi: np.ndarray) -> np.ndarray:
