@@ -18,7 +18,7 @@ response is ``unit_step``; the output is then
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Callable, Mapping, Sequence
 
 import numpy as np
@@ -104,6 +104,15 @@ class Form:
         follow a reported parameter's profile likelihood
         (fitkit.fitting.region_profile). The first reported parameter is the
         larger of the pair. None for ordinary forms.
+
+    Optional attribute for a form with a given (not fitted) parameter (added
+    with the pulse response, fitkit.forms.pulse):
+
+    held: {shape name: physical value (SI)} of shape parameters that are part
+        of the form's description but never fitted (the width of a drive
+        pulse). They are shape parameters because the engine evaluates
+        unit_step in scaled time; a fit must hold them, e.g.
+        ``fit_segments(..., fixed=form.held)``. Empty for ordinary forms.
     """
 
     name: str
@@ -121,6 +130,7 @@ class Form:
     reported_shape: tuple[ParamSpec, ...] = ()
     region_quantities: Callable[..., Mapping[str, np.ndarray]] | None = None
     fit_coordinates: Callable[..., Mapping[str, float]] | None = None
+    held: Mapping[str, float] = field(default_factory=dict)
 
     def canonical_shape(self, shape: Mapping[str, float]) -> dict[str, float]:
         """The shape with symmetric parameters put in the form's canonical order."""

@@ -9,9 +9,7 @@ parameter). ``fitkit.forms.get_form`` knows these names, so
 
 A form fitted in internal coordinates ("two-real-pole", fitted in tau0 and Q
 and reported as tau1 and tau2) is delayed in its reported coordinates
-(tau1, tau2, delay) with its canonical order, like "pole-zero": the
-confidence-region machinery behind the (tau0, Q) coordinates handles two fit
-coordinates only.
+(tau1, tau2, delay), see wrapping.py.
 
 When a delay is measurable. The delay only means something where the edge
 time is known: with a measured input channel (the drive's own edge fixes the
@@ -50,6 +48,7 @@ import numpy as np
 
 from .base import Form, ParamSpec
 from .shape_measures import after_edge, noise_level
+from .wrapping import in_wrapped_coordinates, split_off, wrapped_shape
 
 #: The suffix of a delayed form's name.
 DELAY_SUFFIX = "-with-delay"
@@ -97,14 +96,6 @@ def trial_delays(t_rel: np.ndarray, y_norm: np.ndarray) -> list[float]:
     return out
 
 
-def _reported(form: Form, shape: Mapping[str, float]) -> dict[str, float]:
-    """A base-form shape in the coordinates the delayed form uses (the reported ones if any)."""
-    if not form.reported_shape:
-        return dict(shape)
-    q = form.region_quantities(**shape)
-    return {p.name: float(np.asarray(q[p.name])) for p in form.reported_shape}
-
-
 #: Delayed forms made so far, by id of the base form (kept with it, so the id is not reused).
 _MADE: dict[int, tuple[Form, Form]] = {}
 
@@ -122,11 +113,8 @@ def delayed(form: Form) -> Form:
 
 
 def _make_delayed(form: Form) -> Form:
-    own = form.reported_shape or form.shape
-
     def split(shape: Mapping[str, float]) -> tuple[float, dict[str, float]]:
-        rest = dict(shape)
-        return float(rest.pop("delay")), rest
+        return split_off(shape, "delay")
 
     def unit_step(t_rel: np.ndarray, **shape: float) -> np.ndarray:
         delay, rest = split(shape)
@@ -140,7 +128,7 @@ def _make_delayed(form: Form) -> Form:
         t_rel = np.asarray(t_rel, dtype=float)
         per_delay = []
         for d in trial_delays(t_rel, y_norm):
-            per_delay.append([{**_reported(form, g), "delay": d} for g in form.guess(t_rel - d, y_norm)])
+            per_delay.append([{**in_wrapped_coordinates(form, g), "delay": d} for g in form.guess(t_rel - d, y_norm)])
         # interleaved: each trial delay with its best base guesses first
         starts = [s for row in itertools.zip_longest(*per_delay) for s in row if s is not None]
         return starts[:MAX_STARTS]
@@ -156,7 +144,7 @@ def _make_delayed(form: Form) -> Form:
     return Form(
         name=form.name + DELAY_SUFFIX,
         summary=f"{form.name} behind a dead time: response(t - delay)",
-        shape=(*own, DELAY_SPEC),
+        shape=(*wrapped_shape(form), DELAY_SPEC),
         unit_step=unit_step,
         transfer_function=transfer_function,
         guess=guess,
