@@ -274,8 +274,9 @@ def real_pole_derived(**shape: float) -> dict[str, float]:
 
 UNDERDAMPED_BAND_PASS = Form(
     name="underdamped-band-pass",
-    summary="ringing band-pass (Q > 1/2; RLC voltage across R): rises, rings about and returns to the baseline",
-    shape=(ParamSpec("f0", "Hz", "frequency", "centre (natural) frequency"),
+    summary="ringing band-pass (Q > 1/2; RLC voltage across R, |H| peaks at 1 at f0): rises, rings about "
+            "and returns to the baseline",
+    shape=(ParamSpec("f0", "Hz", "frequency", "centre (natural) frequency, where |H| peaks at 1"),
            ParamSpec("Q", "", "ratio", "quality factor, 1/(2 zeta); f0/Q is the -3 dB bandwidth", lower=0.5)),
     unit_step=underdamped_step,
     transfer_function=underdamped_tf,
@@ -289,7 +290,8 @@ UNDERDAMPED_BAND_PASS = Form(
 
 TWO_REAL_POLE_BAND_PASS = Form(
     name="two-real-pole-band-pass",
-    summary="overdamped band-pass: (tau1 + tau2) s/((1 + s tau1)(1 + s tau2)), rises and returns to the baseline",
+    summary="overdamped band-pass: (tau1 + tau2) s/((1 + s tau1)(1 + s tau2)), |H| peaks at 1; rises and "
+            "returns to the baseline",
     shape=(ParamSpec("tau0", "s", "time", "geometric mean of the two time constants, 1/(2 pi f0)"),
            ParamSpec("Q", "", "ratio", "quality factor of the pole pair, 1/2 when the poles are equal",
                      upper=Q_EQUAL_POLES)),

@@ -51,6 +51,7 @@ import math
 
 import numpy as np
 
+from ..errors import OptionError
 from .base import Form, ParamSpec
 from .wrapping import in_wrapped_coordinates, split_off, wrapped_shape
 
@@ -87,7 +88,8 @@ def pulse_response(form: Form, width: float) -> Form:
     """``form`` driven by a rectangular pulse of ``width`` seconds (see the module docstring)."""
     width = float(width)
     if not (math.isfinite(width) and width > 0):
-        raise ValueError(f"pulse width must be a positive number of seconds, not {width!r}")
+        raise OptionError(f"the pulse width must be a positive number of seconds, not {width!r}",
+                          hint="give the drive pulse's width, e.g. 20u")
 
     def unit_step(t_rel: np.ndarray, **shape: float) -> np.ndarray:
         w, rest = split_off(shape, WIDTH_SPEC.name, width)
