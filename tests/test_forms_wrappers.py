@@ -155,3 +155,14 @@ def test_pulse_response_fitted_with_its_width_held():
     for k, v in {"tau": 100e-6, "step": 2.5}.items():
         lo, hi = r.parameters[k].ci95
         assert lo - (hi - lo) / 2 <= v <= hi + (hi - lo) / 2, r.parameters[k]
+
+
+@pytest.mark.parametrize("name", list(FORMS))
+def test_jump_at_the_edge_is_declared_truthfully(name):
+    # the engine may fit the edge time only of a response that starts continuously; each form's
+    # declaration is checked against its own response just after the edge
+    base, shape, t, dt = _case(name)
+    start = float(np.abs(base.unit_step(np.array([1e-9 * dt]), **shape))[0])
+    assert base.edge_jumps == (start > 1e-3), start
+    assert delayed(base).edge_jumps == base.edge_jumps
+    assert pulse_response(base, 10 * dt).edge_jumps == base.edge_jumps

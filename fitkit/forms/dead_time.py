@@ -154,4 +154,5 @@ def _make_delayed(form: Form) -> Form:
         final_value=form.final_value,
         auto_candidate=False,
         canonical=canonical if form.canonical is not None else None,
+        jumps_at_edge=form.jumps_at_edge,
     )

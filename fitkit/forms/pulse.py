@@ -33,9 +33,10 @@ Levels, for the engine:
   two edges of a pulse belong to one segment (one window from before the
   rising edge until the response to the falling edge has settled), not to
   two independent steps. For a form that starts continuously (every low-pass
-  form) t0 is as well determined as for a step and should be fitted; the
-  engine currently holds t0 at the conditioning's edge for every form whose
-  final value is 0 (a rule made for responses that jump at the edge).
+  form) t0 is as well determined as for a step and should be fitted: the
+  pulse form says so with ``jumps_at_edge`` (the wrapped form's). The engine
+  currently holds t0 at the conditioning's edge for every form whose final
+  value is 0 (a rule made for responses that jump at the edge).
 
 With an input channel the measured-input mode needs no wrapper: the plain
 form driven by the recorded pulse covers any pulse shape (droop, finite
@@ -135,4 +136,5 @@ def pulse_response(form: Form, width: float) -> Form:
         auto_candidate=False,
         canonical=canonical if form.canonical is not None else None,
         held={WIDTH_SPEC.name: width},
+        jumps_at_edge=form.edge_jumps,
     )
