@@ -1,6 +1,7 @@
 """Accuracy against the physical limit, and against doing it by hand.
 
 Run:  python benchmarks/bench_accuracy.py [--trials 200] [--auto-trials 20] [--workers 2] [--quick]
+      python benchmarks/bench_accuracy.py --new-forms [--trials 40]   (only the rows of issue 15)
 
 Monte Carlo over simulated step captures. Each *cell* is one true response
 (form and shape) under one capture condition; every trial adds fresh noise
@@ -41,7 +42,24 @@ same captures (first-order tau, and the dominant tau1 of two-real-pole):
 63.2 % threshold crossing, 10-90 % rise time / ln 9, straight line through
 the log of the settling tail, scipy.optimize.curve_fit with p0 = ones.
 
-Results: benchmarks/results/accuracy.json and accuracy.md.
+Rows of the forms added for issue 15 (NEW_RESPONSES): the band-pass forms
+(underdamped f0 = 10 kHz, Q = 5; real poles tau1 = 100 us, tau2 = 20 us), a
+zero of either sign on the second order (underdamped f0 = 10 kHz, Q = 2 with
+a left-half-plane zero tz = 1/w0 and a right-half-plane zero tz = 0.5/w0; two
+real poles 100 us and 20 us with a right-half-plane zero tz = 30 us), a first
+order (tau = 100 us) behind a dead time of 20 us, measured with the input
+channel recorded (the only mode where a dead time is separable from the edge
+time), and a first order driven by a 100 us pulse (width given, held). Forms
+whose final value is 0 (band-pass, pulse) are fitted with the edge time
+held at the segment's edge, as the engine does; their bound is computed with
+t0 known accordingly; in measured-input mode the edge is the input's and the
+bound has no t0 either. Their selection rate is the rate at which the
+automatic choice among the new form and its nearest old forms (NEAREST_OLD,
+listed first, so the new form must win by the AICc margin) picks the new
+form; none of these forms is an automatic candidate yet.
+
+Results: benchmarks/results/accuracy.json and accuracy.md
+(accuracy_new_forms.* with --new-forms).
 """
 
 from __future__ import annotations
@@ -83,6 +101,60 @@ ACCEPTED = {"first-order": {"first-order"}, "two-pole 0.02": {"two-real-pole"}, 
             "two-pole 1": {"two-real-pole", "critically-damped"}, "underdamped Q 0.7": {"underdamped"},
             "underdamped Q 5": {"underdamped"}, "underdamped Q 30": {"underdamped"}}
 
+#: The rows of issue 15's forms: id -> (form, true shape, fastest and slowest time scale (s), hand target)
+W0_10K = 2 * math.pi * 10e3
+NEW_RESPONSES = {
+    "band-pass Q 5": ("underdamped-band-pass", {"f0": 10e3, "Q": 5.0}, 1 / W0_10K, 10 / W0_10K, None),
+    "band-pass two-pole 0.2": ("two-real-pole-band-pass", {"tau1": 100e-6, "tau2": 20e-6}, 20e-6, 100e-6, None),
+    "zero left Q 2": ("underdamped-zero", {"f0": 10e3, "Q": 2.0, "tz": 1 / W0_10K}, 1 / W0_10K, 4 / W0_10K, None),
+    "zero right Q 2": ("underdamped-undershoot", {"f0": 10e3, "Q": 2.0, "tz": 0.5 / W0_10K}, 0.5 / W0_10K,
+                       4 / W0_10K, None),
+    "zero right two-pole": ("two-real-pole-undershoot", {"tz": 30e-6, "tau1": 100e-6, "tau2": 20e-6}, 20e-6,
+                            100e-6, None),
+    "dead time 0.2": ("first-order-with-delay", {"tau": 100e-6, "delay": 20e-6}, 20e-6, 100e-6, None),
+    "pulse 1 tau": ("first-order-pulse", {"tau": 100e-6}, 100e-6, 100e-6, None),
+}
+RESPONSES.update(NEW_RESPONSES)
+ACCEPTED.update({k: {v[0]} for k, v in NEW_RESPONSES.items()})
+#: The old forms each new row competes with in its selection rate (listed before the new form).
+NEAREST_OLD = {
+    "band-pass Q 5": ("first-order-decay", "underdamped"),
+    "band-pass two-pole 0.2": ("first-order-decay", "two-real-pole"),
+    "zero left Q 2": ("underdamped",),
+    "zero right Q 2": ("underdamped",),
+    "zero right two-pole": ("two-real-pole", "three-real-pole"),
+    "dead time 0.2": ("first-order", "two-real-pole"),
+}
+#: Rows fitted with the input channel recorded (a sampled ideal step), in measured-input mode.
+MEASURED_INPUT = {"dead time 0.2"}
+#: Pulse-response forms of these rows: name -> (wrapped form, pulse width in s).
+PULSES = {"first-order-pulse": ("first-order", 100e-6)}
+NEW_VARIATIONS = [{}, {"snr_db": 20.0}, {"noise": "band"}]
+
+
+def resolve_form(name: str):
+    """The form called ``name``: a registered form, NAME-with-delay, or one of PULSES."""
+    from fitkit.forms import get_form, pulse_response
+
+    if name in PULSES:
+        base, width = PULSES[name]
+        return pulse_response(get_form(base), width)
+    return get_form(name)
+
+
+def edge_setup(response: str, form, dt: float) -> tuple[float, bool]:
+    """(true edge time of the output in s, whether t0 is a fitted parameter) for a row.
+
+    With an input channel, a sampled ideal step at t = 0 read piecewise-linearly
+    (the engine's reading of a measured input) crosses mid-level at -dt/2, so
+    the output's true edge is there and the input fixes it; a form whose final
+    value is 0 has its edge held at the segment's edge (the engine's rule).
+    """
+    if response in MEASURED_INPUT:
+        return -dt / 2, False
+    return 0.0, form.final_value != 0.0
+
+
 #: Samples in the separate quiet record of the band-limited noise (fitkit fit --noise-record).
 NOISE_RECORD_SAMPLES = 4096
 BASE = {"snr_db": 40.0, "samples_per_tau": 10.0, "record_taus": 6.0, "bits": None, "noise": "white",
@@ -106,15 +178,14 @@ def describe(cond: dict) -> str:
 
 def cell_setup(response: str, cond: dict) -> dict:
     """Time axis, clean trace, noise level, quantisation step and the Fisher bounds of one cell."""
-    from fitkit.forms import get_form
-
     form_name, shape, fast, slow, _ = RESPONSES[response]
-    form = get_form(form_name)
+    form = resolve_form(form_name)
     dt = fast / cond["samples_per_tau"]
     n_post = int(math.ceil(cond["record_taus"] * slow / dt))
     n_pre = max(20, n_post // 5)
     t = np.arange(-n_pre, n_post) * dt
-    theta = {**shape, "baseline": BASELINE, "step": STEP, "t0": 0.0}
+    edge, free_t0 = edge_setup(response, form, dt)
+    theta = {**shape, "baseline": BASELINE, "step": STEP, "t0": edge}
 
     def model(p):
         return form.response(t, baseline=p["baseline"], step=p["step"], t0=p["t0"],
@@ -127,7 +198,7 @@ def cell_setup(response: str, cond: dict) -> dict:
         lsb = 1.25 * float(np.ptp(y0)) / 2 ** cond["bits"]
     sigma_eff = math.sqrt(sigma**2 + (lsb**2 / 12 if lsb else 0.0))
     steps = {**{k: 1e-6 * v for k, v in shape.items()}, "baseline": 1e-6 * STEP, "step": 1e-6 * STEP,
-             "t0": 1e-6 * fast}
+             **({"t0": 1e-6 * fast} if free_t0 else {})}
     J = jacobian(model, theta, steps)
     corr = band_limited_autocorrelation(t.size) if cond["noise"] == "band" else None
     # quantised white noise: the exact information of the rounded Gaussian (matters
@@ -136,6 +207,7 @@ def cell_setup(response: str, cond: dict) -> dict:
     crlb, ols = fisher_bounds(J, sigma_eff, corr, information)
     names = list(steps)
     return {"t": t, "clean": y0, "sigma": sigma, "sigma_eff": sigma_eff, "lsb": lsb, "n": int(t.size),
+            "edge": edge, "form": form,
             "crlb": {k: float(crlb[names.index(k)]) for k in shape},
             "ols_var": {k: float(ols[names.index(k)]) for k in shape}}
 
@@ -166,14 +238,18 @@ def run_trials(task: tuple) -> list[dict]:
                                                float(t[1] - t[0]))
         pre = y[t < 0]
         tail = y[-max(5, t.size // 10):]
-        seg = StepSegment(0, t.size, t, y, None, 0.0, 1, float(pre.mean()), float(tail.mean()),
-                          noise_rms=setup["sigma_eff"], quantisation_step=lsb)
+        drive = dict(input=(t >= 0).astype(float), input_before=0.0, input_after=1.0) \
+            if response in MEASURED_INPUT else dict(input=None)
+        seg = StepSegment(0, t.size, t, y, drive.pop("input"), setup["edge"], 1, float(pre.mean()),
+                          float(tail.mean()), noise_rms=setup["sigma_eff"], quantisation_step=lsb, **drive)
         rec: dict = {"trial": trial}
         t1 = time.perf_counter()
+        form = setup["form"]
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
-                r = fit_segments([seg], form_name, intervals="auto", derived=False, noise_record=record)
+                r = fit_segments([seg], form, intervals="auto", derived=False, noise_record=record,
+                                 fixed=dict(form.held) or None)
             rec["fitkit"] = {k: r.parameters[k].value for k in shape}
             rec["covered"] = {k: bool(r.parameters[k].contains(v)) for k, v in shape.items()}
         except FitError as err:
@@ -181,17 +257,19 @@ def run_trials(task: tuple) -> list[dict]:
         except Exception as err:  # a crash is a bug in the engine: record it, keep going
             rec["crash"] = f"{type(err).__name__}: {err}"
         rec["fit_seconds"] = time.perf_counter() - t1
-        if trial < n_auto:
+        if trial < n_auto and not form.held:  # a pulse's width is given: no automatic choice to rate
+            # the usual candidates, or for a new form the new form against its nearest old ones
+            candidates = [*NEAREST_OLD[response], form] if response in NEAREST_OLD else None
             try:
                 with warnings.catch_warnings():
                     warnings.simplefilter("ignore")
-                    rec["auto_model"] = fit_segments([seg], "auto", intervals="covariance", derived=False,
-                                                     noise_record=record).model
+                    rec["auto_model"] = fit_segments([seg], "auto", candidates=candidates, intervals="covariance",
+                                                     derived=False, noise_record=record).model
             except Exception as err:
                 rec["auto_model"] = f"error: {type(err).__name__}"
         if hand_target:
             rec["hand"] = {name: fn(t, y, 0.0) for name, fn in HAND_METHODS.items()}
-        rec["curve_fit"] = curve_fit_default(form_name, t, y, list(shape))
+        rec["curve_fit"] = curve_fit_default(form, t, y, list(shape), setup["edge"])
         records.append(rec)
     return records
 
@@ -312,19 +390,18 @@ HAND_METHODS = {"63.2 % crossing": threshold_63, "10-90 % rise / ln 9": rise_tim
                 "log of settling tail": log_tail}
 
 
-def curve_fit_default(form_name: str, t: np.ndarray, y: np.ndarray, shape_names: list[str]) -> dict | None:
-    """scipy.optimize.curve_fit of the right form with its default start (p0 = ones), edge time known.
+def curve_fit_default(form, t: np.ndarray, y: np.ndarray, shape_names: list[str], edge: float = 0.0) -> dict | None:
+    """scipy.optimize.curve_fit of the right form (a Form, or its name) with its default start
+    (p0 = ones), edge time known (``edge``, s).
 
     Returns the shape parameters (SI) or None when curve_fit raises or returns non-finite values.
     """
     from scipy.optimize import curve_fit
 
-    from fitkit.forms import get_form
-
-    form = get_form(form_name)
+    form = resolve_form(form) if isinstance(form, str) else form
 
     def f(tt, baseline, step, *shape):
-        return form.response(tt, baseline=baseline, step=step, t0=0.0, **dict(zip(shape_names, shape)))
+        return form.response(tt, baseline=baseline, step=step, t0=edge, **dict(zip(shape_names, shape)))
 
     try:
         with warnings.catch_warnings(), np.errstate(all="ignore"):
@@ -340,10 +417,11 @@ def curve_fit_default(form_name: str, t: np.ndarray, y: np.ndarray, shape_names:
 
 # -- the whole study ----------------------------------------------------------------
 
-def run_study(trials: int, auto_trials: int, workers: int, quick: bool) -> dict:
-    """Run every cell; return the JSON-ready results (also used by the smoke test)."""
-    responses = QUICK_RESPONSES if quick else tuple(RESPONSES)
-    variations = QUICK_VARIATIONS if quick else VARIATIONS
+def run_study(trials: int, auto_trials: int, workers: int, quick: bool, new_forms: bool = False) -> dict:
+    """Run every cell; return the JSON-ready results (also used by the smoke test).
+    new_forms: only the rows of issue 15's forms, under NEW_VARIATIONS."""
+    responses = QUICK_RESPONSES if quick else tuple(NEW_RESPONSES) if new_forms else tuple(RESPONSES)
+    variations = QUICK_VARIATIONS if quick else NEW_VARIATIONS if new_forms else VARIATIONS
     cells = [(i, resp, {**BASE, **var}) for i, (resp, var) in
              enumerate((r, v) for r in responses for v in variations)]
     chunk = 25
@@ -356,14 +434,16 @@ def run_study(trials: int, auto_trials: int, workers: int, quick: bool) -> dict:
     for tk, recs in zip(tasks, chunks):
         by_cell.setdefault(tk[0], []).extend(recs)
     results = [summarise_cell(resp, cond, cell_setup(resp, cond), by_cell[i]) for i, resp, cond in cells]
+    for c in results:  # what the selection rate was taken against
+        c["selection_against"] = list(NEAREST_OLD.get(c["response"], ())) or "the usual candidates"
     info = machine()
     info["load_average_at_start"] = load_before
     return clean({
         "study": "accuracy",
         "machine": info,
         "settings": {"trials_per_cell": trials, "auto_trials_per_cell": auto_trials, "workers": workers,
-                     "quick": quick, "base_condition": BASE, "variations": VARIATIONS if not quick else
-                     QUICK_VARIATIONS, "gross_error_threshold": GROSS, "step_volts": STEP,
+                     "quick": quick, "new_forms": new_forms, "base_condition": BASE, "variations": variations,
+                     "gross_error_threshold": GROSS, "step_volts": STEP,
                      "baseline_volts": BASELINE},
         "wall_seconds": time.time() - started,
         "cells": results,
@@ -478,10 +558,12 @@ if __name__ == "__main__":
     ap.add_argument("--quick", action="store_true", help="tiny smoke run (2 responses x 2 conditions, 8 trials)")
     ap.add_argument("--results-dir", default=None, help="where to write (default benchmarks/results)")
     ap.add_argument("--stem", default=None, help="results file name stem (default accuracy, or accuracy_quick)")
+    ap.add_argument("--new-forms", action="store_true",
+                    help="only the rows of the forms added for issue 15 (band-pass, zeros, dead time, pulse)")
     args = ap.parse_args()
     trials = 8 if args.quick else args.trials
     auto = min(2, trials) if args.quick else args.auto_trials
-    data = run_study(trials, auto, 1 if args.quick else args.workers, args.quick)
-    stem = args.stem or ("accuracy_quick" if args.quick else "accuracy")
+    data = run_study(trials, auto, 1 if args.quick else args.workers, args.quick, args.new_forms)
+    stem = args.stem or ("accuracy_quick" if args.quick else "accuracy_new_forms" if args.new_forms else "accuracy")
     j, m = write_results(stem, data, markdown(data), args.results_dir)
     print(f"wrote {j} and {m} in {data['wall_seconds']:.0f} s")

@@ -34,12 +34,21 @@ TRUTHS = [
     ("five-real-pole", {"tau1": 1e-3, "tau2": 1e-3, "tau3": 1e-3, "tau4": 1e-3, "tau5": 1e-3}),
     ("pole-zero", {"tz": 3e-4, "tau1": 1e-3, "tau2": 2e-4}),   # lag-like
     ("pole-zero", {"tz": 3e-3, "tau1": 1e-3, "tau2": 2e-4}),   # lead: overshoots
+    ("underdamped-band-pass", {"f0": 1e3, "Q": 3.0}),
+    ("underdamped-band-pass", {"f0": 1e5, "Q": 0.7}),
+    ("two-real-pole-band-pass", {"tau1": 1e-3, "tau2": 2e-4}),
+    ("two-real-pole-band-pass", {"tau1": 1e-6, "tau2": 1e-6}),
+    ("underdamped-zero", {"f0": 1e3, "Q": 2.0, "tz": 1e-4}),
+    ("underdamped-undershoot", {"f0": 1e4, "Q": 5.0, "tz": 1e-5}),
+    ("two-real-pole-undershoot", {"tz": 3e-4, "tau1": 1e-3, "tau2": 2e-4}),
 ]
 
 
 def _capture(form, shape, noise=0.01, seed=0):
     """A normalised response with white noise on a window covering its settling (10 % pre-edge)."""
-    settle = form.derived(**shape)["settling_time_2pct"]
+    d = form.derived(**shape)
+    # a band-pass returns to zero: twelve peak times cover it as settling covers a step
+    settle = d["settling_time_2pct"] if "settling_time_2pct" in d else 12.0 * d["peak_time"]
     t = np.linspace(-0.2 * settle, 2.0 * settle, 3000)
     rng = np.random.default_rng(seed)
     return t, form.unit_step(t, **shape) + noise * rng.standard_normal(t.size)
@@ -115,6 +124,7 @@ def test_forms_command_lists_every_form_in_text():
         for spec in form.shape:
             assert spec.name in result.output
     assert "f0 [Hz]" in result.output and "settling_time_2pct [s]" in result.output
+    assert "NAME-with-delay" in result.output  # the dead-time variant every form has
 
 
 def test_forms_command_json_lists_every_form_with_units():

@@ -36,29 +36,37 @@ def _scipy_step(form, shape, t):
 
 def _window(shape):
     """A time window covering the response: 12 of the slowest time scale, or 20 periods."""
-    if "f0" in shape:
+    if "f0" in shape or "tau0" in shape:
         q = shape["Q"]
         decay = 2 * q if q > 0.5 else 1 / (2 * q) * 2  # in units of 1/w0
-        return 12.0 * decay / (2 * math.pi * shape["f0"])
+        w0 = 2 * math.pi * shape["f0"] if "f0" in shape else 1 / shape["tau0"]
+        return 12.0 * decay / w0
     return 12.0 * max(v for k, v in shape.items())
 
 
 def _random_shapes(form, rng, count):
-    """Random shapes spanning the brief's ranges: tau ratios 0.02-1, Q 0.1-30, decades of scale."""
+    """Random shapes spanning the brief's ranges: tau ratios 0.02-1, Q 0.1-30 (within the form's
+    bounds), zeros from 0.03 to 10 times the time scale, decades of scale."""
     shapes = []
     for _ in range(count):
         scale = 10.0 ** rng.uniform(-9, 1)
-        names = form.shape_names
-        if names == ("f0", "Q"):
-            low = 0.5001 if form is UNDERDAMPED else 0.1
-            shapes.append({"f0": 1.0 / scale, "Q": float(math.exp(rng.uniform(math.log(low), math.log(30))))})
-        elif names == ("tz", "tau1", "tau2"):
-            shapes.append({"tz": scale * 10 ** rng.uniform(-1.5, 1), "tau1": scale,
-                           "tau2": scale * rng.uniform(0.02, 1)})
-        else:
-            ratios = np.sort(rng.uniform(0.02, 1.0, size=len(names)))[::-1]
+        taus = [p.name for p in form.shape if p.kind == "time" and p.name not in ("tz", "tau0")]
+        ratios = np.sort(rng.uniform(0.02, 1.0, size=len(taus)))[::-1]
+        if ratios.size:
             ratios[0] = 1.0
-            shapes.append({k: scale * r for k, r in zip(names, ratios)})
+        shape = {k: scale * r for k, r in zip(taus, ratios)}
+        for spec in form.shape:
+            if spec.kind == "frequency":
+                shape[spec.name] = 1.0 / scale
+            elif spec.kind == "ratio":
+                low = max(spec.lower or 0.1, 0.1) * (1.0002 if spec.lower else 1.0)
+                high = min(spec.upper or 30.0, 30.0)
+                shape[spec.name] = float(math.exp(rng.uniform(math.log(low), math.log(high))))
+            elif spec.name == "tau0":
+                shape[spec.name] = scale
+            elif spec.name == "tz":
+                shape[spec.name] = scale * 10 ** rng.uniform(-1.5, 1)
+        shapes.append(shape)
     return shapes
 
 

@@ -11,8 +11,9 @@ def _with_unit(name: str, unit: str) -> str:
     return f"{name} [{unit}]" if unit else name
 
 
-def forms_text(descriptions: list[dict], common: list[dict]) -> str:
-    """The forms as a plain-text listing (our own layout)."""
+def forms_text(descriptions: list[dict], common: list[dict], delay_suffix: str = "") -> str:
+    """The forms as a plain-text listing (our own layout); with ``delay_suffix``, a closing
+    line on the dead-time variant every form has."""
     lines = ["Every form: y(t) = baseline + step * response(t - t0), with "
              + ", ".join(_with_unit(p["name"], p["unit"]) for p in common) + ".", ""]
     for d in descriptions:
@@ -30,6 +31,9 @@ def forms_text(descriptions: list[dict], common: list[dict]) -> str:
         derived = ", ".join(_with_unit(q["name"], q["unit"]) for q in d["derived"])
         lines.append(f"    derived    {derived}")
         lines.append("")
+    if delay_suffix:
+        lines.append(f"Every form also comes behind a dead time, as NAME{delay_suffix} (one more parameter, "
+                     "delay [s]; measurable when the input channel is recorded).")
     return "\n".join(lines).rstrip() + "\n"
 
 
@@ -44,6 +48,7 @@ def forms(name, as_json):
     """
     from ..forms import FORMS, get_form
     from ..forms.catalogue import common_parameters, describe_form
+    from ..forms.dead_time import DELAY_SUFFIX
 
     chosen = [get_form(name)] if name else list(FORMS.values())
     descriptions = [describe_form(f) for f in chosen]
@@ -51,4 +56,4 @@ def forms(name, as_json):
     if as_json:
         click.echo(json.dumps({"common_parameters": common, "forms": descriptions}, indent=2))
     else:
-        click.echo(forms_text(descriptions, common), nl=False)
+        click.echo(forms_text(descriptions, common, "" if name else DELAY_SUFFIX), nl=False)

@@ -18,7 +18,7 @@ response is ``unit_step``; the output is then
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Callable, Mapping, Sequence
 
 import numpy as np
@@ -104,6 +104,22 @@ class Form:
         follow a reported parameter's profile likelihood
         (fitkit.fitting.region_profile). The first reported parameter is the
         larger of the pair. None for ordinary forms.
+
+    Optional attribute for a form with a given (not fitted) parameter (added
+    with the pulse response, fitkit.forms.pulse):
+
+    held: {shape name: physical value (SI)} of shape parameters that are part
+        of the form's description but never fitted (the width of a drive
+        pulse). They are shape parameters because the engine evaluates
+        unit_step in scaled time; a fit must hold them, e.g.
+        ``fit_segments(..., fixed=form.held)``. Empty for ordinary forms.
+    jumps_at_edge: True when unit_step jumps at the edge (unit_step(0+) is
+        not 0, as for "first-order-decay"): the edge time then trades exactly
+        against ``step`` and is best held at the conditioning's edge. False
+        for a response that starts continuously, including those that return
+        to zero (band-pass, pulse responses), whose edge time is determined
+        like a low-pass form's. None (the default): taken as final_value == 0,
+        the engine's rule before these forms. Read it through ``edge_jumps``.
     """
 
     name: str
@@ -121,6 +137,13 @@ class Form:
     reported_shape: tuple[ParamSpec, ...] = ()
     region_quantities: Callable[..., Mapping[str, np.ndarray]] | None = None
     fit_coordinates: Callable[..., Mapping[str, float]] | None = None
+    held: Mapping[str, float] = field(default_factory=dict)
+    jumps_at_edge: bool | None = None
+
+    @property
+    def edge_jumps(self) -> bool:
+        """Whether the response jumps at the edge (see ``jumps_at_edge``)."""
+        return self.final_value == 0.0 if self.jumps_at_edge is None else self.jumps_at_edge
 
     def canonical_shape(self, shape: Mapping[str, float]) -> dict[str, float]:
         """The shape with symmetric parameters put in the form's canonical order."""

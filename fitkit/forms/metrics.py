@@ -167,6 +167,26 @@ def step_metrics(unit_step: UnitStep, *, horizon: float, resolution: float,
     }
 
 
+def undershoot(unit_step: UnitStep, *, horizon: float, resolution: float,
+               final: float = 1.0) -> tuple[float, float]:
+    """(undershoot in % of the final value, its time in s) of a step response that first
+    moves the wrong way (a right-half-plane zero): the depth of its minimum below 0 before
+    it first rises above 0; (0, nan) when it never goes below 0."""
+    t = _time_grid(horizon, resolution)
+    y = unit_step(t) / final
+    # the wrong-way excursion ends where the response first comes back above 0 after dipping
+    rising = np.nonzero(y > 0.0)[0]
+    below = np.nonzero(y < 0.0)[0]
+    if below.size == 0:
+        return 0.0, math.nan
+    back = rising[rising > below[0]]
+    end = int(back[0]) if back.size else t.size
+    k = int(np.argmin(y[:end]))
+    low_time, depth = _refine_peak(lambda tt: -unit_step(tt) / final, t[max(k - 1, 0)],
+                                   t[min(k + 1, t.size - 1)])
+    return 100.0 * depth, low_time
+
+
 def _gain_squared(num: np.ndarray, den: np.ndarray, omega: np.ndarray) -> np.ndarray:
     s = 1j * np.asarray(omega, dtype=float)
     return np.abs(np.polyval(num, s)) ** 2 / np.abs(np.polyval(den, s)) ** 2

@@ -17,7 +17,7 @@ import numpy as np
 from .base import running_mean
 
 
-def _after_edge(t_rel: np.ndarray, y_norm: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def after_edge(t_rel: np.ndarray, y_norm: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Samples after the edge, with a running mean of ~1/200 of their number."""
     t_rel = np.asarray(t_rel, dtype=float)
     y_norm = np.asarray(y_norm, dtype=float)
@@ -85,7 +85,7 @@ class ResponseShape:
 
 def measure_response(t_rel: np.ndarray, y_norm: np.ndarray) -> ResponseShape:
     """Read levels, overshoot and ringing off a response normalised to 0 -> 1."""
-    t, y = _after_edge(t_rel, y_norm)
+    t, y = after_edge(t_rel, y_norm)
     if t.size < 3:
         window = float(max(np.max(t_rel) if np.size(t_rel) else 1.0, 1e-30))
         return ResponseShape(math.nan, math.nan, math.nan, 0.0, math.nan, math.nan, math.nan, window)
@@ -136,7 +136,7 @@ def _decrement_q(magnitude: np.ndarray, changes: np.ndarray, threshold: float) -
 
 def decay_time_scale(t_rel: np.ndarray, y_norm: np.ndarray) -> float:
     """Time (s) for a response that jumps to 1 and decays to 0 to fall to 1/e; window/5 if never."""
-    t, y = _after_edge(t_rel, y_norm)
+    t, y = after_edge(t_rel, y_norm)
     if t.size < 3:
         return float(max(np.max(t_rel) if np.size(t_rel) else 1.0, 1e-30))
     crossing = crossing_time(t, y, math.exp(-1.0), rising=False)

@@ -80,7 +80,7 @@ def time_constants(tau0, Q):
     return tau1, tau2
 
 
-def _pair(shape: Mapping[str, float]) -> tuple[float, float]:
+def pair_coordinates(shape: Mapping[str, float]) -> tuple[float, float]:
     """(tau0, Q) from either coordinate set."""
     if "tau0" in shape:
         return float(shape["tau0"]), float(shape["Q"])
@@ -102,7 +102,7 @@ def unit_step(t_rel: np.ndarray, **shape: float) -> np.ndarray:
     t_rel in seconds, 0 before the edge. Smooth in (tau0, Q) through Q = 1/2."""
     if "tau0" not in shape:
         return _taus_step(t_rel, float(shape["tau1"]), float(shape["tau2"]))
-    tau0, q = _pair(shape)
+    tau0, q = pair_coordinates(shape)
     return second_order_step(t_rel, f0=1.0 / (2.0 * math.pi * tau0), Q=q)
 
 
@@ -111,7 +111,7 @@ def transfer_function(**shape: float) -> tuple[np.ndarray, np.ndarray]:
     if "tau0" not in shape:
         tau1, tau2 = float(shape["tau1"]), float(shape["tau2"])
         return np.array([1.0]), np.array([tau1 * tau2, tau1 + tau2, 1.0])
-    tau0, q = _pair(shape)
+    tau0, q = pair_coordinates(shape)
     return np.array([1.0]), np.array([tau0 * tau0, tau0 / q, 1.0])
 
 
@@ -148,7 +148,7 @@ def derived(**shape: float) -> dict[str, float]:
     constants (nan) but the other quantities continue smoothly, so their
     derivatives at the double pole are two-sided.
     """
-    tau0, q = _pair(shape)
+    tau0, q = pair_coordinates(shape)
     if "tau0" in shape:
         tau1, tau2 = time_constants(tau0, q)
     else:
