@@ -198,11 +198,9 @@ def describes_capture(fit: FitResult) -> tuple[bool, str]:
     """Whether the behavioural fit describes the capture (the fitting layer's adequacy
     record, ``fit.adequacy.describes_data``), and its words; (True, "") when the fit
     carries no such record. The one place the check reads it."""
-    adequacy = getattr(fit, "adequacy", None)
-    if adequacy is None:
+    if fit.adequacy is None:
         return True, ""
-    ok = bool(getattr(adequacy, "describes_data", True))
-    return ok, str(getattr(adequacy, "summary", "") or getattr(adequacy, "message", "") or "")
+    return fit.describes_data, fit.adequacy.finding
 
 
 def _adequacy_verdict(verdict: str, fit: FitResult, design: Design, warnings: list[str]) -> str:
