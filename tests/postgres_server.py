@@ -16,8 +16,10 @@ import shutil
 import socket
 import subprocess
 import tempfile
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Iterator
 
 import pytest
 
@@ -80,12 +82,15 @@ def _as_server_user(command: list[str]) -> list[str]:
     return ["runuser", "-u", "postgres", "--"] + command if os.geteuid() == 0 else command
 
 
-@pytest.fixture(scope="session")
-def fitkit_postgres_server():
-    """A PostgreSQL server on a free local port for this test session (skips when none can run)."""
+@contextmanager
+def running_server() -> Iterator[RunningServer]:
+    """Start a PostgreSQL server on a free local port in a temporary folder; stop and remove it after.
+
+    Raises RuntimeError with skip_reason() when no server can run here.
+    """
     reason = skip_reason()
     if reason:
-        pytest.skip(reason)
+        raise RuntimeError(reason)
     binaries = server_binaries()
     root = Path(tempfile.mkdtemp(prefix="fitkit-pg-"))
     data = root / "data"
@@ -94,22 +99,37 @@ def fitkit_postgres_server():
         os.chmod(root, 0o700)
     port = _free_port()
     env = dict(os.environ, LC_ALL="C")
-    subprocess.run(_as_server_user([str(binaries / "initdb"), "-D", str(data), "-U", "postgres", "--auth=trust",
-                                    "-E", "UTF8", "--no-sync"]),
-                   check=True, capture_output=True, env=env, timeout=120)
-    subprocess.run(_as_server_user([str(binaries / "pg_ctl"), "-D", str(data), "-l", str(root / "server.log"), "-w",
-                                    "-o", f"-p {port} -k {root} -c listen_addresses=127.0.0.1 -c fsync=off",
-                                    "start"]),
-                   check=True, capture_output=True, env=env, timeout=120)
+    pg_ctl = str(binaries / "pg_ctl")
     try:
+        subprocess.run(_as_server_user([str(binaries / "initdb"), "-D", str(data), "-U", "postgres",
+                                        "--auth=trust", "-E", "UTF8", "--no-sync"]),
+                       check=True, capture_output=True, env=env, timeout=120)
+        subprocess.run(_as_server_user([pg_ctl, "-D", str(data), "-l", str(root / "server.log"), "-w", "-o",
+                                        f"-p {port} -k {root} -c listen_addresses=127.0.0.1 -c fsync=off", "start"]),
+                       check=True, capture_output=True, env=env, timeout=120)
         yield RunningServer(host="127.0.0.1", port=port)
     finally:
-        subprocess.run(_as_server_user([str(binaries / "pg_ctl"), "-D", str(data), "-m", "immediate", "stop"]),
+        subprocess.run(_as_server_user([pg_ctl, "-D", str(data), "-m", "immediate", "stop"]),
                        capture_output=True, env=env, timeout=60)
         shutil.rmtree(root, ignore_errors=True)
+
+
+@pytest.fixture(scope="session")
+def fitkit_postgres_server():
+    """A PostgreSQL server on a free local port for this test session (skips when none can run)."""
+    reason = skip_reason()
+    if reason:
+        pytest.skip(reason)
+    with running_server() as server:
+        yield server
 
 
 def postgres_url(connection) -> str:
     """The store URL of the database behind a psycopg connection (from pytest-postgresql)."""
     info = connection.info
     return f"postgresql://{info.user}@{info.host}:{info.port}/{info.dbname}"
+
+
+def server_url(server: RunningServer, dbname: str = "postgres") -> str:
+    """The store URL of a database on a running server."""
+    return f"postgresql://{server.user}@{server.host}:{server.port}/{dbname}"

@@ -117,10 +117,12 @@ def test_batch_and_check_store_and_trend(tmp_path):
     assert len(tau) == 12 and tau["value"].between(0.9e-3, 1.1e-3).all()
 
     csv_path, html_path = tmp_path / "trend.csv", tmp_path / "trend.html"
+    stored_bytes = store.read_bytes()
     result = subprocess.run([sys.executable, "-m", "fitkit", "trend", str(store), "--baseline", "8", "--quantity", "tau",
                              "--csv", str(csv_path), "--html", str(html_path)], capture_output=True, text=True,
                             timeout=300)
     assert result.returncode == 0, result.stderr
+    assert store.read_bytes() == stored_bytes  # reading trends leaves the store as it was
     assert "tau" in result.stdout and "EWMA lambda 0.2" in result.stdout
     assert csv_path.read_text().splitlines()[0].startswith("design,kind,name")
     page = html_path.read_text()

@@ -12,7 +12,7 @@ import click
 @click.option("--design", metavar="NAME", help="Only this design (its name as in the design file).")
 @click.option("--quantity", "quantities", multiple=True, metavar="NAME",
               help="Only this quantity or part (e.g. C22, f0); repeatable.")
-@click.option("--baseline", type=click.IntRange(min=8), default=30, show_default=True,
+@click.option("--baseline", type=click.IntRange(min=8), default=50, show_default=True,
               help="Boards at the start of each phase that set the centre and the control limits.")
 @click.option("--window", type=click.IntRange(min=5), default=50, show_default=True,
               help="Latest boards for the current Cpk/Ppk and the projection.")
@@ -54,7 +54,7 @@ def trend(store, design, quantities, baseline, window, ewma_lambda, ewma_width, 
         raise OptionError(f"no store at {store}", hint="give the file written by fitkit batch --store")
     settings = ChartSettings(baseline=baseline, ewma_lambda=ewma_lambda, ewma_l=ewma_width, cusum_k=cusum_k,
                              cusum_h=cusum_h)
-    with open_store(store) as opened:
+    with open_store(store, read_only=True) as opened:
         frame = opened.values_frame()
         name = opened.name
     trends = line_trends(frame, settings, window=window, quantities=list(quantities) or None, design=design)

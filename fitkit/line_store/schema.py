@@ -11,6 +11,7 @@ create the tables.
 
 from __future__ import annotations
 
+import sqlite3
 from pathlib import Path
 
 from sqlalchemy import create_engine, event, inspect, text
@@ -25,9 +26,17 @@ MIGRATION_LOCK = 0x666974_6B6974
 MIGRATIONS = Path(__file__).with_name("migrations")
 
 
-def make_engine(url: str) -> Engine:
-    """A SQLAlchemy engine for the store URL (see the module docstring)."""
+def make_engine(url: str, read_only: bool = False) -> Engine:
+    """A SQLAlchemy engine for the store URL (see the module docstring).
+
+    read_only: a SQLite file is opened read-only (its journal mode and bytes
+    are left as they are; a file that does not exist is an error).
+    """
     if url.startswith("sqlite"):
+        if read_only:
+            path = sqlite_path(url)
+            return create_engine("sqlite://", creator=lambda: sqlite3.connect(
+                f"file:{path}?mode=ro", uri=True, timeout=BUSY_TIMEOUT_S, check_same_thread=False))
         engine = create_engine(url, connect_args={"timeout": BUSY_TIMEOUT_S})
 
         @event.listens_for(engine, "connect")
@@ -68,12 +77,18 @@ def current_revision(connection: Connection) -> str | None:
     return MigrationContext.configure(connection).get_current_revision()
 
 
-def upgrade_to_head(engine: Engine) -> None:
-    """Create or upgrade the store's tables to the newest revision, under the write lock."""
+def upgrade_to_head(engine: Engine, read_only: bool = False) -> None:
+    """Create or upgrade the store's tables to the newest revision, under the write lock.
+
+    read_only: only check that the store is at the newest revision (RuntimeError if not).
+    """
     head = head_revision()
     with engine.connect() as probe:
-        if inspect(probe).has_table("alembic_version") and current_revision(probe) == head:
+        found = current_revision(probe) if inspect(probe).has_table("alembic_version") else None
+        if found == head:
             return
+        if read_only:
+            raise RuntimeError(f"the store's schema is at revision {found or 'none'}, this fitkit reads {head}")
     from alembic import command
     with engine.begin() as connection:
         if engine.dialect.name == "postgresql":

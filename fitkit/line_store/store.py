@@ -144,25 +144,34 @@ class LineStore:
         self.close()
 
 
-def open_store(location: str) -> LineStore:
+def open_store(location: str, read_only: bool = False) -> LineStore:
     """Open (creating or upgrading it when needed) the store at ``location``: a
     SQLite file name or a SQLAlchemy / postgresql:// URL (fitkit.line_store.location).
+
+    read_only: for reading only; a SQLite file is left byte for byte as it is,
+    and a store that is missing or at another schema revision is a StoreError.
 
     Raises OptionError for an unsupported URL, StoreError when the database
     cannot be reached or its schema cannot be brought up to date.
     """
     url = store_url(location)
     try:
-        ensure_parent_folder(url)
-        engine = make_engine(url)
+        if not read_only:
+            ensure_parent_folder(url)
+        engine = make_engine(url, read_only)
     except (OSError, SQLAlchemyError, ImportError) as err:
         raise StoreError(f"cannot open the store ({err})", path=describe_store(url),
                          hint="check the file name or URL; PostgreSQL needs: pip install 'fitkit[postgres]'") \
             from None
     for attempt in range(APPEND_ATTEMPTS):
         try:
-            upgrade_to_head(engine)
+            upgrade_to_head(engine, read_only)
             break
+        except RuntimeError as err:
+            engine.dispose()
+            raise StoreError(f"cannot read the store ({err})", path=describe_store(url),
+                             hint="store into it once with this fitkit (fitkit batch --store) to upgrade it") \
+                from None
         except SQLAlchemyError as err:
             if attempt == APPEND_ATTEMPTS - 1 or not (_transient(err) or isinstance(err, IntegrityError)):
                 engine.dispose()

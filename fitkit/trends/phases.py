@@ -20,7 +20,10 @@ import numpy as np
 from .charts import (CUSUM_H, CUSUM_K, EWMA_L, EWMA_LAMBDA, MIN_BASELINE, ProcessBaseline, cusum, ewma,
                      first_signal, process_baseline)
 
-DEFAULT_BASELINE = 30
+#: Boards of a baseline. With fewer, the centre and sigma estimated from them are uncertain
+#: enough to shorten the in-control run length of EWMA and CUSUM markedly (the effect of
+#: estimated parameters: Jones, Champ and Rigdon, Technometrics 2004; from memory).
+DEFAULT_BASELINE = 50
 
 
 @dataclass(frozen=True)
