@@ -75,19 +75,21 @@ class LineStore:
         return 0  # pragma: no cover - the loop returns or raises
 
     def _append_once(self, entries: Sequence[StoredCapture]) -> int:
+        """One transaction: the capture rows in one multi-row INSERT (those already stored are
+        skipped by the unique key), then the new captures' values in one more."""
         stored_at = datetime.now().replace(microsecond=0)
-        new = 0
-        statement = _insert_ignoring_duplicates(self.engine.dialect.name).returning(captures.c.id)
+        statement = _insert_ignoring_duplicates(self.engine.dialect.name).returning(
+            captures.c.id, captures.c.file_sha256, captures.c.analysis)
+        by_key = {}
+        for entry in entries:  # the first of two entries with one key wins, as in separate appends
+            by_key.setdefault((entry.facts.file_sha256, entry.analysis), entry)
         with self.engine.begin() as conn:
-            for entry in entries:
-                capture_id = conn.execute(statement, entry.row(stored_at)).scalar()
-                if capture_id is None:
-                    continue  # already stored
-                new += 1
-                if entry.values:
-                    conn.execute(capture_values.insert(),
-                                 [dict(v.row(), capture_id=capture_id) for v in entry.values])
-        return new
+            new = conn.execute(statement, [e.row(stored_at) for e in by_key.values()]).all()
+            values = [dict(v.row(), capture_id=row.id)
+                      for row in new for v in by_key[(row.file_sha256, row.analysis)].values]
+            if values:
+                conn.execute(capture_values.insert(), values)
+        return len(new)
 
     def has(self, file_sha256: str, analysis: str) -> bool:
         """True when this file under this analysis is already stored."""
