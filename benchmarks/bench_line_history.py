@@ -32,6 +32,7 @@ Results go to benchmarks/results/line_history.json and line_history.md.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import tempfile
 import time
@@ -192,7 +193,8 @@ def main(argv=None) -> None:
     parser.add_argument("--count", type=int, default=2000, help="captures written per throughput cell")
     args = parser.parse_args(argv)
     store = args.store or str(HERE.parent / "demo_captures" / "demo_line.sqlite")
-    data = {"machine": machine(), "load_before": load_average(), "store": store, "runs": args.runs,
+    shown = os.path.relpath(store, HERE.parent) if Path(store).is_absolute() else store
+    data = {"machine": machine(), "load_before": load_average(), "store": shown, "runs": args.runs,
             "throughput_count": args.count}
     if Path(store).exists():
         data["demo"], data["sizes"] = demo_detections(store)
