@@ -22,6 +22,7 @@ COMMANDS: dict[str, tuple[str, str, str]] = {
     "circuits": ("fitkit.cli.circuits_cmd", "circuits", "List the circuit topologies fitkit knows."),
     "check": ("fitkit.cli.check_cmd", "check", "Check a board's capture against its design file."),
     "batch": ("fitkit.cli.batch_cmd", "batch", "Fit or check a folder of captures."),
+    "trend": ("fitkit.cli.trend_cmd", "trend", "Is the line drifting? Charts and capability from a results store."),
 }
 
 

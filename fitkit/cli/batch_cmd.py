@@ -9,6 +9,7 @@ import click
 from .arguments import check_model
 from .capture_options import CaptureOptions, capture_options
 from .signals import echo_while_read, terminate_as_interrupt
+from .store_options import StoreRequest, store_options
 
 #: Problem lines printed at the end; the rest are in problems.csv.
 MAX_PROBLEM_LINES = 20
@@ -66,8 +67,14 @@ def _announce(plan):
                    "the workers must see the files under the same paths).")
 @click.option("--redo", is_flag=True, help="Process again the captures already done in OUT.")
 @click.option("--no-plots", is_flag=True, help="Skip the distribution plots.")
+@click.option("--follow", is_flag=True,
+              help="Keep running: process each new capture in PATHS once its size and time stamp have "
+                   "stopped changing, until Ctrl-C or SIGTERM.")
+@click.option("--poll", "poll_s", type=click.FloatRange(min=0.1), default=2.0, show_default=True,
+              metavar="SECONDS", help="With --follow: seconds between looks at the folder.")
+@store_options
 @capture_options
-def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plots, **kwargs):
+def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plots, follow, poll_s, **kwargs):
     """Fit (or, with --design, check) every capture in PATHS: files, folders
     (searched recursively for .csv .txt .tsv .dat .asc .prn .npz .parquet) and
     glob patterns such as "line3/*.csv".
@@ -79,6 +86,10 @@ def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plo
     distribution plot per quantity. A re-run skips the captures already done
     (same file content, settings and fitkit version) unless --redo, so an
     interrupted batch resumes where it stopped.
+
+    With --store, every capture's outcome is also appended to the line's
+    results store (see `fitkit trend`); with --follow, PATHS are watched and
+    each capture is processed once the instrument has finished writing it.
 
     \b
     Exit status, by the first rule that applies:
@@ -101,10 +112,15 @@ def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plo
         load_design(design)  # a design that cannot be used stops the batch before any work
     else:
         check_model(model)
+    store_request = StoreRequest.pop(kwargs)
     settings = BatchSettings(model=model, input=options.input_channel, output=options.output_channel,
                              average=average, design=design,
                              design_hash=content_hash(design) if design else None,
                              read_options=options.load_kwargs())
+    if follow:
+        from .batch_store import follow_batch
+        return follow_batch(paths, settings, out_dir, workers=workers, poll_s=poll_s, request=store_request)
+    store = store_request.open()
     with output_folder_lock(out_dir), terminate_as_interrupt():  # the summary and plots too
         try:
             run = run_batch(paths, settings, out_dir, workers=workers, redo=redo, cluster=cluster,
@@ -114,6 +130,10 @@ def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plo
                        "run the same command again to resume", err=True)
             raise
         written = write_summary(run, out_dir)
+        if store is not None:
+            from .batch_store import store_batch_run
+            with store:
+                store_batch_run(store_request, store, run, settings, out_dir)
         plots = []
         if not no_plots:
             from ..batch.summary import batch_limits

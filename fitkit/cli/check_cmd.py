@@ -9,6 +9,7 @@ from .. import exitcodes
 from .arguments import check_distinct_inputs, time_option
 from .capture_options import CaptureOptions, capture_options
 from .output_options import OutputRequest, emit_result, output_options
+from .store_options import StoreRequest, store_check, store_options
 
 #: More boards than this for the envelope takes minutes and narrows nothing a bench can see.
 MAX_TRIALS = 100_000
@@ -28,6 +29,7 @@ STATUS = {"pass": exitcodes.OK, "fail": exitcodes.FAIL, "inconclusive": exitcode
 @click.option("--seed", type=click.IntRange(0, 2**32 - 1), default=0, show_default=True, help="Seed of the envelope's random draws.")
 @click.option("--json", "as_json", is_flag=True, help="Print the result as one JSON object.")
 @output_options
+@store_options
 def check(file: str, out_file: str | None, design_path: str, edge_time: str | None, average: bool, trials: int,
           seed: int, as_json: bool, **kwargs) -> int:
     """Check the board captured in FILE against DESIGN.toml: pass, fail or inconclusive.
@@ -57,10 +59,12 @@ def check(file: str, out_file: str | None, design_path: str, edge_time: str | No
     options.validate()
     check_distinct_inputs(file, out_file)
     t_edge = time_option(edge_time, "--edge-time")
+    store_request = StoreRequest.pop(kwargs)
     design = load_design(design_path)
     capture = options.load(file, out_file)
     inp, out = options.roles(capture)
     result = check_capture(capture, design, input=inp, output=out, average=average, envelope_trials=trials,
                            seed=seed, edge_time=t_edge)
     emit_result(outputs, result, capture, as_json)
+    store_check(store_request, file, design_path, result)
     return STATUS[result.verdict]
