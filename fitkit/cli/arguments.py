@@ -11,11 +11,16 @@ from ..units import parse_value
 
 
 def check_model(model: str, option: str = "--model") -> None:
-    """``auto`` or the name of a known form."""
-    from ..forms import FORMS
-    if model != "auto" and model not in FORMS:
+    """``auto`` or the name of a known form (NAME-with-delay included, see fitkit.forms.get_form)."""
+    from ..forms import DELAY_SUFFIX, FORMS, get_form
+    if model == "auto":
+        return
+    try:
+        get_form(model)
+    except OptionError:
         raise OptionError(f"{option} {model!r} is not a form fitkit knows",
-                          hint="use auto or one of: " + ", ".join(sorted(FORMS)))
+                          hint="use auto or one of: " + ", ".join(sorted(FORMS))
+                               + f" (each also as NAME{DELAY_SUFFIX})") from None
 
 
 def check_distinct_inputs(file: str, out_file: str | None) -> None:

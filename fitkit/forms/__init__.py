@@ -67,4 +67,4 @@ def get_form(name: str) -> Form:
                       hint="run `fitkit forms` to list them")
 
 
-__all__ = ["Form", "ParamSpec", "FORMS", "get_form", "real_pole_form", "delayed", "pulse_response"]
+__all__ = ["Form", "ParamSpec", "FORMS", "DELAY_SUFFIX", "get_form", "real_pole_form", "delayed", "pulse_response"]
