@@ -23,18 +23,19 @@ not offer one without an input channel).
 When the data show no delay. The delay is positive and fitted as its log, so
 a response that starts at the edge drives log(delay) towards minus infinity:
 the model's dependence on it vanishes like the delay itself (exponentially in
-the fitted coordinate), the Jacobian column goes to zero and the search
-either stops there with a singular or huge log standard error, or runs out of
-its budget in a flat valley. Either way the delay is then reported "not
-determined" (its relative standard error exceeds the engine's limit): read it
-as "no dead time resolved", an upper limit of about the sample interval. The
-starting guesses never start the search below a fifth of a sample interval
-(:data:`SMALLEST_DELAY`), which keeps a search that finds no delay short.
+the fitted coordinate), the Jacobian column goes to zero, and the engine's
+search stops there or in its flat-valley rule (fitkit.fitting.engine). The
+delay is then reported "not determined" (its log standard error exceeds the
+engine's limit), or, when the data bound it, with an interval that lies below
+one sample interval: read either as "no dead time resolved" (checked in
+tests/test_forms_wrappers.py). The trial delays never go below a fifth of a
+sample interval (:data:`SMALLEST_DELAY`).
 
 The transfer function returned is the rational part H_form(s): exp(-s delay)
-has no rational form (a Pade approximant would be an approximation, and the
-engine uses transfer functions only for derived quantities, where the delay
-changes nothing but the phase). Derived quantities are the form's own (times
+has no rational form (a Pade approximant would be an approximation). fitkit
+uses a form's transfer function for derived quantities (the delay changes
+only the phase) and to map a fit to parts (fitkit.partfit), where a dead
+time is no part; the fit itself uses unit_step. Derived quantities are the form's own (times
 counted from the end of the dead time) plus ``delay``.
 """
 
