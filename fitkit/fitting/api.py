@@ -18,15 +18,16 @@ from ..capture import Capture
 from ..conditioning.analysis import BELOW_ONE_CODE
 from ..conditioning.segment import StepSegment
 from ..errors import FitError, FitkitError
-from ..forms import FORMS, get_form
+from ..units import format_value
+from ..forms import FORMS, delayed, get_form
 from ..forms.base import Form
-from ..results import Estimate, FitDiagnostics, FitResult, FittedSegment
+from ..results import CandidateScore, Estimate, FitDiagnostics, FitResult, FittedSegment
 from .adequacy import assess
 from .engine import FormFit, fit_form, sample_interval
 from .estimates import derived_estimates, level_estimates, shape_estimates
 from .noise_record import NoiseRecord
 from .quantised import ROUNDED_GAUSSIAN, quantised_refit
-from .selection import (CRITERION, FALLBACK_CANDIDATES, Candidate, admissibility, choose,
+from .selection import (CRITERION, MARGIN, rms_residual, FALLBACK_CANDIDATES, Candidate, admissibility, choose,
                         default_candidates, needs_fallback)
 
 #: Above this many samples per segment, candidate forms are compared on bins
@@ -112,6 +113,9 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
             tried = {c.form.name for c in cands}
             queue = [FORMS[n] for n in FALLBACK_CANDIDATES if n in FORMS and n not in tried]
     chosen, scores, reason, sel_warn = choose(cands, dt)
+    if candidates is None:
+        chosen, scores, reason, sel_warn = _with_dead_time(chosen, scores, reason, sel_warn, cands, segments,
+                                                         dt, select_kwargs)
     fixes = _alternative_forms(chosen, cands, segments)
     final = chosen.fit
     if coarse:
@@ -306,6 +310,58 @@ def _fitted_segments(ff: FormFit) -> tuple[FittedSegment, ...]:
         out.append(FittedSegment(time=time, data=data, fitted=sc.volt_origin + piece * sc.volt_unit,
                                  edge_time=seg.edge_time, direction=seg.direction))
     return tuple(out)
+
+
+def _with_dead_time(chosen: Candidate, scores, reason: str, sel_warn: list[str], cands: list[Candidate],
+                    segments: Sequence[StepSegment], dt: float, kwargs: dict):
+    """In measured-input mode, the chosen form behind a dead time when the data ask for it.
+
+    A logger that samples its output a period after its input, or a transport
+    delay, shifts the whole response; without a delay parameter a fit explains
+    the shift with a slower pole (a second time constant several times too
+    long). The delayed variant of the chosen form (and of its simpler
+    admissible rivals) is fitted; it is kept when it lowers the criterion by
+    more than the margin and its shape and delay are determined. The other
+    candidates' scores stay as they were.
+    """
+    if chosen.fit is None or not chosen.fit.joint.measured_input:
+        return chosen, scores, reason, sel_warn
+    inflation = min(c.fit.correction.variance_ratio for c in cands if c.admissible and c.fit is not None)
+    base = chosen.fit.aicc(inflation)
+    rivals = [chosen.form] + [c.form for c in cands if c.admissible and c.fit is not None and c is not chosen
+                              and c.fit.n_parameters <= chosen.fit.n_parameters]
+    best = None
+    for form in rivals:
+        wrapped = delayed(form)
+        try:
+            ff = fit_form(segments, wrapped, **kwargs)
+        except FitError:
+            continue
+        if not ff.converged:
+            continue
+        shape, _ = shape_estimates(ff, "covariance")
+        ok, _why = admissibility(wrapped, shape, dt)
+        delay = shape.get("delay")
+        if not ok or delay is None or delay.ci95 is None or not delay.ci95[0] > 0:
+            continue
+        crit = ff.aicc(inflation)
+        if crit < base - MARGIN and (best is None or crit < best[0]):
+            best = (crit, Candidate(wrapped, ff, shape, True, ""))
+    if best is None:
+        return chosen, scores, reason, sel_warn
+    crit, cand = best
+    delay = cand.shape["delay"]
+    reason = (f"{cand.form.name}: the response lags the measured input by a dead time "
+              f"({format_value(delay.value, 's')}), which lowers {CRITERION} by {base - crit:.1f} against "
+              f"{chosen.form.name} without it")
+    note = (f"a dead time of {format_value(delay.value, 's')} between the input and the output (a logger that "
+            "samples its output later than its input, or a transport delay) is fitted; a pole much faster "
+            "than it cannot be told from it")
+    rescored = [dataclasses.replace(sc, delta=sc.criterion - crit, note="" if sc.note == "chosen" else sc.note)
+                for sc in scores]
+    rescored.append(CandidateScore(model=cand.form.name, converged=True, n_parameters=cand.fit.n_parameters,
+                                   criterion=crit, delta=0.0, rms_residual=rms_residual(cand.fit), note="chosen"))
+    return cand, tuple(rescored), reason, list(sel_warn) + [note]
 
 
 def _alternative_forms(chosen: Candidate, candidates: Sequence[Candidate],

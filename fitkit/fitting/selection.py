@@ -88,7 +88,8 @@ def admissibility(form: Form, shape: dict[str, Estimate], sample_interval: float
         if est is not None and lower is not None and est.value <= lower:
             return False, f"{spec.name} = {est.value:.3g} is not above {lower:g}, outside this form's range"
     for est in shape.values():
-        if est.unit == "s" and est.value < sample_interval:
+        # a dead time shorter than a sample is measurable against a measured input
+        if est.unit == "s" and est.value < sample_interval and est.name != "delay":
             return False, f"{est.name} = {est.value:.3g} s {SHORTER_THAN_SAMPLE}"
         if est.unit == "Hz" and est.value > 0.5 / sample_interval:
             return False, f"{est.name} is above the Nyquist frequency"
@@ -151,7 +152,7 @@ def choose(candidates: Sequence[Candidate], sample_interval: float = math.nan
             model=c.form.name, converged=ok,
             n_parameters=c.fit.n_parameters if c.fit is not None else 0,
             criterion=crit.get(c.form.name, math.nan), delta=crit.get(c.form.name, math.nan) - base,
-            rms_residual=_rms(c.fit) if ok else math.nan,
+            rms_residual=rms_residual(c.fit) if ok else math.nan,
             note=("chosen" if c is chosen else c.note or "")))
     return chosen, tuple(scores), reason, warnings
 
@@ -214,5 +215,6 @@ def _set_aside_beyond_range(candidates: Sequence[Candidate]) -> list[Candidate]:
     return out
 
 
-def _rms(ff: FormFit) -> float:
+def rms_residual(ff: FormFit) -> float:
+    """RMS residual per sample (V) of a fit."""
     return math.sqrt(ff.fit.rss / max(ff.fit.n, 1)) * ff.joint.scaling.volt_unit
