@@ -188,11 +188,11 @@ def markdown(data: dict) -> str:
 
 def main(argv=None) -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("--store", help="store of the demo line (default: demo_captures/demo_line.sqlite)")
+    parser.add_argument("--store", help="store of the demo line (default: benchmarks/data/demo_line.sqlite)")
     parser.add_argument("--runs", type=int, default=2000, help="simulated lines per detector setting")
     parser.add_argument("--count", type=int, default=2000, help="captures written per throughput cell")
     args = parser.parse_args(argv)
-    store = args.store or str(HERE.parent / "demo_captures" / "demo_line.sqlite")
+    store = args.store or str(HERE / "data" / "demo_line.sqlite")
     shown = os.path.relpath(store, HERE.parent) if Path(store).is_absolute() else store
     data = {"machine": machine(), "load_before": load_average(), "store": shown, "runs": args.runs,
             "throughput_count": args.count}

@@ -17,7 +17,9 @@ import pytest
 
 from fitkit.line_store import open_store
 
-FIT_OPTIONS = ["--model", "first-order", "--workers", "1", "--no-plots", "--poll", "0.3"]
+FIT_OPTIONS = ["--model", "first-order", "--workers", "1", "--no-plots"]
+#: Poll interval of the follower; the growing file below changes ten times as often.
+POLL_S = 1.0
 
 
 def capture_text(tau: float, seed: int, serial: int) -> str:
@@ -58,29 +60,30 @@ def test_follow_killed_and_restarted_loses_and_duplicates_nothing(tmp_path):
     folder.mkdir()
     for i in range(3):
         (folder / f"board_{1000 + i}.csv").write_text(capture_text(1e-3 * (1 + 0.01 * i), i, 1000 + i))
-    args = ["batch", str(folder), "--out", str(out), "--follow", "--store", str(store), *FIT_OPTIONS]
+    args = ["batch", str(folder), "--out", str(out), "--follow", "--poll", str(POLL_S), "--store", str(store),
+            *FIT_OPTIONS]
     follower = _fitkit(*args)
     try:
         _wait_for(lambda: len(_stored_hashes(store)) == 3)
-        # a capture still being written, in pieces over several polls (0.3 s apart)
+        # a capture still being written, in pieces over several polls
         growing = folder / "board_1003.csv"
         text = capture_text(1.1e-3, 3, 1003)
-        pieces = 15
+        pieces = 40
         with open(growing, "w") as fh:
             for k in range(pieces):
                 fh.write(text[k * len(text) // pieces:(k + 1) * len(text) // pieces])
                 fh.flush()
-                time.sleep(0.15)
+                time.sleep(POLL_S / 10)
         for i in (4, 5):
             (folder / f"board_{1000 + i}.csv").write_text(capture_text(1e-3, i, 1000 + i))
-        time.sleep(0.5)
+        time.sleep(POLL_S / 2)
     finally:
         follower.send_signal(signal.SIGKILL)  # killed hard, at any point of its work
         follower.communicate(timeout=60)
     restarted = _fitkit(*args)
     try:
         _wait_for(lambda: len(_stored_hashes(store)) >= 6)
-        time.sleep(1.0)  # a further poll must add nothing
+        time.sleep(2 * POLL_S)  # further polls must add nothing
     finally:
         restarted.send_signal(signal.SIGTERM)
         stdout, stderr = restarted.communicate(timeout=120)

@@ -119,7 +119,8 @@ def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plo
                              read_options=options.load_kwargs())
     if follow:
         from .batch_store import follow_batch
-        return follow_batch(paths, settings, out_dir, workers=workers, poll_s=poll_s, request=store_request)
+        return follow_batch(paths, settings, out_dir, workers=workers, cluster=cluster, poll_s=poll_s,
+                            request=store_request)
     store = store_request.open()
     with output_folder_lock(out_dir), terminate_as_interrupt():  # the summary and plots too
         try:

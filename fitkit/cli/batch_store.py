@@ -49,7 +49,8 @@ def _follow_progress(done, total, record):
     click.echo(f"{record['status']:<11} {record['file']}", err=True)
 
 
-def follow_batch(paths, settings, out_dir: str, *, workers, poll_s: float, request: StoreRequest) -> int:
+def follow_batch(paths, settings, out_dir: str, *, workers, poll_s: float, request: StoreRequest,
+                 cluster: str | None = None) -> int:
     """Follow the folders in ``paths`` until Ctrl-C or SIGTERM; return the batch exit status of
     everything processed (0 when every capture was fitted or passed)."""
     from ..batch import batch_exit_status, write_summary
@@ -71,7 +72,7 @@ def follow_batch(paths, settings, out_dir: str, *, workers, poll_s: float, reque
             try:
                 with stop_on_terminate():
                     follow_folder(list(paths), settings, out_dir, poll_s=poll_s, on_run=on_run,
-                                  workers=workers, progress=_follow_progress)
+                                  workers=workers, cluster=cluster, progress=_follow_progress)
             except KeyboardInterrupt:
                 pass
         finally:
