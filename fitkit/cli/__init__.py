@@ -59,7 +59,7 @@ def cli() -> None:
     them into component values; checks a board against its design.
 
     Exit statuses: 0 ok/pass, 1 fail, 2 usage error, 3 inconclusive,
-    4 unusable input, 5 fit failed, 70 internal error.
+    4 unusable input, 5 fit failed, 70 internal error, 73 output not written.
     """
 
 
