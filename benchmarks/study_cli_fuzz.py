@@ -126,10 +126,12 @@ def run_case(argv: list[str]) -> tuple[int, str, float]:
     previous = signal.signal(signal.SIGALRM, alarm)
     signal.alarm(60)
     started = time.perf_counter()
-    # file descriptor 2 too: numerical libraries (LAPACK) print there directly
-    saved_fd = os.dup(2)
-    with tempfile.TemporaryFile() as raw_err:
-        os.dup2(raw_err.fileno(), 2)
+    # the file descriptors too: compiled numerical code (LAPACK's error
+    # handler) prints to them directly, past Python's streams
+    saved = {fd: os.dup(fd) for fd in (1, 2)}
+    with tempfile.TemporaryFile() as raw:
+        for fd in saved:
+            os.dup2(raw.fileno(), fd)
         try:
             with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
                 status = run_with_error_handling(cli, argv)
@@ -138,10 +140,11 @@ def run_case(argv: list[str]) -> tuple[int, str, float]:
         finally:
             signal.alarm(0)
             signal.signal(signal.SIGALRM, previous)
-            os.dup2(saved_fd, 2)
-            os.close(saved_fd)
-        raw_err.seek(0)
-        direct = raw_err.read().decode(errors="replace")
+            for fd, copy in saved.items():
+                os.dup2(copy, fd)
+                os.close(copy)
+        raw.seek(0)
+        direct = raw.read().decode(errors="replace")
     return status, err.getvalue() + direct, time.perf_counter() - started
 
 
