@@ -136,3 +136,16 @@ def test_quantised_information_of_the_benchmark():
             direct = float(np.sum(dp[keep] ** 2 / p[keep]))
             assert quantised_information(np.array([m]), sigma, q)[0] == pytest.approx(direct, rel=1e-5)
     assert quantised_information(np.array([0.2]), 3.0, q)[0] == pytest.approx(1 / (9 + 1 / 12))
+
+
+def test_cli_fuzz_study_runs_and_scores_its_cases(tmp_path):
+    # a tiny seeded run (8 cases, all usage or input errors at this seed): the
+    # script runs, writes its JSON and counts what it promises to count
+    proc = subprocess.run([sys.executable, str(BENCH / "study_cli_fuzz.py"), "--cases", "8", "--seed", "5",
+                           "--out", str(tmp_path)], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+    data = json.loads((tmp_path / "cli_fuzz.json").read_text())
+    assert data["cases"] == 8 and sum(data["statuses"].values()) == 8
+    assert set(data["counts"]) == {"internal", "traceback_or_warning", "long_error", "undocumented_status",
+                                   "timeout"}
+    assert data["counts"]["internal"] == 0

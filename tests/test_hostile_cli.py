@@ -186,3 +186,8 @@ def test_a_time_column_in_ms_without_a_unit_is_warned_by_fit(capsys, tmp_path):
     assert status == exitcodes.OK
     assert "milliseconds" in out
     assert "tau " in out and " ms " in out.split("tau ", 1)[1].splitlines()[0]  # 2 ms steps, tau 20 ms
+
+
+def test_a_sample_interval_for_a_file_with_a_time_column_is_said(capsys):
+    status, out, _ = run(capsys, "fit", BOARD, "--sample-interval", "1u")
+    assert status == exitcodes.OK and "--sample-interval ignored" in out

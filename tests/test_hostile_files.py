@@ -154,3 +154,20 @@ def test_a_long_capture_fitted_on_bins_says_so():
     from fitkit.report.text import render_fit_text
     assert "binned" in render_fit_text(result)
     assert "binning" in result.to_dict()["extra"]
+
+
+@pytest.mark.parametrize("ratio, refused", [(1.0, False), (0.5, False), (1.5, False), (10.0, True)])
+def test_one_channel_per_file_at_different_rates(tmp_path, ratio, refused):
+    # the drive (input) file sampled at `ratio` times the response's interval
+    out_t = np.arange(400) * 1e-6
+    in_t = np.arange(int(400 / ratio)) * 1e-6 * ratio
+    inp = write(tmp_path, "in.csv", "Time (s),Vin (V)\n" + "".join(f"{a:.9e},{float(a > 1e-4):.3f}\n" for a in in_t))
+    out = write(tmp_path, "out.csv", "Time (s),Vout (V)\n"
+                + "".join(f"{a:.9e},{1 - np.exp(-max(a - 1e-4, 0) / 2e-5):.6f}\n" for a in out_t))
+    if refused:
+        with pytest.raises(CaptureError, match="edges cannot be placed"):
+            load_capture(inp, second_path=out)
+        return
+    cap = load_capture(inp, second_path=out)
+    resampled = [w for w in cap.warnings if "different rates" in w]
+    assert bool(resampled) == (ratio != 1.0)  # never interpolated without saying so

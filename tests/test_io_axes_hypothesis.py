@@ -154,3 +154,15 @@ def test_repeated_rounded_stamps_name_the_first_repeated_line(digits, seed):
         line = int(repeats[0]) + 1 + 3
         assert any(f"first repeat at line {line}" in w for w in cap.warnings)
     assert np.all(np.abs(cap.time - t) <= 10.0 ** (np.floor(np.log10(t)) - digits + 1))
+
+
+@settings(**SETTINGS)
+@given(bits=st.sampled_from([10, 12, 16]), clipped=st.integers(5, 40), seed=st.integers(0, 1000))
+def test_counts_at_an_adc_end_code_are_called_saturated(bits, clipped, seed):
+    n = 100
+    top = 2 ** bits - 1
+    codes = np.round(np.linspace(0.2, 1.0, n) * top).astype(int)
+    codes[n - clipped:] = top  # a smooth rise into the converter's top code
+    cap = load_capture(_write([f"{i};{c}" for i, c in enumerate(codes)]))
+    assert any(f"the top code of a {bits}-bit converter, for {clipped + (codes[:n - clipped] == top).sum()} samples"
+               in w for w in cap.warnings)

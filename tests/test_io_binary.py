@@ -48,7 +48,10 @@ def test_text_to_npz_to_parquet_keeps_everything(tmp_path):
 def test_foreign_npz_and_parquet(tmp_path):
     np.savez(tmp_path / "plain.npz", t=T, response=VOUT)
     cap = load_capture(tmp_path / "plain.npz")
-    assert cap.channel_names == ("response",) and cap.channel("response").unit == "V"
+    # no unit stored: kept without one, never called volts (issue 14)
+    assert cap.channel_names == ("response",) and cap.channel("response").unit == ""
+    given = load_capture(tmp_path / "plain.npz", sample_interval="2u")
+    assert any("time array 't' is not used" in w for w in given.warnings)
     pd.DataFrame({"time": T, "a": VIN, "b": VOUT}).to_parquet(tmp_path / "plain.parquet")
     cap = load_capture(tmp_path / "plain.parquet")
     assert cap.channel_names == ("a", "b")

@@ -105,6 +105,8 @@ def test_therincourt_data_txt_integer_ms_and_counts():
     assert 2e-3 <= cap.sample_interval <= 3e-3          # milliseconds, not 2.1 s
     assert cap.time[-1] == pytest.approx(ref[0].iloc[-1] * 1e-3, abs=2e-3)
     assert any("milliseconds" in w for w in cap.warnings)  # a guess, so a warning every command shows
+    # SOURCE.md: 49 of 100 rows clipped at 4095 (the 12-bit ADC's top code)
+    assert any("4095, the top code of a 12-bit converter, for 49 samples" in w for w in cap.warnings)
 
 
 @pytest.mark.parametrize("name, rows, first_count", [("data_220nF_100k.txt", 40, 1553),

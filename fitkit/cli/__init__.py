@@ -60,7 +60,8 @@ def cli() -> None:
     them into component values; checks a board against its design.
 
     Exit statuses: 0 ok/pass, 1 fail, 2 usage error, 3 inconclusive,
-    4 unusable input, 5 fit failed, 6 the fit does not describe the capture, 70 internal error.
+    4 unusable input, 5 fit failed, 6 the fit does not describe the capture, 70 internal error,
+    73 output not written.
     """
 
 

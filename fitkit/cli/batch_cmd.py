@@ -94,11 +94,16 @@ def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plo
     \b
     Exit status, by the first rule that applies:
       1   some board failed its design check
-      70  some capture hit a bug in fitkit (or its worker died)
+      70  some capture hit a bug in fitkit (or its worker died twice)
       4   some input is missing, unreadable or holds no usable step
+          (every folder entry named like a capture has a row: a broken link,
+          a link loop, a pipe or an unreadable subfolder is unreadable)
       5   some fit did not converge or determines nothing
       3   some board's check was inconclusive
       0   every capture was fitted (or every board passed)
+    Also 2 for a bad option (before any work), 73 when an output cannot be
+    written, 130 when stopped by Ctrl-C or SIGTERM (finished captures are
+    kept; run the same command again to resume).
     """
     from ..batch import BatchSettings, batch_exit_status, run_batch, summary_frame, write_summary
     from ..batch.discover import content_hash

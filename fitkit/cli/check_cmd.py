@@ -50,6 +50,7 @@ def check(file: str, out_file: str | None, design_path: str, edge_time: str | No
       3  inconclusive: this capture cannot decide (see "to resolve")
       4  unusable input: a capture or design file cannot be read or used
       5  the analysis failed (a fit did not converge)
+      2  a bad option (before any work); 73 an output could not be written
     """
     from ..check import check_capture, load_design
 

@@ -81,6 +81,8 @@ def load_capture(path: str | Path, *, second_path: str | Path | None = None,
 #: Sample intervals accepted from the user, in seconds (a 1 THz sampler to one sample a day).
 MIN_SAMPLE_INTERVAL = 1e-12
 MAX_SAMPLE_INTERVAL = 86_400.0
+#: Largest first-sample time accepted (s): beyond it float64 cannot keep microsecond samples apart.
+MAX_TIME_ORIGIN = 1e6
 
 
 def check_read_options(*, path=None, second_path=None, encoding=None, time_unit=None, value_unit=None,
@@ -142,7 +144,7 @@ def checked_numbers(sample_interval=None, time_origin=None, vertical_scale=None,
         raise OptionError(f"--sample-interval {sample_interval!r} is outside {MIN_SAMPLE_INTERVAL:g} s to "
                           f"{MAX_SAMPLE_INTERVAL:g} s", hint="give the time between samples in seconds, e.g. 1u")
     t0 = _si_option(time_origin, "--time-origin", "s")
-    if t0 is not None and not abs(t0) <= MAX_SAMPLE_INTERVAL * 1e6:
+    if t0 is not None and not abs(t0) <= MAX_TIME_ORIGIN:
         raise OptionError(f"--time-origin {time_origin!r} is not a plausible time", hint="give seconds, e.g. -10u")
     scale = _si_option(vertical_scale, "--vertical-scale", None)
     if scale is not None and (scale == 0 or not abs(scale) <= 1e9):

@@ -131,16 +131,19 @@ def _from_arrays(path: str, arrays: dict[str, np.ndarray], units: dict, meta: di
         raise CaptureError(f"arrays have different lengths {sorted(sizes)}", path=path,
                            hint="every channel must have one value per time sample")
     n = sizes.pop()
+    given_over_time: list[str] = []
     if time_key is not None and sample_interval is None:
         t = numeric[time_key]
         decisions.append(f"time: array {time_key!r}")
     elif sample_interval is not None:
         t = (time_origin or 0.0) + np.arange(n) * float(sample_interval)
         decisions.append(f"time: built from the sample interval {sample_interval:.6g} s (given)")
+        if time_key is not None:
+            given_over_time.append(f"--sample-interval given: the file's time array {time_key!r} is not used")
     else:
         raise CaptureError("no time array ('t' or 'time') in the file", path=path,
                            hint="give the sample interval with --sample-interval")
-    warnings = []
+    warnings = list(given_over_time)
     finite = np.isfinite(t)
     for v in channels.values():
         finite &= np.isfinite(v)
@@ -161,10 +164,10 @@ def _from_arrays(path: str, arrays: dict[str, np.ndarray], units: dict, meta: di
     warnings.extend(checks.value_warnings(channels, path=path))
     chans = []
     for name, v in channels.items():
-        unit, source = (units.get(name) or ["V", ""])[:2] if isinstance(units.get(name), list) else ("V", "")
+        unit, source = (units.get(name) or ["", ""])[:2] if isinstance(units.get(name), list) else ("", "")
         chans.append(Channel(str(name), v, str(unit), str(source)))
     if not units:
-        decisions.append("channel units not stored in the file: taken as volts")
+        decisions.append("channel units not stored in the file: values kept without a unit (not called volts)")
     return Capture(time=t, channels=tuple(chans), metadata={str(k): str(v) for k, v in meta.items()},
                    provenance=Provenance(path=path, data_start_line=None, layout=layout,
                                          decisions=tuple(decisions)),

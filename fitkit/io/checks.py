@@ -169,6 +169,30 @@ def clip_warning(name: str, values: np.ndarray) -> str | None:
     return None
 
 
+#: ADC resolutions whose end codes mark a saturated reading of raw counts.
+ADC_BITS = (8, 10, 12, 14, 16, 24)
+
+
+def full_scale_warning(name: str, values: np.ndarray) -> str | None:
+    """A warning when a channel of raw ADC counts sits at an ADC's end code
+    (2^n - 1 unsigned, 2^(n-1) - 1 or -2^(n-1) signed) for a run of samples: the
+    converter saturated, so those samples are not the signal (however smooth the
+    trace; common practice, no source)."""
+    n = values.size
+    if n < MIN_POINTS:
+        return None
+    need = max(3, int(0.02 * n))
+    hi, lo = float(np.max(values)), float(np.min(values))
+    for bits in ADC_BITS:
+        for label, level in (("top", 2.0 ** bits - 1), ("top", 2.0 ** (bits - 1) - 1),
+                             ("bottom", -(2.0 ** (bits - 1)))):
+            if level in (hi, lo) and longest_run_at(values, level) >= need:
+                count = int(np.count_nonzero(values == level))
+                return (f"channel {name!r} sits at {level:.0f}, the {label} code of a {bits}-bit converter, "
+                        f"for {count} samples: the ADC saturated there and those samples are not the signal")
+    return None
+
+
 def is_flat(values: np.ndarray) -> bool:
     """True when a channel holds a single value (within 1e-12 of its magnitude)."""
     if values.size == 0:

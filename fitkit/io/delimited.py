@@ -153,6 +153,10 @@ def _build_capture(sample: TextSample, shape: TextShape, plan: ReadPlan,
         values[cp.name] = v
         channels.append(Channel(cp.name, v, cp.unit, cp.source_unit))
     warnings.extend(checks.value_warnings(values, path=path))
+    for ch in channels:
+        saturated = checks.full_scale_warning(ch.name, ch.values) if ch.unit == "counts" else None
+        if saturated and not any(f"channel {ch.name!r} sits at" in w for w in warnings):
+            warnings.append(saturated)
     if plan.expected_length and plan.expected_length != n and kept_rows is None:
         warnings.append(f"the header states {plan.expected_length} samples but the file holds {n}"
                         + (": the file may be truncated" if n < plan.expected_length else ""))

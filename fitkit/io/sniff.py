@@ -30,6 +30,7 @@ RUN_TO_START = 5
 
 DELIMITERS = (",", ";", "\t", " ")
 DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", " ": "whitespace"}
+_GIVEN_DELIMITERS = {"tab": "\t", "\\t": "\t", "space": " ", "whitespace": " ", "comma": ",", "semicolon": ";"}
 COMMENT_PREFIXES = ("#", "//", "%")
 
 _NUM = {
@@ -300,13 +301,9 @@ def decide_shape(sample: TextSample, *, delimiter: str | None = None, decimal: s
     tail = content[-TAIL_LINES:]
 
     guessed = delimiter is None
-    if delimiter is None:
-        delimiter = _guess_delimiter(tail)
-        decisions.append(f"delimiter: {DELIMITER_NAMES[delimiter]} (guessed from the data lines)")
-    else:
-        delimiter = {"tab": "\t", "\\t": "\t", "space": " ", "whitespace": " ",
-                     "comma": ",", "semicolon": ";"}.get(delimiter, delimiter)
-        decisions.append(f"delimiter: {DELIMITER_NAMES.get(delimiter, repr(delimiter))} (given)")
+    delimiter = _guess_delimiter(tail) if guessed else _GIVEN_DELIMITERS.get(delimiter, delimiter)
+    decisions.append(f"delimiter: {DELIMITER_NAMES.get(delimiter, repr(delimiter))} "
+                     + ("(guessed from the data lines)" if guessed else "(given)"))
     tail_cells = [split_cells(ln.text, delimiter) for ln in tail]
 
     if decimal is None:
