@@ -210,7 +210,8 @@ def test_an_inadequate_form_is_flagged_by_its_structured_residuals():
     bad = fit_segments([seg], "first-order")
     good = fit_segments([seg], "underdamped")
     assert bad.diagnostics.structured_residual and not good.diagnostics.structured_residual
-    assert any("does not fully describe" in w for w in bad.warnings)
+    assert not bad.describes_data and good.describes_data
+    assert "does not describe this capture" in bad.adequacy.finding
     assert bad.diagnostics.residual_lag1 > 0.5 > abs(good.diagnostics.residual_lag1)
 
 
