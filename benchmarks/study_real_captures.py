@@ -37,7 +37,7 @@ def main(argv: list[str] | None = None) -> int:
         start = time.perf_counter()
         status, data, stderr = run_fitkit(case.path, case.options)
         seconds = time.perf_counter() - start
-        out = judge(case, status, data, stderr)
+        out = judge(case, status, data, stderr.replace(str(case.path), case.file))
         rows.append({"file": case.file, "options": " ".join(case.options), "circuit": case.circuit,
                      "status": status, "form": out.form,
                      "answer": out.answer, "expected": {e.name: [e.low, e.high, e.source] for e in case.expected},

@@ -22,7 +22,7 @@ import pytest
 from check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML, simulate_board
 from fitkit.check import check_capture, loads_design
 from fitkit.io import load_capture
-from reference_paths import REAL_CAPTURES
+from reference_paths import REAL_CAPTURES, needs_real_captures
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "demo_captures"
@@ -131,6 +131,7 @@ def test_good_board_result_shape(demo_results):
 
 # -- the real RL capture against its stated design ----------------------------------------------
 
+@needs_real_captures
 def test_real_rl_capture_fails_against_its_stated_design():
     # SOURCE.md: stated 10 kOhm and 10 mH (L/R = 1 us); the capture decays with about 9 us
     design = loads_design('name = "series RL as stated"\ndrive = "in"\nmeasure = "out"\n[circuit]\ntopology = "rl"\n'

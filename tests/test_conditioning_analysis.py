@@ -21,7 +21,7 @@ import scipy.signal
 from fitkit.capture import Capture
 from fitkit.conditioning import analyse_steps, render_text
 from fitkit.errors import ConditioningError, FitkitError, OptionError
-from reference_paths import REAL_CAPTURES
+from reference_paths import REAL_CAPTURES, needs_real_captures
 
 DT = 1e-6
 REAL = REAL_CAPTURES
@@ -252,6 +252,7 @@ def test_to_dict_is_json_and_text_is_aligned_plain_text():
     assert "\t" not in out and "nan" not in out.lower()
 
 
+@needs_real_captures
 def test_real_rc_ladder_capture_from_a_microcontroller():
     """SOURCE.md: 10 Hz square wave from a DAC, 1 kHz ADC, 51 rising edges, 5,120 rows."""
     pd = pytest.importorskip("pandas")
@@ -269,6 +270,7 @@ def test_real_rc_ladder_capture_from_a_microcontroller():
     assert not any("too short" in f for f in avg.flags)
 
 
+@needs_real_captures
 def test_real_rl_scope_capture_is_one_decaying_spike():
     """SOURCE.md: inductor voltage, coarse 0.08 V steps, decay time constant near 9 us."""
     pd = pytest.importorskip("pandas")

@@ -26,9 +26,10 @@ import pytest
 from fitkit.conditioning.segment import StepSegment
 from fitkit.fitting import fit_model, fit_segments
 from fitkit.forms.first_order import FIRST_ORDER
-from reference_paths import NIST_STRD
+from reference_paths import NIST_STRD, needs_nist_strd
 
 NIST = NIST_STRD
+pytestmark = needs_nist_strd
 
 
 def read_strd(name: str) -> tuple[dict[str, tuple[float, float, float, float]], np.ndarray, np.ndarray]:

@@ -19,9 +19,10 @@ import pytest
 from fitkit.circuits import topology
 from fitkit.io import load_capture
 from fitkit.partfit import POORLY_DETERMINED, fit_circuit
-from reference_paths import REAL_CAPTURES
+from reference_paths import REAL_CAPTURES, needs_real_captures
 
 CAPTURE = REAL_CAPTURES / "rc-ladder-adc-step.csv"
+pytestmark = needs_real_captures
 
 
 @pytest.fixture(scope="module")
