@@ -176,10 +176,6 @@ class Capture:
                        replace(self.provenance, decisions=self.provenance.decisions + tuple(extra)),
                        self.warnings)
 
-    def with_warnings(self, extra: Iterable[str]) -> "Capture":
-        return Capture(self.time, self.channels, self.metadata, self.provenance,
-                       self.warnings + tuple(extra))
-
     def to_dict(self, include_data: bool = False) -> dict[str, Any]:
         """Summary as plain JSON-ready types (arrays only when ``include_data``)."""
         d: dict[str, Any] = {

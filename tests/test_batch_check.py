@@ -11,12 +11,10 @@ import pandas as pd
 import pytest
 
 from fitkit import exitcodes
-from fitkit.batch.runner import check_mode_available
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 from test_batch_support import first_order
 
-pytestmark = pytest.mark.skipif(not check_mode_available(), reason="no board-check layer")
 
 DESIGN = Path(__file__).resolve().parents[1] / "demo_captures" / "designs" / "input_rc_lowpass.toml"
 N = 1500

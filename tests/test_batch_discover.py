@@ -120,14 +120,3 @@ def test_exit_status_follows_the_documented_order(statuses, expected):
 def test_no_inputs_is_an_option_error(tmp_path):
     with pytest.raises(OptionError, match="no inputs"):
         plan_batch([], BatchSettings(), tmp_path / "out")
-
-
-def test_check_mode_without_the_check_layer_is_refused_before_any_work(tmp_path, monkeypatch):
-    import fitkit.batch.runner as runner
-    monkeypatch.setattr(runner, "check_mode_available", lambda: False)  # a fitkit without fitkit.check
-    capture = write_good_first_order(tmp_path / "g.csv", 100e-6, seed=1)
-    design = _touch(tmp_path / "design.toml", "[board]\n")
-    settings = BatchSettings(design=str(design), design_hash=content_hash(design))
-    with pytest.raises(OptionError, match="board check is not available"):
-        plan_batch([capture], settings, tmp_path / "out")
-    assert not (tmp_path / "out").exists()

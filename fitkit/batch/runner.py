@@ -15,8 +15,6 @@ temporary files left in it by a killed run are removed when the next run starts.
 from __future__ import annotations
 
 import hashlib
-import importlib
-import importlib.util
 import json
 import os
 import re
@@ -148,25 +146,11 @@ def _load_done(candidates: Iterable[Path], key: str) -> dict[str, Any] | None:
     return None
 
 
-def check_mode_available() -> bool:
-    """True when this fitkit has the board-check layer (fitkit.check.check_capture)."""
-    if importlib.util.find_spec("fitkit.check") is None:
-        return False
-    try:
-        module = importlib.import_module("fitkit.check")
-    except Exception:  # a broken or half-installed check layer counts as absent
-        return False
-    return callable(getattr(module, "check_capture", None))
-
-
 def plan_batch(paths: Iterable[str | os.PathLike], settings: BatchSettings, out_dir: str | os.PathLike,
                *, redo: bool = False) -> BatchPlan:
     """Find the inputs, hash them, and split them into captures to process and
     captures already done in ``out_dir`` (ignored with ``redo``)."""
     if settings.design:
-        if not check_mode_available():
-            raise OptionError("board check is not available in this version of fitkit",
-                              hint="run the batch without --design to fit only")
         from ..check import load_design
         load_design(settings.design)  # a bad design file is one error now, not one per capture
     out = Path(out_dir)

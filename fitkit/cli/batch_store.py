@@ -9,6 +9,8 @@ from typing import Iterator
 
 import click
 
+from .signals import terminate_as_interrupt
+
 from .store_options import StoreRequest
 
 
@@ -20,18 +22,6 @@ def store_batch_run(request: StoreRequest, store, run, settings, out_dir: str) -
     added = store_batch(store, run, settings, out_dir, request.facts_maker())
     click.echo(f"store: {added} captures added to {store.name}", err=True)
     return added
-
-
-@contextmanager
-def stop_on_terminate() -> Iterator[None]:
-    """SIGTERM stops like Ctrl-C (a KeyboardInterrupt) while inside; the old handler is restored after."""
-    def terminate(signum, frame):
-        raise KeyboardInterrupt
-    previous = signal.signal(signal.SIGTERM, terminate)
-    try:
-        yield
-    finally:
-        signal.signal(signal.SIGTERM, previous)
 
 
 @contextmanager
@@ -70,7 +60,7 @@ def follow_batch(paths, settings, out_dir: str, *, workers, poll_s: float, reque
             click.echo(f"following {', '.join(map(str, paths))} every {poll_s:g} s; "
                        "stop with Ctrl-C or SIGTERM", err=True)
             try:
-                with stop_on_terminate():
+                with terminate_as_interrupt():
                     follow_folder(list(paths), settings, out_dir, poll_s=poll_s, on_run=on_run,
                                   workers=workers, cluster=cluster, progress=_follow_progress)
             except KeyboardInterrupt:

@@ -178,10 +178,6 @@ def running_mean(y: np.ndarray, k: int) -> np.ndarray:
     return (c[k:] - c[:-k]) / k
 
 
-def log_grid(lo: float, hi: float, n: int) -> np.ndarray:
-    """n points spaced evenly in log between lo and hi (both > 0)."""
-    return np.geomspace(lo, hi, n)
-
 
 def rise_time_scale(t_rel: np.ndarray, y_norm: np.ndarray) -> float:
     """A robust first guess of the response's time scale in seconds.

@@ -84,10 +84,6 @@ class QuantityRow:
     def label(self) -> str:
         return label_for(self.name)
 
-    @property
-    def shown_as_number(self) -> bool:
-        """True when the value may be printed: determined and finite."""
-        return is_reportable(self.estimate)
 
 
 def is_reportable(est: Estimate) -> bool:
