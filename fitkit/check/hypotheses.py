@@ -117,9 +117,12 @@ def fit_fixed(design: Design, segments: Sequence[StepSegment], values: Mapping[s
 
 def fit_free(design: Design, segments: Sequence[StepSegment], free: Sequence[str],
              starts: Sequence[Mapping[str, float]], measured: bool, *, kind: str,
-             held: Mapping[str, float] | None = None, file: str = "") -> HypothesisFit | None:
+             held: Mapping[str, float] | None = None, file: str = "",
+             intervals: str = "covariance") -> HypothesisFit | None:
     """The parts ``free`` fitted by the engine from each start, others at nominal (or ``held``).
 
+    intervals: the engine's interval method; "covariance" ranks hypotheses quickly,
+    ``final_intervals`` refits the leaders with "auto" (profile likelihood where needed).
     None when the capture does not determine them together or no start converges.
     """
     free = tuple(free)
@@ -129,7 +132,8 @@ def fit_free(design: Design, segments: Sequence[StepSegment], free: Sequence[str
         if set(problem.fitted) != set(free):
             return None
         with np.errstate(all="ignore"):
-            fits, _ = direct_fits(segments, problem, starts, measured_input=measured, file=file)
+            fits, _ = direct_fits(segments, problem, starts, measured_input=measured, file=file,
+                                  intervals=intervals)
     except FIT_ERRORS:
         return None
     if not fits:
@@ -166,6 +170,23 @@ def _preferred(a: HypothesisFit, b: HypothesisFit) -> bool:
     if a.runaway != b.runaway:
         return not a.runaway
     return a.rss < b.rss
+
+
+def final_intervals(design: Design, segments: Sequence[StepSegment], h: HypothesisFit, measured: bool,
+                    file: str = "") -> HypothesisFit:
+    """A ranked hypothesis refitted from its own values with the engine's full interval
+    method (profile likelihood where the sum of squares is asymmetric), as `fit` reports."""
+    if h.kind not in ("single part", "two parts") or h.runaway:
+        return h
+    free = tuple(p for p in h.parts) + tuple(h.held)
+    start = {**dict(h.values), **dict(h.held)}
+    again = fit_free(design, segments, free, [start], measured, kind=h.kind, file=file, intervals="auto")
+    if again is None or again.runaway:
+        return h
+    estimates = {p: again.estimates[p] for p in h.parts}
+    return HypothesisFit(h.kind, h.parts, {p: e.value for p, e in estimates.items()}, estimates, again.rss,
+                         again.n, again.n_parameters, again.result, False,
+                         {p: again.values[p] for p in h.held})
 
 
 def within_tolerance_refit(design: Design, segments: Sequence[StepSegment], single: HypothesisFit,
