@@ -4,6 +4,7 @@ kind x time unit x ADC bits, plus nominal boards of each kind.
     python benchmarks/bench_check.py                 # the full grid (hours on two cores)
     python benchmarks/bench_check.py --sample 24     # a reproducible random sample of the grid
     python benchmarks/bench_check.py --sample 24 --budget 240   # ... stopping after 240 s
+    python benchmarks/bench_check.py --kinds "measured input,output only" --sample 40
 
 Faults: a decade low, the neighbouring E24 value up, drifted 30 % low, and two
 parts of one kind with different nominal values swapped. Capture kinds: a
@@ -160,9 +161,12 @@ def main() -> None:
     parser.add_argument("--sample", type=int, default=0, help="check a random sample of this many cells (0: all)")
     parser.add_argument("--budget", type=float, default=0.0, help="stop after this many seconds (0: none)")
     parser.add_argument("--seed", type=int, default=0)
+    parser.add_argument("--kinds", default=",".join(KINDS), help="capture kinds, comma-separated")
     args = parser.parse_args()
+    kinds = [k.strip() for k in args.kinds.split(",")]
     cells = grid()
-    chosen = random.Random(args.seed).sample(cells, args.sample) if args.sample else cells
+    pool = [c for c in cells if c[3] in kinds]
+    chosen = random.Random(args.seed).sample(pool, min(args.sample, len(pool))) if args.sample else pool
     rows, start = [], time.perf_counter()
     with tempfile.TemporaryDirectory() as tmp:
         for i, cell in enumerate(chosen):

@@ -8,7 +8,7 @@ capture sees it; design.analysed_circuit) with some parts changed:
 * "single part": one part free, every other part at nominal;
 * "two parts": two parts free.
 
-Free parts are fitted by fitkit.partfit's direct fit (the circuit wrapped as a
+Free parts are fitted by fitkit.part_values's direct fit (the circuit wrapped as a
 form and handed to fitkit.fitting.fit_segments), so the edge time, delay,
 levels, starts, correlated-residual correction and intervals are exactly
 those of `fitkit fit --topology`. Every hypothesis is scored on the same
@@ -33,8 +33,8 @@ from ..conditioning.segment import StepSegment
 from ..errors import CircuitError, FitError
 from ..fitting import fit_segments
 from ..fitting.information import corrected_aic
-from ..partfit.direct import direct_fits, scaled_circuit_form
-from ..partfit.problem import prepare_problem
+from ..part_values.direct import direct_fits, scaled_circuit_form
+from ..part_values.problem import prepare_problem
 from ..results import Estimate, FitResult
 from .design import Design, analysed_circuit
 
