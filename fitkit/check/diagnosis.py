@@ -268,6 +268,8 @@ def diagnose(design: Design, segments: Sequence[StepSegment], *, file: str = "",
     top = hyps[0].aicc
     hyps = [final_intervals(design, segments, h, measured, file) if factor * (h.aicc - top) <= TIE_EVIDENCE else h
             for h in hyps]
+    hyps.sort(key=_rank_key)
+    top = hyps[0].aicc
     suspects, leaders = [], []
     for h in hyps:
         evidence = factor * (h.aicc - top)
