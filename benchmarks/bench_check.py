@@ -1,71 +1,198 @@
-"""Board-check fault diagnosis study: every library topology, every part, three faults, several seeds.
+"""Board-check study over the grid of issue 16: topology x part x fault kind x capture
+kind x time unit x ADC bits, plus nominal boards of each kind.
 
-    python benchmarks/bench_check.py [--seeds N]
+    python benchmarks/bench_check.py                 # the full grid (hours on two cores)
+    python benchmarks/bench_check.py --sample 24     # a reproducible random sample of the grid
+    python benchmarks/bench_check.py --sample 24 --budget 240   # ... stopping after 240 s
+    python benchmarks/bench_check.py --kinds "measured input,output only" --sample 40
 
-Writes benchmarks/results/check.json and check.md: for each fault kind, the
-share of boards whose wrong part is the first suspect or among the tied
-leaders, the share whose implied value's 95 % interval holds the truth, and
-the mean time per diagnosis. The boards come from tests/check_simulator.py
-(closed-form transfer functions simulated with scipy.signal.lsim; 3 mV rms
-band-limited noise; 10-bit quantisation; 1,000 samples; input and output channels).
+Faults: a decade low, the neighbouring E24 value up, drifted 30 % low, and two
+parts of one kind with different nominal values swapped. Capture kinds: a
+step with the input pad measured, the output alone, and a square wave (four
+edges, input measured). Time units: the capture is written as CSV with its
+time column in s, ms or us (the unit in the header) and read back by
+fitkit's reader. ADC: 8 or 12 bits over the scope's vertical range. Boards
+come from tests/check_simulator.py (closed-form transfer functions from
+circuit textbooks simulated with scipy.signal.lsim, 3 mV rms band-limited
+noise), independent of fitkit's circuit code.
+
+Figures per capture kind: the share of faulty boards whose wrong part is the
+first suspect or a tied leader (or whose swap is named), the share whose
+implied value's 95 % interval holds the truth, the share of nominal boards
+that fail or list a part outside, the number of reported values at a search
+bound, and the mean seconds per check. Writes benchmarks/results/check.json
+and check.md.
 """
 
 from __future__ import annotations
 
 import argparse
+import itertools
 import json
+import math
+import random
 import sys
+import tempfile
 import time
 from pathlib import Path
+
+import numpy as np
+from scipy import signal
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "tests"))
 
-from check_simulator import simulate_board  # noqa: E402
-from test_check_diagnosis import CASES, design_for, faulty_value  # noqa: E402
+from check_simulator import closed_form_tf  # noqa: E402
+from test_check_diagnosis import design_for, faulty_value  # noqa: E402
 
-from fitkit.check.diagnosis import diagnose  # noqa: E402
-from fitkit.conditioning import analyse_steps  # noqa: E402
+from fitkit.check import check_capture  # noqa: E402
+from fitkit.check.hypotheses import PLAUSIBLE_SPAN  # noqa: E402
+from fitkit.circuits import TOPOLOGIES  # noqa: E402
+from fitkit.io import load_capture  # noqa: E402
+
+FAULTS = ("decade", "neighbour", "drift", "swap")
+KINDS = ("measured input", "output only", "square wave")
+UNITS = {"s": 1.0, "ms": 1e-3, "us": 1e-6}
+BITS = (8, 12)
+NOISE = 3e-3
+
+
+def grid() -> list[tuple]:
+    """Every cell: (topology, fault, parts, capture kind, time unit, bits)."""
+    cells = []
+    for topo, t in TOPOLOGIES.items():
+        parts = [(p, k) for p, k, _, _ in t.parts if k != "amplifier"]
+        design = design_for(topo)
+        faulty = [(f, (p,)) for p, _ in parts for f in FAULTS[:3]]
+        faulty += [("swap", (a, b)) for (a, ka), (b, kb) in itertools.combinations(parts, 2)
+                   if ka == kb and abs(design.parts[a].nominal / design.parts[b].nominal - 1) > 0.01]
+        for (fault, which), kind, unit, bits in itertools.product(faulty + [("nominal", ())], KINDS, UNITS, BITS):
+            cells.append((topo, fault, which, kind, unit, bits))
+    return cells
+
+
+def board_values(topo: str, fault: str, which: tuple) -> dict[str, float]:
+    values = design_for(topo).nominal_values()
+    if fault == "swap":
+        a, b = which
+        values[a], values[b] = values[b], values[a]
+    elif fault != "nominal":
+        values[which[0]] = faulty_value(values[which[0]], fault)
+    return values
+
+
+def simulate(topo: str, values: dict[str, float], kind: str, bits: int, seed: int):
+    """(time s, input V, output V): a 1 V step or a four-edge square wave, scope noise and ADC."""
+    num, den = closed_form_tf(topo, values)
+    slow = 1.0 / np.min(np.abs(np.roots(den).real))
+    rng = np.random.default_rng(seed)
+    if kind == "square wave":
+        half = 7 * slow
+        t = np.linspace(-0.1 * half, 4 * half, 4000)
+        u = ((np.floor(np.maximum(t, 0) / half) % 2 == 0) & (t >= 0)).astype(float)
+    else:
+        t = np.linspace(-0.7 * slow, 6.3 * slow, 1000)
+        u = (t >= 0).astype(float)
+    _, y, _ = signal.lsim(signal.lti(num, den), u, t - t[0])
+    b, a = signal.butter(2, 0.2)
+
+    def scope(x):
+        lo, hi = min(-1.2, 1.2 * x.min() - 0.1), max(1.2, 1.2 * x.max() + 0.1)
+        w = signal.lfilter(b, a, rng.normal(0, 1, x.size))
+        lsb = (hi - lo) / 2 ** bits
+        return np.clip(np.round((x + NOISE * w / w.std()) / lsb) * lsb, lo, hi)
+    return t, scope(u), scope(y)
+
+
+def write_capture(path: Path, t, u, y, kind: str, unit: str) -> None:
+    columns = [t / UNITS[unit], y] if kind == "output only" else [t / UNITS[unit], u, y]
+    header = f"time ({unit}),output (V)" if kind == "output only" else f"time ({unit}),input (V),output (V)"
+    np.savetxt(path, np.column_stack(columns), delimiter=",", header=header, comments="", fmt="%.9g")
+
+
+def run_cell(cell: tuple, seed: int, folder: Path) -> dict:
+    topo, fault, which, kind, unit, bits = cell
+    values = board_values(topo, fault, which)
+    path = folder / f"board_{seed}.csv"
+    write_capture(path, *simulate(topo, values, kind, bits, seed), kind, unit)
+    capture = load_capture(path)
+    roles = {} if kind == "output only" else {"input": "input", "output": "output"}
+    t0 = time.perf_counter()
+    try:
+        r = check_capture(capture, design_for(topo), envelope_trials=40, **roles)
+    except Exception as exc:  # noqa: BLE001 - a study records every outcome
+        return {"cell": list(map(str, cell)), "error": f"{type(exc).__name__}: {exc}"}
+    out = {"cell": list(map(str, cell)), "seconds": time.perf_counter() - t0, "verdict": r.verdict,
+           "at_bound": sum(1 for s in r.suspects if s.value is not None and s.nominal
+                           and abs(math.log(s.value / s.nominal)) >= math.log(PLAUSIBLE_SPAN))}
+    if fault == "nominal":
+        out["flagged"] = r.verdict == "fail" or any(c.verdict == "outside" for c in r.components)
+        return out
+    leaders = [s for s in r.suspects if s.tied]
+    if fault == "swap":
+        out["leads"] = any(s.kind == "swap" and set(s.parts) == set(which) for s in leaders)
+        return out
+    part = which[0]
+    lead = next((s for s in leaders if s.parts == (part,)), None)
+    out["leads"] = lead is not None
+    out["holds"] = bool(lead is not None and lead.ci95 and lead.ci95[0] <= values[part] <= lead.ci95[1])
+    return out
+
+
+def summarise(rows: list[dict]) -> dict:
+    table = {}
+    for kind in KINDS:
+        mine = [r for r in rows if r["cell"][3] == kind and "error" not in r]
+        faulty = [r for r in mine if r["cell"][1] != "nominal"]
+        single = [r for r in faulty if r["cell"][1] != "swap"]
+        nominal = [r for r in mine if r["cell"][1] == "nominal"]
+        share = lambda xs, key: (sum(bool(x.get(key)) for x in xs) / len(xs)) if xs else None  # noqa: E731
+        table[kind] = {"faulty": len(faulty), "right_part_leads": share(faulty, "leads"),
+                       "interval_holds_truth": share(single, "holds"), "nominal": len(nominal),
+                       "nominal_flagged": share(nominal, "flagged"),
+                       "values_at_bound": sum(r["at_bound"] for r in mine),
+                       "errors": sum(1 for r in rows if r["cell"][3] == kind and "error" in r),
+                       "seconds_per_check": (sum(r["seconds"] for r in mine) / len(mine)) if mine else None}
+    return table
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--seeds", type=int, default=3, help="simulated boards per case")
+    parser.add_argument("--sample", type=int, default=0, help="check a random sample of this many cells (0: all)")
+    parser.add_argument("--budget", type=float, default=0.0, help="stop after this many seconds (0: none)")
+    parser.add_argument("--seed", type=int, default=0)
+    parser.add_argument("--kinds", default=",".join(KINDS), help="capture kinds, comma-separated")
     args = parser.parse_args()
-    stats: dict[str, dict[str, float]] = {}
-    misses = []
-    for i, (topo, part, fault) in enumerate(CASES):
-        design = design_for(topo)
-        for seed in range(args.seeds):
-            values = design.nominal_values()
-            truth = faulty_value(values[part], fault)
-            values[part] = truth
-            capture = simulate_board(topo, values, n=1000, seed=10_000 * seed + i)
-            segments = analyse_steps(capture, input="input", output="output").segments
-            t0 = time.perf_counter()
-            dx = diagnose(design, segments)
-            elapsed = time.perf_counter() - t0
-            s = stats.setdefault(fault, {"boards": 0, "leads": 0, "interval_holds": 0, "seconds": 0.0})
-            s["boards"] += 1
-            s["seconds"] += elapsed
-            lead = part in dx.leaders
-            s["leads"] += lead
-            est = dx.estimates.get(part)
-            s["interval_holds"] += bool(lead and est is not None and est.contains(truth))
-            if not lead:
-                misses.append({"topology": topo, "part": part, "fault": fault, "seed": seed,
-                               "suspects": [x.part for x in dx.suspects[:3]]})
-    table = {f: {"boards": s["boards"], "right_part_leads": s["leads"] / s["boards"],
-                 "interval_holds_truth": s["interval_holds"] / s["boards"],
-                 "seconds_per_diagnosis": s["seconds"] / s["boards"]} for f, s in stats.items()}
+    kinds = [k.strip() for k in args.kinds.split(",")]
+    cells = grid()
+    pool = [c for c in cells if c[3] in kinds]
+    chosen = random.Random(args.seed).sample(pool, min(args.sample, len(pool))) if args.sample else pool
+    rows, start = [], time.perf_counter()
+    with tempfile.TemporaryDirectory() as tmp:
+        for i, cell in enumerate(chosen):
+            if args.budget and time.perf_counter() - start > args.budget:
+                break
+            rows.append(run_cell(cell, 1000 * args.seed + i, Path(tmp)))
+    elapsed = time.perf_counter() - start
+    table = summarise(rows)
     out = ROOT / "benchmarks" / "results"
     out.mkdir(parents=True, exist_ok=True)
-    (out / "check.json").write_text(json.dumps({"seeds": args.seeds, "faults": table, "misses": misses}, indent=2))
-    lines = ["# Board-check diagnosis study", "", f"{len(CASES)} cases x {args.seeds} seeds.", "",
-             "| fault | boards | right part leads | interval holds truth | s per diagnosis |",
-             "| --- | --- | --- | --- | --- |"]
-    lines += [f"| {f} | {r['boards']} | {r['right_part_leads']:.1%} | {r['interval_holds_truth']:.1%} | "
-              f"{r['seconds_per_diagnosis']:.2f} |" for f, r in table.items()]
+    (out / "check.json").write_text(json.dumps({"grid_cells": len(cells), "checked": len(rows), "seconds": elapsed,
+                                                "by_capture_kind": table, "rows": rows}, indent=2))
+    pct = lambda x: "-" if x is None else f"{x:.0%}"  # noqa: E731
+    lines = ["# Board-check study", "",
+             f"{len(rows)} of {len(cells)} grid cells checked in {elapsed:.0f} s "
+             f"({elapsed / max(len(rows), 1):.1f} s a check; the full grid would take about "
+             f"{len(cells) * elapsed / max(len(rows), 1) / 3600:.1f} h at that rate).", "",
+             "| capture | faulty | right part leads | interval holds truth | nominal | nominal flagged | "
+             "values at a bound | errors | s per check |", "| --- | --- | --- | --- | --- | --- | --- | --- | --- |"]
+    lines += [f"| {k} | {r['faulty']} | {pct(r['right_part_leads'])} | {pct(r['interval_holds_truth'])} | "
+              f"{r['nominal']} | {pct(r['nominal_flagged'])} | {r['values_at_bound']} | {r['errors']} | "
+              f"{'-' if r['seconds_per_check'] is None else format(r['seconds_per_check'], '.1f')} |"
+              for k, r in table.items()]
+    misses = [r for r in rows if r.get("leads") is False or r.get("flagged") or "error" in r]
+    lines += ["", "Misses (faulty boards not led by their part, nominal boards flagged, errors):", ""]
+    lines += [f"- {' / '.join(r['cell'])}: {r.get('error') or r.get('verdict')}" for r in misses] or ["- none"]
     (out / "check.md").write_text("\n".join(lines) + "\n")
     print("\n".join(lines))
 

@@ -26,7 +26,7 @@ _LAZY = {
     "load_capture": "fitkit.io",
     "find_edges": "fitkit.conditioning",
     "fit_capture": "fitkit.public_api",
-    "fit_circuit": "fitkit.partfit",
+    "fit_circuit": "fitkit.part_values",
     "check_capture": "fitkit.public_api",
     "load_design": "fitkit.check",
     "FitResult": "fitkit.results",

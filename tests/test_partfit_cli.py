@@ -135,7 +135,7 @@ def test_report_layer_table_shows_nearest_e24_for_components(files):
     # the report layer's own table (fitkit.report.text) gets a nearest-E24 column for parts
     from fitkit.circuits import topology
     from fitkit.io import load_capture
-    from fitkit.partfit import fit_circuit
+    from fitkit.part_values import fit_circuit
     from fitkit.report.text import render_fit_text
     res = fit_circuit(load_capture(files["rc"]), topology("rc-low-pass", R1="10k", C1="?"))
     text = render_fit_text(res)

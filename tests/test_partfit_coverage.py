@@ -19,7 +19,7 @@ import math
 import numpy as np
 
 from fitkit.circuits import probe_chain, topology
-from fitkit.partfit import fit_circuit
+from fitkit.part_values import fit_circuit
 from test_partfit_support import rc_low_pass_tf, step_capture
 
 TRIALS = 100

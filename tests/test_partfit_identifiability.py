@@ -9,7 +9,7 @@ import pytest
 
 from fitkit.circuits import topology
 from fitkit.errors import CircuitError
-from fitkit.partfit import fit_circuit, prepare_problem
+from fitkit.part_values import fit_circuit, prepare_problem
 from test_partfit_support import rc_ladder_tf, rc_low_pass_tf, step_capture
 
 

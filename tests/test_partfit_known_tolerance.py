@@ -19,7 +19,7 @@ import pytest
 from fitkit.circuits import topology
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
-from fitkit.partfit import fit_circuit
+from fitkit.part_values import fit_circuit
 from test_partfit_support import rc_ladder_tf, rc_low_pass_tf, step_capture
 
 

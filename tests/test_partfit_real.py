@@ -18,7 +18,7 @@ import pytest
 
 from fitkit.circuits import topology
 from fitkit.io import load_capture
-from fitkit.partfit import POORLY_DETERMINED, fit_circuit
+from fitkit.part_values import POORLY_DETERMINED, fit_circuit
 from reference_paths import REAL_CAPTURES, needs_real_captures
 
 CAPTURE = REAL_CAPTURES / "rc-ladder-adc-step.csv"

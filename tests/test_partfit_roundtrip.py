@@ -1,6 +1,6 @@
 """Round trips: simulate a capture from known parts with an independent simulator
 (closed-form handbook transfer functions through scipy.signal / python-control,
-see test_partfit_support.py), solve the unknown parts with fitkit.partfit, and
+see test_partfit_support.py), solve the unknown parts with fitkit.part_values, and
 find the truth inside the 95 % intervals; both solving routes agree."""
 
 from __future__ import annotations
@@ -12,7 +12,7 @@ import eseries
 import pytest
 
 from fitkit.circuits import probe_chain, topology
-from fitkit.partfit import fit_circuit
+from fitkit.part_values import fit_circuit
 from test_partfit_support import (rc_ladder_tf, rc_low_pass_tf, sallen_key_unity_tf, series_rlc_across_c_tf,
                                   square_capture, step_capture)
 

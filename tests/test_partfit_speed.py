@@ -16,8 +16,8 @@ import pytest
 import fitkit.circuits.mna as mna
 import fitkit.circuits.transfer as transfer
 from fitkit.circuits import topology
-from fitkit.partfit import fit_circuit
-from fitkit.partfit.circuit_form import circuit_form
+from fitkit.part_values import fit_circuit
+from fitkit.part_values.circuit_form import circuit_form
 from test_partfit_support import rc_ladder_tf, step_capture
 
 

@@ -5,10 +5,10 @@
 * hypotheses.py fault hypotheses fitted by the engine (the fit of `fitkit fit --topology`)
 * diagnosis.py  fault hypotheses: each part alone, swaps, pairs; ranked by AICc; fault patterns
 * verdicts.py   per-quantity, per-part and overall verdicts from 95 % intervals
-* api.py        check_capture(capture, design, ...) -> CheckResult
+* board_check.py check_capture(capture, design, ...) -> CheckResult
 """
 
-from .api import CheckResult, check_capture
+from .board_check import CheckResult, check_capture
 from .design import Design, PartSpec, load_design, loads_design
 
 __all__ = ["check_capture", "CheckResult", "load_design", "loads_design", "Design", "PartSpec"]

@@ -45,7 +45,7 @@ from typing import Any, Mapping
 
 from ..circuits import Circuit, get_topology
 from ..circuits.preferred import SERIES
-from ..circuits.toml_format import _Reader, parse_toml, read_toml_text
+from ..circuits.toml_format import CircuitReader, parse_toml, read_toml_text
 from ..errors import CircuitError, DesignError, OptionError
 from ..units import parse_value
 
@@ -143,7 +143,7 @@ def loads_design(text: str, path: str = "<design>") -> Design:
 class _DesignReader:
     def __init__(self, text: str, path: str) -> None:
         self.text, self.path = text, path
-        self.lines = _Reader(text, path)
+        self.lines = CircuitReader(text, path)
 
     def fail(self, message: str, hint: str, part: str | None = None, key: str | None = None,
              table: str | None = None) -> DesignError:

@@ -45,7 +45,8 @@ from ..errors import FitError
 from ..fitting.information import has_measured_input
 from ..results import Estimate, json_number
 from .design import Design, PartSpec
-from .hypotheses import HypothesisFit, fit_fixed, fit_free, fit_single, within_tolerance_refit
+from .hypotheses import (HypothesisFit, final_intervals, fit_fixed, fit_free, fit_single,
+                         within_tolerance_refit)
 
 #: Scaled AICc difference within which hypotheses are equally good (Burnham and
 #: Anderson, Model Selection and Multimodel Inference, 2002: differences below 2
@@ -264,6 +265,10 @@ def diagnose(design: Design, segments: Sequence[StepSegment], *, file: str = "",
     explained = not hyps[0].runaway and hyps[0].rms <= EXPLAINED_RATIO * noise
     if not explained and hyps[0].kind != "swap":
         messages.append(_try_pairs(design, segments, singles, hyps, factor, measured, file))
+    top = hyps[0].aicc
+    hyps = [final_intervals(design, segments, h, measured, file) if factor * (h.aicc - top) <= TIE_EVIDENCE else h
+            for h in hyps]
+    hyps.sort(key=_rank_key)
     top = hyps[0].aicc
     suspects, leaders = [], []
     for h in hyps:

@@ -8,7 +8,7 @@ capture sees it; design.analysed_circuit) with some parts changed:
 * "single part": one part free, every other part at nominal;
 * "two parts": two parts free.
 
-Free parts are fitted by fitkit.partfit's direct fit (the circuit wrapped as a
+Free parts are fitted by fitkit.part_values's direct fit (the circuit wrapped as a
 form and handed to fitkit.fitting.fit_segments), so the edge time, delay,
 levels, starts, correlated-residual correction and intervals are exactly
 those of `fitkit fit --topology`. Every hypothesis is scored on the same
@@ -33,8 +33,8 @@ from ..conditioning.segment import StepSegment
 from ..errors import CircuitError, FitError
 from ..fitting import fit_segments
 from ..fitting.information import corrected_aic
-from ..partfit.direct import direct_fits, scaled_circuit_form
-from ..partfit.problem import prepare_problem
+from ..part_values.direct import direct_fits, scaled_circuit_form
+from ..part_values.problem import prepare_problem
 from ..results import Estimate, FitResult
 from .design import Design, analysed_circuit
 
@@ -117,9 +117,12 @@ def fit_fixed(design: Design, segments: Sequence[StepSegment], values: Mapping[s
 
 def fit_free(design: Design, segments: Sequence[StepSegment], free: Sequence[str],
              starts: Sequence[Mapping[str, float]], measured: bool, *, kind: str,
-             held: Mapping[str, float] | None = None, file: str = "") -> HypothesisFit | None:
+             held: Mapping[str, float] | None = None, file: str = "",
+             intervals: str = "covariance") -> HypothesisFit | None:
     """The parts ``free`` fitted by the engine from each start, others at nominal (or ``held``).
 
+    intervals: the engine's interval method; "covariance" ranks hypotheses quickly,
+    ``final_intervals`` refits the leaders with "auto" (profile likelihood where needed).
     None when the capture does not determine them together or no start converges.
     """
     free = tuple(free)
@@ -129,7 +132,8 @@ def fit_free(design: Design, segments: Sequence[StepSegment], free: Sequence[str
         if set(problem.fitted) != set(free):
             return None
         with np.errstate(all="ignore"):
-            fits, _ = direct_fits(segments, problem, starts, measured_input=measured, file=file)
+            fits, _ = direct_fits(segments, problem, starts, measured_input=measured, file=file,
+                                  intervals=intervals)
     except FIT_ERRORS:
         return None
     if not fits:
@@ -166,6 +170,23 @@ def _preferred(a: HypothesisFit, b: HypothesisFit) -> bool:
     if a.runaway != b.runaway:
         return not a.runaway
     return a.rss < b.rss
+
+
+def final_intervals(design: Design, segments: Sequence[StepSegment], h: HypothesisFit, measured: bool,
+                    file: str = "") -> HypothesisFit:
+    """A ranked hypothesis refitted from its own values with the engine's full interval
+    method (profile likelihood where the sum of squares is asymmetric), as `fit` reports."""
+    if h.kind not in ("single part", "two parts") or h.runaway:
+        return h
+    free = tuple(p for p in h.parts) + tuple(h.held)
+    start = {**dict(h.values), **dict(h.held)}
+    again = fit_free(design, segments, free, [start], measured, kind=h.kind, file=file, intervals="auto")
+    if again is None or again.runaway:
+        return h
+    estimates = {p: again.estimates[p] for p in h.parts}
+    return HypothesisFit(h.kind, h.parts, {p: e.value for p, e in estimates.items()}, estimates, again.rss,
+                         again.n, again.n_parameters, again.result, False,
+                         {p: again.values[p] for p in h.held})
 
 
 def within_tolerance_refit(design: Design, segments: Sequence[StepSegment], single: HypothesisFit,

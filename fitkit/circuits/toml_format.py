@@ -97,11 +97,11 @@ def load_circuit(path: str | Path) -> Circuit:
 def loads_circuit(text: str, path: str = "<circuit>") -> Circuit:
     """Parse circuit TOML text; ``path`` is used in error messages."""
     data = parse_toml(text, path, CircuitError, "see docs/circuit-format.md for the format")
-    reader = _Reader(text, path)
+    reader = CircuitReader(text, path)
     return reader.circuit(data)
 
 
-class _Reader:
+class CircuitReader:
     """Turns the parsed TOML into a Circuit, with errors pointing at lines."""
 
     def __init__(self, text: str, path: str) -> None:

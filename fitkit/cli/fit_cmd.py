@@ -10,7 +10,7 @@ from .arguments import check_distinct_inputs, check_model, name_value_pairs, tim
 from .capture_options import CaptureOptions, capture_options
 from .output_options import OutputRequest, emit_result, output_options
 
-# -- component values: --circuit / --topology (see fitkit.partfit) -------------------
+# -- component values: --circuit / --topology (see fitkit.part_values) -------------------
 
 def circuit_options(f):
     """The options that turn `fitkit fit` into a solve for component values."""
@@ -101,7 +101,7 @@ class CircuitArgs:
 
     def fit(self, capture, *, model: str, **kwargs):
         from ..errors import OptionError
-        from ..partfit import fit_circuit
+        from ..part_values import fit_circuit
         if model != "auto":
             raise OptionError("--model cannot be combined with --circuit or --topology",
                               hint="the circuit decides the response's form; drop --model")

@@ -34,7 +34,7 @@ sample interval (:data:`SMALLEST_DELAY`).
 The transfer function returned is the rational part H_form(s): exp(-s delay)
 has no rational form (a Pade approximant would be an approximation). fitkit
 uses a form's transfer function for derived quantities (the delay changes
-only the phase) and to map a fit to parts (fitkit.partfit), where a dead
+only the phase) and to map a fit to parts (fitkit.part_values), where a dead
 time is no part; the fit itself uses unit_step. Derived quantities are the form's own (times
 counted from the end of the dead time) plus ``delay``.
 """

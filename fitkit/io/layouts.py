@@ -14,16 +14,13 @@ import re
 from dataclasses import dataclass, field
 
 from ..errors import CaptureError, OptionError
-from ..units import BASE_UNITS, unit_scale
+from ..units import unit_scale
 from . import metadata as md
 from .sniff import TextSample, TextShape, is_comment
+from .unit_cells import COUNT_WORDS, INDEX_WORDS, clean_unit as _clean_unit, looks_like_unit  # noqa: F401
 
 TIME_NAMES = {"time", "t", "zeit", "temps", "tiempo", "seconds", "sec", "timestamp", "time stamp",
               "elapsed time", "relative time", "x axis", "horizontal"}
-INDEX_WORDS = {"sequence", "index", "idx", "sample", "samples", "no", "no.", "n", "#", "point",
-               "points", "sample number", "sample no", "sample index", "number"}
-COUNT_WORDS = {"counts", "count", "adc", "codes", "code", "lsb", "raw", "adc counts", "digits"}
-_SI_BASES = set(BASE_UNITS.values())
 _NAME_UNIT = re.compile(r"^(.*?)\s*[\(\[]\s*([^\)\]]*?)\s*[\)\]]\s*$")
 _NAME_SLASH = re.compile(r"^(.*?)\s*/\s*([A-Za-zµμΩ]+)$")
 _NAME_TIME_SUFFIX = re.compile(r"^(time|t)_(s|ms|us|µs|ns)$", re.I)
@@ -33,27 +30,6 @@ _TIME_FACTORS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "ns": 1e-9}
 #: milliseconds (a logger sampling at 1 us or slower): the seconds reading is then a
 #: warning, not a quiet decision (finer steps read as ms would be a logger faster than 1 MS/s).
 PLAUSIBLY_MS_STEP = 1e-3
-
-
-def _clean_unit(unit: str) -> str:
-    u = unit.strip().strip("()[]").strip()
-    if u.lower() in ("volt", "volts", "v"):
-        return "V"
-    if u.lower() in ("sec", "secs", "second", "seconds") or u == "S":
-        return "s"
-    return u.replace("μ", "µ")
-
-
-def looks_like_unit(cell: str) -> bool:
-    """True for a cell of a units row: '(ms)', '[V]', 'mV', 'Volt', 'Sequence', 'counts'."""
-    c = cell.strip()
-    if not c:
-        return True
-    bare = _clean_unit(c)
-    if bare.lower() in INDEX_WORDS | COUNT_WORDS or bare in ("%", "dB", "dBV"):
-        return True
-    factor, si = unit_scale(bare)
-    return si in _SI_BASES
 
 
 def split_name_unit(name: str) -> tuple[str, str]:

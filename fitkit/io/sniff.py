@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import CaptureError
+from .unit_cells import looks_like_unit
 
 #: Bytes read for sniffing. Headers of bench exports are a few KB at most.
 SAMPLE_BYTES = 32 * 1024
@@ -439,8 +440,6 @@ def _data_columns(rows: list[list[str]], decimal: str) -> tuple[list[int], list[
 def _count_header_rows(above: list[tuple[TextLine, list[str]]], data_cols: set[int],
                        decimal: str) -> int:
     """0, 1 (names) or 2 (names then units) header rows directly above the data."""
-    from .layouts import looks_like_unit  # local: layouts imports this module
-
     def cells_at(cells: list[str]) -> list[str]:
         return [cells[j] for j in sorted(data_cols) if j < len(cells)]
 

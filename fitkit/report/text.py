@@ -143,7 +143,7 @@ def _candidate_phrase(cand, crit: str) -> str:
 def _quantity_table(title: str, rows: Sequence[QuantityRow], preferred: dict | None = None,
                     determination: dict | None = None, measured: bool = True) -> str:
     """The table of one kind of quantity; ``preferred`` (components only: part ->
-    {"E24": value, "E24_deviation": x, ...}, see fitkit.partfit) adds a nearest-E24 column,
+    {"E24": value, "E24_deviation": x, ...}, see fitkit.part_values) adds a nearest-E24 column,
     and ``determination`` (part -> {"status": "well determined", ...}) says how well
     the capture determines each part, in the meaning column."""
     table = [["name", "value", "95 % interval"] + (["nearest E24"] if preferred else []) + ["meaning"]]
@@ -208,7 +208,7 @@ def _describes_text(result: FitResult) -> str:
 
 
 def _circuit_notes(result: FitResult) -> str:
-    """For component fits (fitkit.partfit): other solutions, what one capture
+    """For component fits (fitkit.part_values): other solutions, what one capture
     cannot determine, whether the two solving routes agree, and how much the
     measurement chain shifts the circuit's quantities. Empty for plain fits."""
     extra = result.extra or {}

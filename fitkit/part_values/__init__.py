@@ -7,10 +7,10 @@ circuit layer and conditioning, and is used by the board check and the CLI.
 * behavioural.py   route 1: behavioural fit -> coefficient equations -> parts
 * circuit_form.py  the circuit's step response as a form in part values
 * direct.py        route 2: the direct fit in part values, one per solution
-* api.py           fit_circuit, fit_circuit_segments -> FitResult with components
+* circuit_fit.py   fit_circuit, fit_circuit_segments -> FitResult with components
 """
 
-from .api import POORLY_DETERMINED, fit_circuit, fit_circuit_segments
+from .circuit_fit import POORLY_DETERMINED, fit_circuit, fit_circuit_segments
 from .problem import PartProblem, prepare_problem
 
 __all__ = ["fit_circuit", "fit_circuit_segments", "prepare_problem", "PartProblem", "POORLY_DETERMINED"]

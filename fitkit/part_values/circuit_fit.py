@@ -193,6 +193,22 @@ def _agreement(direct: Mapping[str, Estimate], r1: RouteOne | None) -> tuple[boo
     return ok, detail
 
 
+def _solutions(fits: list[DirectFit], problem: PartProblem) -> list[dict[str, Any]]:
+    """Every solution found, as JSON-ready records (values, intervals, distance from the design)."""
+    solutions = []
+    for f in fits:
+        d = _design_distance(f.values, problem.design)
+        solutions.append({
+            "values": {n: json_number(v) for n, v in f.values.items()},
+            "ci95": {n: (None if f.result.parameters[n].ci95 is None
+                         else [json_number(x) for x in f.result.parameters[n].ci95]) for n in f.values},
+            "design_distance": json_number(d),
+            "deviation_from_design": {n: json_number((f.values[n] - problem.design[n]) / problem.design[n])
+                                      for n in f.values if n in problem.design},
+            "rss": json_number(f.rss), "aicc": json_number(f.aicc)})
+    return solutions
+
+
 def _assemble(fits: list[DirectFit], r1: RouteOne | None, problem: PartProblem, measured: bool,
               notes: list[str]) -> FitResult:
     best = fits[0]
@@ -235,17 +251,7 @@ def _assemble(fits: list[DirectFit], r1: RouteOne | None, problem: PartProblem, 
         values = {n: (e.value if e.determined else ensure_values(problem)[n]) for n, e in components.items()
                   if n in problem.fitted}
         chain_effect = measurement_chain_effect(problem.solve_circuit, values=values).to_dict()
-    solutions = []
-    for f in fits:
-        d = _design_distance(f.values, problem.design)
-        solutions.append({
-            "values": {n: json_number(v) for n, v in f.values.items()},
-            "ci95": {n: (None if f.result.parameters[n].ci95 is None
-                         else [json_number(x) for x in f.result.parameters[n].ci95]) for n in f.values},
-            "design_distance": json_number(d),
-            "deviation_from_design": {n: json_number((f.values[n] - problem.design[n]) / problem.design[n])
-                                      for n in f.values if n in problem.design},
-            "rss": json_number(f.rss), "aicc": json_number(f.aicc)})
+    solutions = _solutions(fits, problem)
     seen: list[str] = []
     for w in notes + warnings:
         if w not in seen:
