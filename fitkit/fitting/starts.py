@@ -156,18 +156,31 @@ def _projected_levels_stacked(joint: JointModel, shape: Mapping[str, float], del
     return rss, values
 
 
+def few_edges(joint: JointModel, count: int | None = None) -> JointModel | None:
+    """The joint model of ``count`` (default :data:`GRID_EDGES`) of its edges,
+    in consecutive pairs spread over the record (as many rising as falling
+    edges, each pair's second edge with its previous-edge tail), or None when
+    it has no more edges than that."""
+    count = count or GRID_EDGES
+    m = len(joint.segments)
+    if m <= count:
+        return None
+    pairs = count // 2
+    firsts = sorted({2 * int(round(j * (m // 2 - 1) / max(pairs - 1, 1))) for j in range(pairs)})
+    pick = [i for f in firsts for i in (f, f + 1) if i < m]
+    return JointModel(joint.form, [joint.segments[i] for i in pick], joint.scaling,
+                      measured_input=joint.measured_input, free_t0=joint.free_t0,
+                      max_points=int(max(d.y.size for d in joint.data)))
+
+
 def best_starts(joint: JointModel, keep: int = 3) -> list[dict[str, float]]:
     """The ``keep`` best starting points (internal parameter values), best first.
 
     With many edges the grid is scored on :data:`GRID_EDGES` of them spread
     over the record (a start needs no more), and the chosen starts get every
     edge's levels."""
-    m = len(joint.segments)
-    if m > GRID_EDGES:
-        pick = sorted({int(round(i * (m - 1) / (GRID_EDGES - 1))) for i in range(GRID_EDGES)})
-        sub = JointModel(joint.form, [joint.segments[i] for i in pick], joint.scaling,
-                         measured_input=joint.measured_input, free_t0=joint.free_t0,
-                         max_points=int(max(d.y.size for d in joint.data)))
+    sub = few_edges(joint)
+    if sub is not None:
         out = []
         for start in best_starts(sub, keep):
             shape = {p.name: math.exp(start["log_" + p.name]) for p in joint.form.shape}
