@@ -28,7 +28,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 #: From this many varied parameters on the Jacobian is sparse and the covariance by blocks.
-SPARSE_FROM_PARAMETERS = 60
+SPARSE_FROM_PARAMETERS = 30
 
 _LOCAL = re.compile(r"^(baseline|step|t0)_(\d+)$")
 
@@ -62,10 +62,12 @@ def weighted(jacobian, w: np.ndarray):
 
 
 def edge_columns(jacobian, lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
-    """(columns, dense block) of the rows lo:hi of the Jacobian: for a sparse one only
-    the columns with a nonzero entry there, for a dense one every column."""
+    """(columns, dense block) of the rows lo:hi of the Jacobian: only the columns
+    with a nonzero entry there (a few per edge in a joint fit of many edges)."""
     if not is_sparse(jacobian):
-        return np.arange(jacobian.shape[1]), np.asarray(jacobian[lo:hi])
+        rows = np.asarray(jacobian[lo:hi])
+        cols = np.flatnonzero(np.any(rows != 0, axis=0))
+        return cols, rows[:, cols]
     from scipy import sparse
 
     if jacobian.format != "csr":

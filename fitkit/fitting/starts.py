@@ -17,6 +17,7 @@ from typing import Mapping
 import numpy as np
 
 from .joint_model import STACKED_FROM_EDGES, JointModel
+from .projection import projected_model
 from .scaling import decimated, reference_step
 
 #: Factors applied to each guessed shape parameter to build the grid.
@@ -103,20 +104,9 @@ def projected_levels(joint: JointModel, shape: Mapping[str, float], delay: float
     """Best linear levels for a trial shape and delay: (RSS, internal values)."""
     values: dict[str, float] = {}
     rss = 0.0
-    if joint.measured_input:
-        m = len(joint.data)
-        cols, ys = [], []
-        for i, d in enumerate(joint.data):
-            ind = np.zeros((d.y.size, m))
-            ind[:, i] = 1.0
-            cols.append(np.column_stack([ind, joint.unit_response(i, shape)]))
-            ys.append(d.y)
-        a, y = np.vstack(cols), np.concatenate(ys)
-        coef, *_ = np.linalg.lstsq(a, y, rcond=None)
-        rss = float(np.sum((y - a @ coef) ** 2))
-        values["gain"] = float(coef[-1])
-        values.update({f"baseline_{i}": float(coef[i]) for i in range(m)})
-        return rss, values
+    if joint.measured_input:  # per-edge baselines and one gain, in closed form (as the search solves them)
+        values, model = projected_model(joint, {"log_" + k: math.log(v) for k, v in shape.items()})
+        return float(np.sum((joint.weights * (joint.y - model)) ** 2)), values
     if len(joint.data) >= STACKED_FROM_EDGES:  # every edge at once
         return _projected_levels_stacked(joint, shape, delay)
     for i, d in enumerate(joint.data):
