@@ -23,6 +23,11 @@ reports tau's standard error next to the Cramer-Rao bound of the full-rate
 record (Fisher information of the record's own three-parameter model,
 tau, offset and gain, edge times known; see tau_bound).
 
+With --many-edges: the many-edges study of issue 20 instead (square waves of
+10 to 1,000 edges, joint fit against --average, with the Cramer-Rao bound of
+the joint model; see benchmarks/_many_edges.py), results in
+benchmarks/results/many_edges.json and many_edges.md.
+
 Targets (issue 9): `fitkit fit` of 1M samples within 3x the hand script and
 under 2 s; `fitkit --help` under 0.5 s; 10M samples within 2 GiB peak memory.
 Results: benchmarks/results/speed.json and speed.md.
@@ -339,7 +344,29 @@ if __name__ == "__main__":
     ap.add_argument("--timeout", type=float, default=900.0, help="seconds before a child run is killed")
     ap.add_argument("--results-dir", default=None, help="where to write (default benchmarks/results)")
     ap.add_argument("--stem", default=None)
+    ap.add_argument("--many-edges", action="store_true",
+                    help="the many-edges study instead (issue 20; see benchmarks/_many_edges.py)")
+    ap.add_argument("--edges", type=int, nargs="+", default=[10, 40, 200, 1000])
+    ap.add_argument("--samples", type=int, nargs="+", default=[100_000, 1_000_000])
+    ap.add_argument("--responses", nargs="+", default=["rc", "underdamped"])
+    ap.add_argument("--modes", nargs="+", default=["output", "input"])
     args = ap.parse_args()
+    if args.many_edges:
+        import _many_edges
+
+        started = time.time()
+        info = machine()
+        rows = _many_edges.study(args.edges, args.samples, args.responses, args.modes, measured, args.timeout)
+        info["load_average_at_end"] = load_average()
+        data = clean({"study": "many edges", "machine": info, "wall_seconds": time.time() - started,
+                      "settings": vars(args), "rows": rows, "targets": _many_edges.targets(rows)})
+        head = [f"# Many edges: joint fit against the coherent average", "",
+                f"{info['date_utc']}; {info['cpu_model']}, {info['nproc']} cores; load average "
+                f"{info['load_average_1_5_15min']} at start, {info['load_average_at_end']} at end.", ""]
+        j, m = write_results(args.stem or "many_edges", data, "\n".join(head + _many_edges.markdown(rows)) + "\n",
+                             args.results_dir)
+        print(f"wrote {j} and {m} in {data['wall_seconds']:.0f} s")
+        sys.exit(0)
     sizes, repeats = ([QUICK_SIZE], 1) if args.quick else (args.sizes, args.repeats)
     data = run(sizes, repeats, args.timeout)
     stem = args.stem or ("speed_quick" if args.quick else "speed")

@@ -26,10 +26,9 @@ import re
 from typing import Callable, Sequence
 
 import numpy as np
-from scipy import linalg, sparse
 
 #: From this many varied parameters on the Jacobian is sparse and the covariance by blocks.
-SPARSE_FROM_PARAMETERS = 60
+SPARSE_FROM_PARAMETERS = 30
 
 _LOCAL = re.compile(r"^(baseline|step|t0)_(\d+)$")
 
@@ -44,26 +43,33 @@ def edge_of_parameter(names: Sequence[str]) -> list[int | None]:
 
 
 def is_sparse(jacobian: object) -> bool:
-    return sparse.issparse(jacobian)
+    """True for a scipy.sparse matrix (told without importing scipy.sparse, slow to import)."""
+    return hasattr(jacobian, "tocsr")
 
 
-def dense(jacobian: np.ndarray | sparse.sparray) -> np.ndarray:
+def dense(jacobian) -> np.ndarray:
     """The Jacobian as a dense array (a sparse one converted)."""
-    return jacobian.toarray() if sparse.issparse(jacobian) else np.asarray(jacobian)
+    return jacobian.toarray() if is_sparse(jacobian) else np.asarray(jacobian)
 
 
-def weighted(jacobian: np.ndarray | sparse.sparray, w: np.ndarray) -> np.ndarray | sparse.csr_array:
+def weighted(jacobian, w: np.ndarray):
     """Rows of the Jacobian times the weights ``w`` (dense stays dense, sparse stays sparse)."""
-    if sparse.issparse(jacobian):
+    if is_sparse(jacobian):
+        from scipy import sparse
+
         return sparse.csr_array(sparse.diags_array(w) @ jacobian)
     return jacobian * w[:, None]
 
 
-def edge_columns(jacobian: np.ndarray | sparse.sparray, lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
-    """(columns, dense block) of the rows lo:hi of the Jacobian: for a sparse one only
-    the columns with a nonzero entry there, for a dense one every column."""
-    if not sparse.issparse(jacobian):
-        return np.arange(jacobian.shape[1]), np.asarray(jacobian[lo:hi])
+def edge_columns(jacobian, lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
+    """(columns, dense block) of the rows lo:hi of the Jacobian: only the columns
+    with a nonzero entry there (a few per edge in a joint fit of many edges)."""
+    if not is_sparse(jacobian):
+        rows = np.asarray(jacobian[lo:hi])
+        cols = np.flatnonzero(np.any(rows != 0, axis=0))
+        return cols, rows[:, cols]
+    from scipy import sparse
+
     if jacobian.format != "csr":
         jacobian = sparse.csr_array(jacobian)
     start, stop = jacobian.indptr[lo], jacobian.indptr[hi]
@@ -76,7 +82,7 @@ def edge_columns(jacobian: np.ndarray | sparse.sparray, lo: int, hi: int) -> tup
 
 
 def grouped_jacobian(fun: Callable[[np.ndarray], np.ndarray], theta: np.ndarray, names: Sequence[str],
-                     bounds: Sequence[int], rel_step: float = 1e-6) -> np.ndarray | sparse.csc_array:
+                     bounds: Sequence[int], rel_step: float = 1e-6):
     """Central-difference Jacobian (n, p) of ``fun`` at ``theta``, the local
     parameters of edges two apart perturbed together (see the module docstring).
 
@@ -84,6 +90,8 @@ def grouped_jacobian(fun: Callable[[np.ndarray], np.ndarray], theta: np.ndarray,
     read on the points of edges i and i + 1. The same numbers as one column at
     a time (each parameter keeps its own step), in far fewer evaluations.
     """
+    from scipy import sparse
+
     theta = np.asarray(theta, dtype=float)
     edges = edge_of_parameter(names)
     m = len(bounds) - 1
@@ -126,7 +134,7 @@ def grouped_jacobian(fun: Callable[[np.ndarray], np.ndarray], theta: np.ndarray,
     return jac if p >= SPARSE_FROM_PARAMETERS else jac.toarray()
 
 
-def block_covariance(jac_w: sparse.sparray, names: Sequence[str], s2: float
+def block_covariance(jac_w, names: Sequence[str], s2: float
                      ) -> tuple[np.ndarray, bool, float]:
     """``s2 (J^T J)^-1`` of a sparse weighted Jacobian through the Schur
     complement of its local block: (covariance, singular, condition number).
@@ -135,6 +143,8 @@ def block_covariance(jac_w: sparse.sparray, names: Sequence[str], s2: float
     blocks the inverse is made of (the Schur complement of the global
     parameters and the local block's per-edge parts), an estimate of J's own.
     """
+    from scipy import sparse
+
     from .core import SINGULAR_CONDITION
 
     p = jac_w.shape[1]
@@ -175,10 +185,12 @@ def block_covariance(jac_w: sparse.sparray, names: Sequence[str], s2: float
     return cov, False, cond
 
 
-def _banded_solver(d: sparse.sparray) -> Callable[[np.ndarray], np.ndarray]:
+def _banded_solver(d) -> Callable[[np.ndarray], np.ndarray]:
     """x -> d^-1 x for the symmetric positive definite local block ``d``, by its
     banded Cholesky factor (the local parameters are ordered edge by edge, so
     its band is a few columns wide); raises LinAlgError when not positive definite."""
+    from scipy import linalg, sparse
+
     coo = sparse.coo_array(d)
     band = int(np.max(np.abs(coo.row - coo.col))) if coo.nnz else 0
     n = d.shape[0]
@@ -189,9 +201,11 @@ def _banded_solver(d: sparse.sparray) -> Callable[[np.ndarray], np.ndarray]:
     return lambda rhs: linalg.cho_solve_banded((factor, False), rhs, check_finite=False)
 
 
-def _block_eigenvalues(d: sparse.sparray, edge_of_column: Sequence[int]) -> np.ndarray:
+def _block_eigenvalues(d, edge_of_column: Sequence[int]) -> np.ndarray:
     """Eigenvalues of the per-edge diagonal blocks of the local block ``d`` (all
     blocks at once when every edge has the same number of local parameters)."""
+    from scipy import sparse
+
     d = sparse.csr_array(d)
     edges = np.asarray(edge_of_column)
     order = np.argsort(edges, kind="stable")

@@ -33,7 +33,7 @@ from .joint_model import MAX_POINTS_PER_SEGMENT, JointModel
 from .projection import (ProjectedSearch, can_project, finish_projected, nonlinear_names,
                          search_projected)
 from .scaling import Scaling, decimated, reference_step
-from .starts import best_starts, projected_levels
+from .starts import best_starts, few_edges, projected_levels
 from .uncertainty import Correction, correlated_residual_correction, t_quantile
 from .noise_record import NoiseRecord
 from .whitening import whitened_fit, whitening_applies
@@ -203,6 +203,8 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     # start was given (the NIST checks start the full problem where NIST does)
     # or a level is held fixed
     project = not start and can_project(joint, fixed_int)
+    if project:
+        starts = _piloted(joint, starts, fixed_int)
     best: ModelFit | None = None
     best_search: ProjectedSearch | None = None
     for s in starts:
@@ -257,8 +259,49 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
         joint, best, correction = whitened_fit(joint, best, fixed_int, correction, correlation, **whiten)
     if joint.measured_input:
         correction = _with_input_noise(joint, best, correction)
+    notes.extend(edges_unlike_the_others(joint, best, correction))
     dof = correction.dof if correction.applied and correction.dof is not None else best.dof
     return FormFit(form, joint, best, correction, t_quantile(int(round(dof))), tuple(notes))
+
+
+#: An edge's residuals are named as unlike the others' when a chi-square test
+#: against the typical edge's residual variance rejects at this level, shared
+#: (Bonferroni) among the edges.
+ODD_EDGE_LEVEL = 1e-3
+
+
+def edges_unlike_the_others(joint: JointModel, fit: ModelFit, correction: Correction) -> list[str]:
+    """Plain-words warnings naming each edge whose residuals are larger than the others'.
+
+    A joint fit shares one shape among the edges; an edge whose response
+    differs (a drifting part, a glitch, a different load) leaves larger
+    residuals there. Each edge's weighted residual variance is compared with
+    the median edge's: rss_i / median ~ chi-square(d_i) / d_i with d_i its
+    points less its own parameters, divided by the residuals' variance ratio
+    when they are correlated (fewer effective points); an edge is named when
+    that exceeds the upper ODD_EDGE_LEVEL / m quantile. Needs three edges.
+    """
+    from scipy import special
+
+    m = len(joint.segments)
+    if m < 3 or not fit.rss > 0:
+        return []
+    w = joint.weights
+    pieces = joint.split(w * (joint.y - fit.fitted))
+    own = len(joint.level_names(0)) - (1 if joint.measured_input else 0)
+    dof = np.array([max(len(r) - own, 1) for r in pieces], dtype=float)
+    variance = np.array([float(r @ r) for r in pieces]) / dof
+    typical = float(np.median(variance))
+    if not typical > 0:
+        return []
+    effective = dof / max(correction.variance_ratio, 1.0)
+    limit = special.chdtri(effective, ODD_EDGE_LEVEL / m) / effective
+    out = []
+    for i in np.flatnonzero(variance / typical > limit):
+        seg = joint.segments[i]
+        out.append(f"edge {i + 1} of {m} (at t = {seg.edge_time:.6g} s) does not follow the shared response: "
+                   f"its residuals are {math.sqrt(variance[i] / typical):.2g} times those of a typical edge")
+    return out
 
 
 def _continued(joint: JointModel, stopped: ProjectedSearch, fixed: Mapping[str, float]) -> ProjectedSearch:
@@ -292,6 +335,33 @@ def _continued(joint: JointModel, stopped: ProjectedSearch, fixed: Mapping[str, 
                                     "moving along a flat valley"))
         current = again
     return current
+
+
+def _piloted(joint: JointModel, starts: list[dict[str, float]], fixed: Mapping[str, float]
+             ) -> list[dict[str, float]]:
+    """With many edges, the one start of a fit of a few of them (:func:`.starts.few_edges`).
+
+    The grid's starts are refined on a few edges spread over the record (a
+    search there costs a few per cent of one over every edge); the search
+    over every edge then starts from the best shape found, each edge's delay
+    at the few edges' median, and needs only a few steps. Unchanged with few edges.
+    """
+    sub = few_edges(joint)
+    if sub is None or not starts:
+        return starts
+    found: ProjectedSearch | None = None
+    for s in starts:
+        params = {k: s.get(k, 0.0) for k in sub.names if k not in fixed}
+        trial = _search(sub, params, fixed)
+        if found is None or _better(trial, found):
+            found = trial
+    if found is None or not math.isfinite(found.rss):
+        return starts
+    shape = {p.name: math.exp(found.values["log_" + p.name]) for p in joint.form.shape}
+    delay = float(np.median(sub.delays_of(found.values))) if joint.free_t0 else 0.0
+    start = {k: v for k, v in found.values.items() if k.startswith("log_") or k == "gain"}
+    start.update(projected_levels(joint, shape, delay)[1])
+    return [start]
 
 
 def _search(joint: JointModel, params: Mapping[str, float], fixed: Mapping[str, float]) -> ProjectedSearch:
@@ -330,12 +400,18 @@ def _with_input_noise(joint: JointModel, fit: ModelFit, correction: Correction) 
 
 
 def _trim_overlaps(joint: JointModel, fit: ModelFit) -> list[StepSegment] | None:
-    """Segments cut short where they reach the next edge's fitted time, or None if none does.
+    """Segments cut short where they reach the next edge's fitted time or the
+    next window, or None if none does.
 
     Without an input channel the conditioning places edges at the output's own
     mid-level crossing, later than the real edge, so a window may include the
     start of the next edge's response. The fitted t0 of the next edge tells
-    where to stop.
+    where to stop. Consecutive windows of one record also overlap (the next
+    one starts a quarter interval before its edge): the samples they share
+    would count twice, overstating the information (intervals too narrow, by
+    a tenth for a 10-edge square wave), so a window stops where the next one
+    starts; what is left of its settling is the next window's previous-edge
+    tail (:meth:`.joint_model.JointModel.previous_tail`).
     """
     if not joint.free_t0 or len(joint.segments) < 2:
         return None
@@ -344,7 +420,10 @@ def _trim_overlaps(joint: JointModel, fit: ModelFit) -> list[StepSegment] | None
     starts = [s.edge_time + fit.values.get(f"t0_{i}", 0.0) * sc.time_unit for i, s in enumerate(segs)]
     changed = False
     for i in range(len(segs) - 1):
-        seg, limit = segs[i], starts[i + 1]
+        seg, nxt = segs[i], joint.segments[i + 1]
+        limit = starts[i + 1]
+        if joint.previous_steps[i + 1] is not None:  # consecutive windows of one record
+            limit = min(limit, float(nxt.time[0]))
         if seg.time[-1] >= limit > seg.edge_time:
             keep = int(np.searchsorted(seg.time, limit, side="left"))
             if keep >= 8:

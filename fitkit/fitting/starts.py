@@ -17,6 +17,7 @@ from typing import Mapping
 import numpy as np
 
 from .joint_model import STACKED_FROM_EDGES, JointModel
+from .projection import projected_model
 from .scaling import decimated, reference_step
 
 #: Factors applied to each guessed shape parameter to build the grid.
@@ -103,20 +104,9 @@ def projected_levels(joint: JointModel, shape: Mapping[str, float], delay: float
     """Best linear levels for a trial shape and delay: (RSS, internal values)."""
     values: dict[str, float] = {}
     rss = 0.0
-    if joint.measured_input:
-        m = len(joint.data)
-        cols, ys = [], []
-        for i, d in enumerate(joint.data):
-            ind = np.zeros((d.y.size, m))
-            ind[:, i] = 1.0
-            cols.append(np.column_stack([ind, joint.unit_response(i, shape)]))
-            ys.append(d.y)
-        a, y = np.vstack(cols), np.concatenate(ys)
-        coef, *_ = np.linalg.lstsq(a, y, rcond=None)
-        rss = float(np.sum((y - a @ coef) ** 2))
-        values["gain"] = float(coef[-1])
-        values.update({f"baseline_{i}": float(coef[i]) for i in range(m)})
-        return rss, values
+    if joint.measured_input:  # per-edge baselines and one gain, in closed form (as the search solves them)
+        values, model = projected_model(joint, {"log_" + k: math.log(v) for k, v in shape.items()})
+        return float(np.sum((joint.weights * (joint.y - model)) ** 2)), values
     if len(joint.data) >= STACKED_FROM_EDGES:  # every edge at once
         return _projected_levels_stacked(joint, shape, delay)
     for i, d in enumerate(joint.data):
@@ -156,18 +146,31 @@ def _projected_levels_stacked(joint: JointModel, shape: Mapping[str, float], del
     return rss, values
 
 
+def few_edges(joint: JointModel, count: int | None = None) -> JointModel | None:
+    """The joint model of ``count`` (default :data:`GRID_EDGES`) of its edges,
+    in consecutive pairs spread over the record (as many rising as falling
+    edges, each pair's second edge with its previous-edge tail), or None when
+    it has no more edges than that."""
+    count = count or GRID_EDGES
+    m = len(joint.segments)
+    if m <= count:
+        return None
+    pairs = count // 2
+    firsts = sorted({2 * int(round(j * (m // 2 - 1) / max(pairs - 1, 1))) for j in range(pairs)})
+    pick = [i for f in firsts for i in (f, f + 1) if i < m]
+    return JointModel(joint.form, [joint.segments[i] for i in pick], joint.scaling,
+                      measured_input=joint.measured_input, free_t0=joint.free_t0,
+                      max_points=int(max(d.y.size for d in joint.data)))
+
+
 def best_starts(joint: JointModel, keep: int = 3) -> list[dict[str, float]]:
     """The ``keep`` best starting points (internal parameter values), best first.
 
     With many edges the grid is scored on :data:`GRID_EDGES` of them spread
     over the record (a start needs no more), and the chosen starts get every
     edge's levels."""
-    m = len(joint.segments)
-    if m > GRID_EDGES:
-        pick = sorted({int(round(i * (m - 1) / (GRID_EDGES - 1))) for i in range(GRID_EDGES)})
-        sub = JointModel(joint.form, [joint.segments[i] for i in pick], joint.scaling,
-                         measured_input=joint.measured_input, free_t0=joint.free_t0,
-                         max_points=int(max(d.y.size for d in joint.data)))
+    sub = few_edges(joint)
+    if sub is not None:
         out = []
         for start in best_starts(sub, keep):
             shape = {p.name: math.exp(start["log_" + p.name]) for p in joint.form.shape}
