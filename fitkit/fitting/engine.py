@@ -413,7 +413,7 @@ def _trim_overlaps(joint: JointModel, fit: ModelFit) -> list[StepSegment] | None
     starts; what is left of its settling is the next window's previous-edge
     tail (:meth:`.joint_model.JointModel.previous_tail`).
     """
-    if not joint.free_t0 or len(joint.segments) < 2:
+    if not (joint.free_t0 or joint.measured_input) or len(joint.segments) < 2:
         return None
     sc = joint.scaling
     segs = list(joint.segments)
@@ -421,7 +421,7 @@ def _trim_overlaps(joint: JointModel, fit: ModelFit) -> list[StepSegment] | None
     changed = False
     for i in range(len(segs) - 1):
         seg, nxt = segs[i], joint.segments[i + 1]
-        limit = starts[i + 1]
+        limit = starts[i + 1] if joint.free_t0 else math.inf
         if joint.previous_steps[i + 1] is not None:  # consecutive windows of one record
             limit = min(limit, float(nxt.time[0]))
         if seg.time[-1] >= limit > seg.edge_time:
