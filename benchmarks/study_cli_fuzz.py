@@ -25,6 +25,7 @@ from __future__ import annotations
 import argparse
 import contextlib
 import io
+import json
 import os
 import random
 import signal
@@ -189,6 +190,8 @@ def main() -> None:
           f"| {args.cases} | {len(problems['internal'])} | {len(problems['traceback_or_warning'])} | "
           f"{len(problems['long_error'])} | {len(problems['undocumented_status'])} | {len(problems['timeout'])} | "
           + ", ".join(f"{k}: {v}" for k, v in sorted(statuses.items())) + f" | {elapsed:.0f} |", ""]
+    # paths in the records relative to the checkout: no machine path in the results
+    data = json.loads(json.dumps(data).replace(str(ROOT) + os.sep, ""))
     jpath, mpath = write_results("cli_fuzz", data, "\n".join(md), args.out)
     print("\n".join(md))
     print(f"written {jpath} and {mpath}")
