@@ -77,6 +77,8 @@ class CheckResult:
     diagnosis: Diagnosis | None
     measured_input: bool
     envelope_volts: tuple[np.ndarray, np.ndarray, np.ndarray] | None = field(default=None, repr=False)
+    #: the channels' roles: {"input": name or None, "output": name, "why": [decisions]}
+    channels: dict[str, Any] = field(default_factory=dict)
 
     def to_dict(self) -> dict[str, Any]:
         env = self.envelope.to_dict()
@@ -86,6 +88,7 @@ class CheckResult:
             "file": self.file, "design": self.design.name, "design_file": self.design.path,
             "verdict": self.verdict, "summary": self.summary,
             "model_driven_by": "measured input" if self.measured_input else "ideal step (no input channel)",
+            "channels": dict(self.channels),
             "components": {c.part: c.to_dict() for c in self.components},
             "quantities": {q.name: q.to_dict() for q in self.quantities},
             "suspects": [s.to_dict() for s in self.suspects],
@@ -170,7 +173,9 @@ def check_capture(capture: Capture, design: Design | str | Path, *, input: str |
     summary = _summary(verdict, quantities, diagnosis, design)
     return CheckResult(file, design, verdict, summary, components, quantities,
                        diagnosis.suspects if diagnosis else (), envelope, comparison, tuple(resolve),
-                       tuple(dict.fromkeys(warnings)), fit, diagnosis, measured, env_volts)
+                       tuple(dict.fromkeys(warnings)), fit, diagnosis, measured, env_volts,
+                       {"input": analysis.input_channel, "output": analysis.output_channel,
+                        "why": [d for d in analysis.decisions if "channel" in d]})
 
 
 def _behaviour(design: Design, segments, measured: bool, file: str, warnings: list[str]):

@@ -125,7 +125,8 @@ def set_aside_copies(channels: list[Channel], time: np.ndarray | None = None) ->
     A copy keeps the channel with a physical unit (V before counts or none), else
     a name that does not say raw codes, else values that are not whole numbers,
     else the first. A math channel is one explained by two others to within its
-    noise. A channel that is a straight line in time (a second time column of a
+    noise; of three channels that each are a combination of the other two, the
+    last in the file is the math channel. A channel that is a straight line in time (a second time column of a
     file that gives every channel its own) is not a signal.
     """
     if len(channels) < 2:
@@ -150,7 +151,8 @@ def set_aside_copies(channels: list[Channel], time: np.ndarray | None = None) ->
             continue
         kept.append(c)
     derived = []
-    for c in kept:
+    # a math channel comes after the channels it is computed from: try the last first
+    for c in sorted(kept, key=lambda k: -channels.index(k)):
         others = [k for k in kept if k is not c and k not in derived]
         pair = next(((a, b) for i, a in enumerate(others) for b in others[i + 1:]
                      if _is_copy(data[c.name], [data[a.name], data[b.name]], noise[c.name])), None)

@@ -27,6 +27,15 @@ def _iv(ci, unit: str) -> str:
     return "-" if ci is None else format_interval(ci[0], ci[1], unit, digits=4)
 
 
+def _channels_line(result) -> list[str]:
+    """The channels' roles, as the fit's text says them (empty for a result without them)."""
+    channels = getattr(result, "channels", None) or {}
+    if not channels.get("output"):
+        return []
+    drive = f"input {channels['input']!r}, " if channels.get("input") else "no input, "
+    return [f"  channels: {drive}output {channels['output']!r}"]
+
+
 def render_check_text(result) -> str:
     """The CheckResult as a readable report (engineering notation, SI units)."""
     d = result.design
@@ -34,6 +43,7 @@ def render_check_text(result) -> str:
              f"  design: {d.name}" + (f" ({d.path})" if d.path else ""),
              f"  model driven by: {'the measured input' if result.measured_input else 'an ideal step (no input channel)'}"
              + (f"; fixture: {d.circuit.chain.describe()}" if not d.circuit.chain.is_empty else ""),
+             *_channels_line(result),
              "", f"  {BANNER[result.verdict]}", f"  {result.summary}", ""]
     if result.quantities:
         lines.append("behaviour                  measured     95 % interval                  allowed range"
