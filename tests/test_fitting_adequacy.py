@@ -102,3 +102,19 @@ def test_text_output_puts_the_finding_first_and_prints_no_interval(tmp_path, cap
     assert text.startswith("NOT A MEASUREMENT: the first-order form does not describe this capture")
     tau_line = next(ln for ln in text.splitlines() if ln.strip().startswith("tau "))
     assert "[" not in tau_line  # no interval beside a number that is not a measurement
+
+
+def test_every_report_of_a_refused_fit_drops_the_intervals(tmp_path, capsys):
+    """CSV, HTML and --quiet of a fit that does not describe its capture carry no interval."""
+    import pandas as pd
+    path = two_pole_file(tmp_path, seed=10)
+    csv_path, html_path = tmp_path / "fit.csv", tmp_path / "fit.html"
+    status = run_with_error_handling(cli, ["fit", str(path), "--model", "first-order", "--quiet",
+                                           "--csv", str(csv_path), "--report", str(html_path)])
+    quiet = capsys.readouterr().out
+    assert status == 6
+    assert all(line.split()[1] == "undetermined" for line in quiet.splitlines())
+    frame = pd.read_csv(csv_path)
+    assert frame["ci95_low"].isna().all() and frame["ci95_high"].isna().all() and not frame["determined"].any()
+    page = html_path.read_text(encoding="utf-8")
+    assert "NOT A MEASUREMENT" in page and "does not describe this capture" in page

@@ -128,6 +128,13 @@ def _quantity_table(kind: str, rows: Sequence[QuantityRow]) -> str:
 
 def _summary(result: FitResult) -> str:
     items = [("capture file", result.file or "(in memory)"), ("chosen form", result.model or "(none)")]
+    if not result.describes_data:
+        items.insert(0, ("NOT A MEASUREMENT", result.adequacy.finding))
+        items += [("what would work", fix) for fix in result.adequacy.fixes]
+    channels = (result.extra or {}).get("channels")
+    if channels:
+        items.append(("channels", (f"input {channels['input']!r}, " if channels.get("input") else "no input, ")
+                      + f"output {channels['output']!r}"))
     if result.selection_reason:
         items.append(("why this form", result.selection_reason))
     other = runner_up(result)

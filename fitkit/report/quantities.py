@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Iterator
 
 from quantiphy import Quantity
@@ -96,16 +96,31 @@ def quantity_rows(result: FitResult, *, skip_repeated: bool = False) -> Iterator
 
     With ``skip_repeated`` a derived quantity that repeats a parameter of the
     same name (for example "tau" of a first-order fit) is left out, so a table
-    shows each quantity once.
+    shows each quantity once. When the form does not describe the capture every
+    estimate comes without interval (see :func:`_not_a_measurement`), so no
+    report prints an interval as if it held.
     """
+    shown = _as_measured if result.describes_data else _not_a_measurement
     for name, est in result.parameters.items():
-        yield QuantityRow("parameter", name, est)
+        yield QuantityRow("parameter", name, shown(est))
     for name, est in result.derived.items():
         if skip_repeated and name in result.parameters:
             continue
-        yield QuantityRow("derived", name, est)
+        yield QuantityRow("derived", name, shown(est))
     for name, est in result.components.items():
-        yield QuantityRow("component", name, est)
+        yield QuantityRow("component", name, shown(est))
+
+
+def _as_measured(est: Estimate) -> Estimate:
+    return est
+
+
+def _not_a_measurement(est: Estimate) -> Estimate:
+    """An estimate of a fit that does not describe its capture, as every report shows
+    it: the value kept for diagnosis, no interval and no standard error (they would
+    read as if they held), marked not determined."""
+    return replace(est, ci95=None, stderr=None, determined=False,
+                   interval_method="none: the form does not describe the capture")
 
 
 def format_quantity(value: float | None, unit: str = "", digits: int = 4) -> str:

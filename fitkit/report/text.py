@@ -149,7 +149,8 @@ def _quantity_table(title: str, rows: Sequence[QuantityRow], preferred: dict | N
     table = [["name", "value", "95 % interval"] + (["nearest E24"] if preferred else []) + ["meaning"]]
     for row in rows:
         est = row.estimate
-        value = value_text(est)
+        # a rejected fit's values are shown for diagnosis, without interval
+        value = value_text(est) if measured else format_quantity(est.value, est.unit)
         interval = interval_text(est) if value != NOT_DETERMINED and measured else ""
         cells = [row.name, value, interval or "-"]
         if preferred:
