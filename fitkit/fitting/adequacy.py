@@ -20,12 +20,14 @@ noise. This module decides that from two measurements of the residuals:
   stands in for it.
 
 A fit is refused ("does not describe the capture") when the misfit ratio
-exceeds :data:`MISFIT_RATIO` and the residual is structured. The thresholds are
-set between the real captures whose forms were right (misfit 1.0 to 2.6x the
-noise) and those whose forms were wrong (7x to 340x) in
-../shared/reference/real-captures (benchmarks/study_real_captures.py); a
-correct form under band-limited noise measured by differences alone can show a
-high ratio, but not a structured one, so it is not refused.
+exceeds :data:`MISFIT_RATIO` and the residual is structured. The thresholds come
+from ../shared/reference/real-captures (benchmarks/study_real_captures.py): the
+fits whose forms were right left 1.0 to 1.9x the noise, or 2.5x unstructured;
+those whose forms were wrong left 7x to 340x, and the ladder's two-pole fit
+without its dead time (a second time constant twice the stated one, its
+interval excluding it) 2.6x, strongly structured (3.6). A correct form under
+band-limited noise measured by differences alone can show a high ratio, but not
+a structured one, so it is not refused.
 """
 
 from __future__ import annotations
