@@ -63,7 +63,8 @@ def check(file: str, out_file: str | None, design_path: str, edge_time: str | No
     store_request = StoreRequest.pop(kwargs)
     design = load_design(design_path)
     capture = options.load(file, out_file)
-    inp, out = options.roles(capture)
+    # the library decides the roles it was not told (fitkit.conditioning.roles), once
+    inp, out = options.input_channel, options.output_channel
     result = check_capture(capture, design, input=inp, output=out, average=average, envelope_trials=trials,
                            seed=seed, edge_time=t_edge)
     emit_result(outputs, result, capture, as_json)

@@ -206,11 +206,13 @@ def _responses(drive: Channel | None, candidates: list[Channel]) -> tuple[list[C
             continue
         r2, _ = _explained(y, [u])
         (follows if r2 >= FOLLOWS_DRIVE_R2 else returns).append((r2, c))
-    ranked = [c for _, c in sorted(follows, key=lambda p: p[0])] + [c for _, c in sorted(returns, key=lambda p: p[0])]
+    follows.sort(key=lambda p: p[0])
+    returns.sort(key=lambda p: p[0])
+    ranked = [c for _, c in follows] + [c for _, c in returns]
     if len(ranked) > 1:
         first = ranked[0]
         kind = ("settles to a new level after each edge and is the least like the drive" if follows
-                and first is sorted(follows, key=lambda p: p[0])[0][1] else "returns to its baseline after each edge")
+                else "returns to its baseline after each edge")
         notes.append(f"output channel {first.name!r}: of the channels that respond to the drive it {kind}; "
                      f"others: {', '.join(repr(c.name) for c in ranked[1:])} (choose one with --output)")
     return ranked + copies, notes

@@ -122,7 +122,6 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
     if candidates is None:
         chosen, scores, reason, sel_warn = _with_dead_time(chosen, scores, reason, sel_warn, cands, trial,
                                                          dt, select_kwargs)
-    fixes = _alternative_forms(chosen, cands, trial)
     final = chosen.fit
     if coarse:
         refit = fit_form(segments, chosen.form, **kwargs)
@@ -137,8 +136,11 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
     final = quantised_refit(final) or final
     shape, notes = shape_estimates(final, intervals)
     chosen = Candidate(chosen.form, final, shape, True, "")
-    return _build(chosen, scores, reason, sel_warn + notes + list(warnings), file, segments, derived,
-                  fixes=fixes)
+    result = _build(chosen, scores, reason, sel_warn + notes + list(warnings), file, segments, derived)
+    if not result.describes_data:
+        fixes = tuple(_alternative_forms(chosen.form, cands, trial))
+        result = replace(result, adequacy=replace(result.adequacy, fixes=fixes))
+    return result
 
 
 def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = None,
@@ -221,7 +223,7 @@ def _fit_analysis(capture: Capture, analysis, *, model, edge_time, average, cand
 # -- assembling the result ------------------------------------------------------
 
 def _build(cand: Candidate, scores: tuple, reason: str, warnings: list[str], file: str,
-           segments: Sequence[StepSegment], with_derived: bool = True, fixes: Sequence[str] = ()) -> FitResult:
+           segments: Sequence[StepSegment], with_derived: bool = True) -> FitResult:
     ff = cand.fit
     assert ff is not None
     shape = cand.shape
@@ -244,7 +246,6 @@ def _build(cand: Candidate, scores: tuple, reason: str, warnings: list[str], fil
             warnings.append(f"{name} is not determined by the data (interval unbounded); not a measurement")
     diagnostics, diag_warn, adequacy = _diagnostics(ff, segments)
     if not adequacy.describes_data:
-        adequacy = replace(adequacy, fixes=tuple(fixes))
         reason = (f"{ff.form.name} fitted best of the forms tried, but does not describe the capture"
                   if len(scores) > 1 else f"{ff.form.name} was asked for, but does not describe the capture")
     fitted = _fitted_segments(ff)
@@ -376,17 +377,15 @@ def _with_dead_time(chosen: Candidate, scores, reason: str, sel_warn: list[str],
     return cand, tuple(rescored), reason, list(sel_warn) + [note]
 
 
-def _alternative_forms(chosen: Candidate, candidates: Sequence[Candidate],
+def _alternative_forms(chosen: Form, candidates: Sequence[Candidate],
                        segments: Sequence[StepSegment]) -> list[str]:
-    """When the chosen form does not describe the capture: the other candidates
+    """For a chosen form that does not describe the capture: the other candidates
     that would (residuals near the noise), as one line each with the option to
-    give and why they were set aside. Empty when the chosen form describes it."""
+    give and why they were set aside."""
     noise = capture_noise(segments)
-    if chosen.fit is None or assess(chosen.fit, noise, chosen.fit.correction.lag1).describes_data:
-        return []
     fixes = []
     for c in candidates:
-        if c is chosen or c.fit is None or not c.fit.converged:
+        if c.form is chosen or c.fit is None or not c.fit.converged:
             continue
         if "not determined" in c.note or "did not converge" in c.note:
             continue  # a form whose own parameters the data do not fix is no fix
