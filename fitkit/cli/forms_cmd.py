@@ -19,6 +19,8 @@ def forms_text(descriptions: list[dict], common: list[dict], delay_suffix: str =
     for d in descriptions:
         poles = f"{d['poles']} pole" + ("s" if d["poles"] != 1 else "")
         how = "tried by --model auto" if d["automatic"] else "fitted only when named with --model"
+        if d["automatic"] and d["settles_to"] == 0:
+            how += " when the response returns to its baseline"
         lines.append(f"{d['name']}  ({poles}; {how})")
         lines.append(f"    {d['summary']}")
         for p in d["parameters"]:

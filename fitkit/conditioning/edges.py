@@ -54,6 +54,8 @@ HIGH_THRESHOLD = 0.75
 ENDS_APART = 0.3
 #: A state held for fewer samples than this (or a fifth of the median edge spacing) is noise.
 MIN_DWELL_SAMPLES = 5
+#: Two same-sign groups of large differences this many samples apart or closer are one jump.
+JUMP_GAP_SAMPLES = 8
 
 
 @dataclass(frozen=True)
@@ -195,9 +197,13 @@ def edges_by_levels(time: np.ndarray, values: np.ndarray, levels: StateLevels,
 def edges_by_jumps(time: np.ndarray, values: np.ndarray, noise_rms: float) -> EdgeSearch:
     """Edges of a trace that jumps and decays back: groups of large first differences.
 
-    A difference counts when it exceeds half the largest difference and 8 noise
+    A difference counts when it exceeds half the largest difference and 4 noise
     sigma times sqrt(2) (the spread of a difference of two noisy samples).
-    Differences of one sign no more than two samples apart form one jump.
+    Differences of one sign no more than two samples apart form one jump (and
+    nearby same-sign groups are joined, see ``_merged_jumps``); a jump counts
+    when the trace moves by more than 8 noise sigma times sqrt(2) across it, so
+    a jump spread over a few samples (each difference well under the whole
+    change) is found while a lone noisy difference is not.
     """
     method = "sudden jumps (the trace leaves one level and returns to it)"
     d = np.diff(values)
@@ -206,14 +212,15 @@ def edges_by_jumps(time: np.ndarray, values: np.ndarray, noise_rms: float) -> Ed
     size = np.abs(d)
     biggest = float(np.nanmax(size))
     noise = noise_rms if np.isfinite(noise_rms) else 0.0
-    threshold = max(0.5 * biggest, 8 * np.sqrt(2.0) * noise)
+    threshold = max(0.5 * biggest, 4 * np.sqrt(2.0) * noise)
     if not biggest > threshold:  # nothing stands out of the noise
         return EdgeSearch((), method)
+    least_jump = 8 * np.sqrt(2.0) * noise
     cand = np.flatnonzero(size > threshold)
     sign = np.sign(d[cand]).astype(int)
     breaks = np.flatnonzero((np.diff(cand) > 2) | (sign[1:] != sign[:-1])) + 1
-    starts = np.concatenate(([0], breaks))
-    stops = np.concatenate((breaks, [cand.size])) - 1
+    starts, stops = _merged_jumps(cand, sign, np.concatenate(([0], breaks)),
+                                  np.concatenate((breaks, [cand.size])) - 1)
     tol_floor = 3 * noise
     edges: list[Edge] = []
     floor = 0
@@ -222,6 +229,8 @@ def edges_by_jumps(time: np.ndarray, values: np.ndarray, noise_rms: float) -> Ed
         direction = int(sign[g0])
         before = float(np.median(values[max(floor, first - 8):first + 1]))
         after = float(values[last])
+        if not abs(after - before) > least_jump:
+            continue
         mid = 0.5 * (before + after)
         if (values[first] - mid) * (after - mid) >= 0:  # keep the bracketing samples straddling mid
             mid = 0.5 * (float(values[first]) + after)
@@ -231,6 +240,24 @@ def edges_by_jumps(time: np.ndarray, values: np.ndarray, noise_rms: float) -> Ed
         edges.append(Edge(index, t_edge, direction, onset, before, after))
         floor = last
     return EdgeSearch(tuple(edges), method)
+
+
+def _merged_jumps(cand: np.ndarray, sign: np.ndarray, starts: np.ndarray,
+                  stops: np.ndarray) -> tuple[list[int], list[int]]:
+    """Groups of large differences joined into one jump when they have the same sign and the gap
+    between them is at most ``max(JUMP_GAP_SAMPLES, 4 x`` the jump's length so far): a fast rise
+    that lasts a few samples (a band-pass rising with its fast pole) dips below the threshold
+    between noisy samples, and two rises of one sign with no fall between are one edge."""
+    merged_starts, merged_stops = [int(starts[0])], [int(stops[0])]
+    for g0, g1 in zip(starts[1:], stops[1:]):
+        first_prev, last_prev = cand[merged_starts[-1]], cand[merged_stops[-1]]
+        gap = int(cand[g0] - last_prev)
+        if sign[g0] == sign[merged_stops[-1]] and gap <= max(JUMP_GAP_SAMPLES, 4 * (last_prev - first_prev + 1)):
+            merged_stops[-1] = int(g1)
+        else:
+            merged_starts.append(int(g0))
+            merged_stops.append(int(g1))
+    return merged_starts, merged_stops
 
 
 def detect_edges(time: np.ndarray, values: np.ndarray, levels: StateLevels,

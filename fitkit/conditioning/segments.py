@@ -22,8 +22,10 @@ Levels of a window (V):
   (under 4 standard errors); common practice, no source;
 * noise: spread of the pre-edge samples about a straight line (robust MAD
   spread, or the plain standard deviation for quantised traces) when there
-  are at least 32 of them, which also counts correlated noise; else the
-  channel's estimate; never below the quantisation floor q / sqrt(12).
+  are at least 32 of them, which also counts correlated noise, in the quietest
+  of up to four blocks (a record can begin while an earlier edge's response
+  still moves); else the channel's estimate; never below the quantisation floor
+  q / sqrt(12).
 
 A response that comes back to its baseline (the output of a high-pass filter,
 the voltage across an inductor) is recognised when its final level lies
@@ -56,6 +58,10 @@ FINAL_FRACTION = 0.2
 TAIL_SPAN = (0.6, 0.95)
 #: A final level within this share of the peak excursion counts as "back at the baseline".
 RETURN_FRACTION = 0.3
+#: The pre-edge noise is measured in up to this many blocks of at least this many samples (the quietest counts).
+NOISE_BLOCKS = 4
+NOISE_BLOCK_SAMPLES = 256
+NOISE_BLOCKS_DISAGREE = 2.0
 
 
 def window_bounds(time: np.ndarray, edges: Sequence[Edge]) -> list[tuple[int, int]]:
@@ -95,12 +101,32 @@ def _tail_settled(t: np.ndarray, y: np.ndarray, tolerance: float) -> bool:
 
 
 def _baseline_noise(t: np.ndarray, y: np.ndarray, quantised: bool) -> float:
-    """Spread of the pre-edge samples about a straight line (V); NaN for under 32 samples."""
+    """Spread of the pre-edge samples about a straight line (V); NaN for under 32 samples.
+
+    A window that starts at the capture's first sample can still hold the
+    response to an edge before the record began (a ringing band-pass, a slow
+    tail): signal, not noise, which would blind every comparison of residuals
+    with the noise. So the pre-edge samples are also cut into up to
+    :data:`NOISE_BLOCKS` blocks of at least :data:`NOISE_BLOCK_SAMPLES`; when
+    the blocks' spreads differ by more than :data:`NOISE_BLOCKS_DISAGREE`
+    times (stationary noise keeps them within about 20 % at this size), the
+    quietest block's spread is the noise (common practice, no source).
+    """
     if y.size < 32:
         return float("nan")
-    coef = np.polyfit(t - t[0], y, 1)
-    resid = y - np.polyval(coef, t - t[0])
-    return float(np.std(resid, ddof=2)) if quantised else robust_sigma(resid)
+
+    def spread(tb: np.ndarray, yb: np.ndarray) -> float:
+        coef = np.polyfit(tb - tb[0], yb, 1)
+        resid = yb - np.polyval(coef, tb - tb[0])
+        return float(np.std(resid, ddof=2)) if quantised else robust_sigma(resid)
+
+    whole = spread(t, y)
+    n_blocks = int(min(NOISE_BLOCKS, y.size // NOISE_BLOCK_SAMPLES))
+    if n_blocks < 2:
+        return whole
+    spreads = [spread(t[b], y[b]) for b in np.array_split(np.arange(y.size), n_blocks)]
+    quietest = min(spreads)
+    return quietest if max(spreads) > NOISE_BLOCKS_DISAGREE * quietest else whole
 
 
 def describe_window(time: np.ndarray, output: np.ndarray, input: np.ndarray | None,

@@ -20,7 +20,9 @@ noise. This module decides that from two measurements of the residuals:
   stands in for it.
 
 A fit is refused ("does not describe the capture") when the misfit ratio
-exceeds :data:`MISFIT_RATIO` and the residual is structured. The thresholds come
+exceeds :data:`MISFIT_RATIO` and the residual is structured (larger where the
+response moves, or larger where the fitted form has settled but the data have
+not), or whatever its shape when the ratio exceeds :data:`MISFIT_CEILING`. The thresholds come
 from ../shared/reference/real-captures (benchmarks/study_real_captures.py): the
 fits whose forms were right left 1.0 to 1.9x the noise, or 2.5x unstructured;
 those whose forms were wrong left 7x to 340x, and the ladder's two-pole fit
@@ -41,6 +43,9 @@ from ..results import Adequacy, EdgeAdequacy
 MISFIT_RATIO = 2.0
 #: Moving-part residual RMS above this multiple of the quiet part's is structure.
 ACTIVE_TO_QUIET = 1.6
+#: RMS residual above this multiple of the noise is misfit whatever its shape: the noise is
+#: measured on the settled baseline, which holds band-limited noise too (common practice, no source).
+MISFIT_CEILING = 10.0
 #: Lag-1 autocorrelation above this is structure when the parts cannot be compared.
 LAG1_STRUCTURED = 0.5
 #: A part needs at least this many points to be measured.
@@ -93,14 +98,21 @@ def assess(ff, noise_rms: float, lag1: float) -> Adequacy:
     structure = (math.sqrt(np.mean(np.square(moving))) / math.sqrt(np.mean(np.square(quiet)))
                  if moving and quiet and min(quiet) > 0 else math.nan)
     if math.isfinite(structure):
-        structured = structure > ACTIVE_TO_QUIET
+        # misfit where the response moves, or where the fitted form has settled and the data have not
+        structured = structure > ACTIVE_TO_QUIET or structure < 1.0 / ACTIVE_TO_QUIET
     else:
         structured = math.isfinite(lag1) and lag1 > LAG1_STRUCTURED
-    describes = not (math.isfinite(ratio) and ratio > MISFIT_RATIO and structured)
+    describes = not (math.isfinite(ratio) and (ratio > MISFIT_CEILING or (ratio > MISFIT_RATIO and structured)))
     finding = ""
     if not describes:
-        where = (f"{structure:.1f} times larger where the response moves than where it is quiet"
-                 if math.isfinite(structure) else f"correlated from sample to sample (lag-1 {lag1:.2f})")
+        if math.isfinite(structure) and structure > ACTIVE_TO_QUIET:
+            where = f"{structure:.1f} times larger where the response moves than where it is quiet"
+        elif math.isfinite(structure) and structure < 1.0 / ACTIVE_TO_QUIET:
+            where = f"{1.0 / structure:.1f} times larger where the fitted form has settled than where it moves"
+        elif math.isfinite(lag1) and lag1 > LAG1_STRUCTURED:
+            where = f"correlated from sample to sample (lag-1 {lag1:.2f})"
+        else:
+            where = "far above what any noise in the capture explains"
         finding = (f"the {ff.form.name} form does not describe this capture: its residuals are "
                    f"{ratio:.1f} times the noise and {where}; its numbers are not measurements")
     return Adequacy(describes, ratio, structure, structured, finding, (), tuple(edges))

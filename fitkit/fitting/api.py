@@ -93,7 +93,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         reason = f"{chosen_form.name} was asked for"
         return _build(cand, scores, reason, extra_warn + list(warnings), file, segments, derived)
     forms = [f if isinstance(f, Form) else get_form(f) for f in candidates] if candidates \
-        else default_candidates(_returns_to_baseline(segments))
+        else default_candidates(_returns_to_baseline(segments), _moves_wrong_way(segments))
     cands: list[Candidate] = []
     queue = list(forms)
     # candidates compete on coarser bins of a long record, and on the first
@@ -420,3 +420,28 @@ def _returns_to_baseline(segments: Sequence[StepSegment]) -> bool:
     seg = segments[0]
     excursion = float(np.max(np.abs(np.asarray(seg.output) - seg.baseline))) if seg.output.size else 0.0
     return excursion > 0 and abs(seg.final - seg.baseline) < 0.2 * excursion
+
+
+#: A response "first moves the wrong way" when, before it first crosses half its step, its
+#: 5-sample running mean goes against the step by more than this many noise sigmas ...
+WRONG_WAY_SIGMAS = 6.0
+#: ... and by more than this fraction of the step (common practice, no source).
+WRONG_WAY_FRACTION = 0.02
+
+
+def _moves_wrong_way(segments: Sequence[StepSegment]) -> bool:
+    """True when, on most edges, the output first moves against its step (an undershoot: a
+    right-half-plane zero, or a probe or ground artefact) before it rises."""
+    votes = []
+    for seg in segments[:SELECTION_EDGES]:
+        step = float(seg.final - seg.baseline)
+        if seg.returns_to_baseline or not (math.isfinite(step) and step != 0.0) or seg.output.size < 10:
+            continue
+        y = (np.asarray(seg.output, dtype=float) - seg.baseline) / step
+        smooth = np.convolve(y, np.ones(5) / 5.0, mode="valid")
+        crossed = np.flatnonzero(smooth > 0.5)
+        before = smooth[:crossed[0]] if crossed.size else smooth
+        noise = seg.noise_rms / abs(step) if math.isfinite(seg.noise_rms) else 0.0
+        depth = -float(np.min(before)) if before.size else 0.0
+        votes.append(depth > max(WRONG_WAY_SIGMAS * noise / math.sqrt(5.0), WRONG_WAY_FRACTION))
+    return bool(votes) and sum(votes) > len(votes) / 2

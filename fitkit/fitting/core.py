@@ -108,8 +108,16 @@ def covariance_from_jacobian(jac_w: np.ndarray, s2: float) -> tuple[np.ndarray, 
     norms = np.sqrt(np.sum(jac_w ** 2, axis=0))
     if p == 0:
         return np.zeros((0, 0)), False, 1.0
-    if not np.all(np.isfinite(jac_w)) or np.any(norms == 0):
+    if not np.all(np.isfinite(jac_w)) or np.all(norms == 0):
         return np.full((p, p), np.nan), True, math.inf
+    if np.any(norms == 0):
+        # a parameter the model no longer depends on (a dead time or a pole run to its floor):
+        # not determined; the others' covariance holds it at its value
+        alive = np.flatnonzero(norms > 0)
+        sub, singular, cond = covariance_from_jacobian(jac_w[:, alive], s2)
+        cov = np.full((p, p), np.nan)
+        cov[np.ix_(alive, alive)] = sub
+        return cov, singular, cond
     scaled = jac_w / norms
     # Fast path for a well-conditioned J: the eigen-decomposition of the small
     # p x p matrix J^T J (its eigenvalues are the squared singular values);

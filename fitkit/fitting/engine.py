@@ -176,10 +176,12 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     has_input = has_measured_input(segments)
     measured_input = has_input if measured_input is None else measured_input
     if free_t0 is None:
-        # A response that jumps at the edge (final value 0, e.g. first-order-decay)
-        # fixes its edge only to within a sample, where t0 and step trade off
-        # exactly: the edge then stays at the conditioning's jump time.
-        free_t0 = not has_input and getattr(form, "final_value", 1.0) != 0.0
+        # A response that jumps at the edge (e.g. first-order-decay) fixes its
+        # edge only to within a sample, where t0 and step trade off exactly: the
+        # edge then stays at the conditioning's jump time. One that rises from
+        # its baseline (every low-pass form, and the band-pass forms, which
+        # return to 0 without jumping) has its edge time fitted.
+        free_t0 = not has_input and not form.edge_jumps
     scaling = make_scaling(segments, form, measured_input)
     joint = JointModel(form, segments, scaling, measured_input=measured_input, free_t0=free_t0,
                        max_points=max_points)

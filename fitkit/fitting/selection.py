@@ -37,6 +37,12 @@ RESOLVED_FRACTION = 0.5
 CRITERION = "AICc"
 #: Default candidates, simplest first, used when they exist in FORMS.
 DEFAULT_CANDIDATES = ("first-order", "first-order-decay", "two-real-pole", "underdamped", "three-real-pole")
+#: Candidates for a response that returns to its baseline after each edge, simplest first: the
+#: high-pass decay that jumps at the edge, and the band-pass forms that rise from the baseline
+#: (the voltage across the series resistor of an RLC) and come back.
+RETURNING_CANDIDATES = ("first-order-decay", "two-real-pole-band-pass", "underdamped-band-pass")
+#: Tried as well when the response first moves the wrong way (a right-half-plane zero).
+UNDERSHOOT_CANDIDATES = ("two-real-pole-undershoot", "underdamped-undershoot")
 #: Tried as well when neither two-real-pole nor underdamped is supported by the data
 #: (neither converged, or neither is determined): the one-parameter double pole.
 #: (two-real-pole is fitted in tau0 and Q, so equal poles alone no longer need it.)
@@ -54,18 +60,23 @@ class Candidate:
     note: str
 
 
-def default_candidates(returns_to_baseline: bool) -> list[Form]:
+def default_candidates(returns_to_baseline: bool, moves_wrong_way: bool = False) -> list[Form]:
     """The default candidate forms that exist, simplest first.
 
-    first-order-decay is only a candidate when the response returns to its
-    baseline after each edge (a coupling-capacitor / high-pass response), and
-    then the low-pass forms are not.
+    When the response returns to its baseline after each edge the candidates
+    are :data:`RETURNING_CANDIDATES` (a coupling-capacitor high-pass, or a
+    band-pass), and the low-pass forms are not; else the low-pass forms of
+    :data:`DEFAULT_CANDIDATES`, joined by :data:`UNDERSHOOT_CANDIDATES` when
+    the response first moves against its step (they then compete by the same
+    rules: AICc margin and determinability).
     """
-    names = [n for n in DEFAULT_CANDIDATES if n in FORMS and getattr(FORMS[n], "auto_candidate", True)]
     if returns_to_baseline:
-        names = [n for n in names if n == "first-order-decay"] or names
+        names = [n for n in RETURNING_CANDIDATES if n in FORMS]
     else:
-        names = [n for n in names if n != "first-order-decay"]
+        names = [n for n in DEFAULT_CANDIDATES if n in FORMS and getattr(FORMS[n], "auto_candidate", True)
+                 and n != "first-order-decay"]
+        if moves_wrong_way:
+            names += [n for n in UNDERSHOOT_CANDIDATES if n in FORMS]
     return [FORMS[n] for n in names]
 
 

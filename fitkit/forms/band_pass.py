@@ -318,7 +318,7 @@ UNDERDAMPED_BAND_PASS = Form(
     derived_units={**BAND_PASS_UNITS, "damped_frequency": "Hz"},
     order=2,
     final_value=0.0,
-    auto_candidate=False,
+    auto_candidate=True,
     jumps_at_edge=False,
 )
 
@@ -336,7 +336,7 @@ TWO_REAL_POLE_BAND_PASS = Form(
     derived_units={"tau1": "s", "tau2": "s", "tau0": "s", **BAND_PASS_UNITS},
     order=2,
     final_value=0.0,
-    auto_candidate=False,
+    auto_candidate=True,
     jumps_at_edge=False,
     canonical=canonical,
     reported_shape=(ParamSpec("tau1", "s", "time", "slower time constant (the fall)"),

@@ -93,6 +93,13 @@ def matching_form(problem: PartProblem) -> Form | None:
             return get_form("first-order-decay")
     if tf.order == 2 and kind == "dc" and num.size == 1:
         return get_form("second-order")
+    if tf.order == 2 and kind == "fixed" and num.size == 2 and num[-1] == 0:
+        # a band-pass k s / (a2 s^2 + a1 s + 1): its two forms split at Q = 1/2, taken from the
+        # circuit at its start values (Q = sqrt(a2) / a1)
+        den = np.asarray(tf.denominator, dtype=float)
+        den = den / den[-1]
+        q = math.sqrt(den[0]) / den[1] if den[0] > 0 and den[1] > 0 else math.nan
+        return get_form("underdamped-band-pass" if q > 0.5 else "two-real-pole-band-pass")
     return None
 
 

@@ -133,4 +133,7 @@ def circuit_form(circuit: Circuit, unknowns: Sequence[str], time_unit: float,
                 f"{', '.join(unknowns)} fitted directly",
                 shape=specs, unit_step=unit_step, transfer_function=transfer, guess=guess,
                 derived=derived, derived_units=QUANTITY_UNITS, order=tf0.order,
-                final_value=1.0 if kind == "dc" else 0.0, auto_candidate=False)
+                final_value=1.0 if kind == "dc" else 0.0, auto_candidate=False,
+                # only a response with a high-frequency gain jumps at the edge (a high-pass);
+                # a band-pass rises from its baseline, so its edge time can be fitted
+                jumps_at_edge=kind == "high")
