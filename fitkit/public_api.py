@@ -64,7 +64,7 @@ def _common(function: str, capture, input, output, edge_time, average) -> None:
 
 def fit_capture(capture: Capture, *, model: str = "auto", input: str | int | None = None,
                 output: str | int | None = None, edge_time: float | None = None, average: bool = False,
-                candidates=None, intervals: str = "auto", noise_record=None):
+                candidates=None, intervals: str = "auto", noise_record=None, pulse_width: float | None = None):
     from .fitting import fit_capture as _fit_capture
     from .forms import FORMS
     _common("fit_capture", capture, input, output, edge_time, average)
@@ -89,8 +89,14 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | int | Non
         if not isinstance(noise_record, NoiseRecord):
             raise ArgumentError("fit_capture: noise_record is a NoiseRecord "
                                 "(fitkit.fitting.noise_record.noise_record_from_capture)")
+    if pulse_width is not None:
+        if isinstance(pulse_width, bool) or not isinstance(pulse_width, (int, float)) \
+                or not (math.isfinite(pulse_width) and pulse_width > 0):
+            raise ArgumentError(f"fit_capture: pulse_width is a positive number of seconds, not {pulse_width!r}")
+        pulse_width = float(pulse_width)
     return _fit_capture(capture, model=model, input=input, output=output, edge_time=edge_time,
-                        average=average, candidates=candidates, intervals=intervals, noise_record=noise_record)
+                        average=average, candidates=candidates, intervals=intervals, noise_record=noise_record,
+                        pulse_width=pulse_width)
 
 
 def check_capture(capture: Capture, design, *, input: str | int | None = None, output: str | int | None = None,

@@ -131,9 +131,11 @@ def test_forms_command_json_lists_every_form_with_units():
     result = CliRunner().invoke(cli, ["forms", "--json"])
     assert result.exit_code == 0
     data = json.loads(result.output)
-    assert [f["name"] for f in data["forms"]] == list(FORMS)
+    from fitkit.forms import PULSE_FORMS
+    every = {**FORMS, **PULSE_FORMS}
+    assert [f["name"] for f in data["forms"]] == list(every)
     for entry in data["forms"]:
-        form = FORMS[entry["name"]]
+        form = every[entry["name"]]
         # the parameters a fit reports; a form fitted in other coordinates also lists those
         assert [p["name"] for p in entry["parameters"]] == [p.name for p in (form.reported_shape or form.shape)]
         if form.reported_shape:
@@ -171,5 +173,13 @@ def test_first_guess_is_measured_from_the_data(name, truth):
 def test_forms_listing_tells_the_truth_about_automatic_selection():
     # `fitkit forms` says which forms --model auto tries; that must match the engine's default list
     from fitkit.fitting import selection
-    auto = [n for n, f in FORMS.items() if f.auto_candidate]
-    assert auto == [n for n in selection.DEFAULT_CANDIDATES if n in FORMS]
+    from fitkit.forms import PULSE_FORMS
+    auto = {n for n, f in {**FORMS, **PULSE_FORMS}.items() if f.auto_candidate}
+    tried = set(selection.DEFAULT_CANDIDATES) | set(selection.RETURNING_CANDIDATES) \
+        | set(selection.UNDERSHOOT_CANDIDATES)
+    assert auto == {n for n in tried if n in FORMS or n in PULSE_FORMS}
+    # and the listing names the condition under which each conditional form is tried
+    from fitkit.cli.forms_cmd import automatic_condition
+    assert "returns to its baseline" in automatic_condition("underdamped-band-pass")
+    assert "wrong way" in automatic_condition("underdamped-undershoot")
+    assert automatic_condition("first-order") == ""

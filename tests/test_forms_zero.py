@@ -107,9 +107,11 @@ def test_overshoot_matches_its_closed_form(form, sign, tz_w0):
         assert d["undershoot"] == pytest.approx(-100 * low, rel=1e-8)
 
 
-def test_zero_forms_are_not_automatic_and_name_the_sign():
+def test_zero_forms_name_the_sign_and_only_the_undershoot_ones_are_automatic():
+    # the undershoot forms are tried when a response first moves the wrong way (tests/test_real_shapes.py)
+    assert not FORMS["underdamped-zero"].auto_candidate
     for name in ("underdamped-zero", "underdamped-undershoot", "two-real-pole-undershoot"):
-        assert not FORMS[name].auto_candidate
+        assert FORMS[name].auto_candidate == name.endswith("undershoot")
         assert all(p.name != "sign" for p in FORMS[name].shape)
         assert FORMS[name].shape_names.count("tz") == 1
 

@@ -143,3 +143,87 @@ def test_a_parameter_the_model_no_longer_depends_on_leaves_the_others_determined
     assert not singular
     assert np.isnan(cov[1]).all() and np.isnan(cov[:, 1]).all()
     np.testing.assert_allclose(cov[np.ix_([0, 2], [0, 2])], expected, rtol=1e-10)
+
+
+# -- pulse drives --------------------------------------------------------------------------------
+
+def _pulsed(tmp_path, num, den, *, width, dt, n, t_on, with_input, seed, name, noise=4e-3, amp=5.0):
+    """A rectangular drive pulse through num/den (scipy.signal.lsim), with or without the drive."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(n) * dt
+    u = amp * ((t >= t_on) & (t < t_on + width)).astype(float)
+    _, y, _ = sig.lsim(sig.lti(num, den), u, t)
+    cols = {"drive": u + noise * rng.standard_normal(n)} if with_input else {}
+    cols["out"] = y + noise * rng.standard_normal(n)
+    return _write(tmp_path / name, t, cols)
+
+
+def test_a_short_pulse_into_an_rc_without_its_drive_gives_tau_and_the_width(tmp_path):
+    tau, width = 100e-6, 20e-6
+    path = _pulsed(tmp_path, [1.0], [tau, 1.0], width=width, dt=1e-6, n=1000, t_on=100e-6,
+                   with_input=False, seed=31, name="rc_pulse.csv")
+    r = fit_capture(load_capture(path))
+    assert r.describes_data and r.model == "first-order-pulse"
+    assert _covers(r.parameters["tau"], tau) and _covers(r.parameters["pulse_width"], width)
+    # the step is the level the drive pulse would have taken the output to (5 V), not its peak (0.9 V)
+    assert _covers(r.parameters["step"], 5.0)
+
+
+def test_a_stated_pulse_width_makes_one_window_of_each_pulse(tmp_path):
+    tau, width = 100e-6, 20e-6
+    path = _pulsed(tmp_path, [1.0], [tau, 1.0], width=width, dt=1e-6, n=1000, t_on=100e-6,
+                   with_input=True, seed=32, name="rc_pulse_in.csv")
+    r = fit_capture(load_capture(path), pulse_width=width)
+    assert r.describes_data and r.model == "first-order"
+    assert len(r.segments) == 1
+    assert _covers(r.parameters["tau"], tau) and _covers(r.parameters["gain"], 1.0)
+    assert "step" not in r.derived  # the drive returns inside the window: there is no step to scale
+    assert not any("returns to its baseline" in w or "too short for the response" in w for w in r.warnings)
+
+
+def test_a_stated_pulse_width_on_a_ringing_output_falls_back_to_its_edges(tmp_path):
+    L, C, R = 14.7e-3, 9.94e-9, 350.0
+    w0 = 1 / math.sqrt(L * C)
+    path = _pulsed(tmp_path, [w0 ** 2], [1.0, R / L, w0 ** 2], width=20e-6, dt=2e-6, n=600, t_on=100e-6,
+                   with_input=False, seed=33, name="rlc_pulse.csv")
+    r = fit_capture(load_capture(path), pulse_width=20e-6)
+    assert r.describes_data and r.model == "underdamped"
+    assert _covers(r.parameters["f0"], w0 / (2 * math.pi)) and _covers(r.parameters["Q"], w0 * L / R)
+
+
+def test_pulse_leading_edges_pairs_opposite_edges_within_a_pulse():
+    from fitkit.conditioning.edges import Edge, pulse_leading_edges
+    times = [(1e-3, 1), (1.02e-3, -1), (2e-3, 1), (2.02e-3, -1), (3e-3, -1)]
+    edges = [Edge(i, t, d, i, 0.0, 1.0) for i, (t, d) in enumerate(times)]
+    kept = pulse_leading_edges(edges, 20e-6)
+    assert [e.time for e in kept] == [1e-3, 2e-3, 3e-3]
+
+
+def test_the_pulse_width_option_refuses_a_negative_width(tmp_path, capsys):
+    from fitkit.cli import cli
+    from fitkit.cli.errors_to_exit import run_with_error_handling
+    path = _pulsed(tmp_path, [1.0], [1e-4, 1.0], width=20e-6, dt=1e-6, n=400, t_on=100e-6,
+                   with_input=False, seed=34, name="p.csv")
+    status = run_with_error_handling(cli, ["fit", path, "--pulse-width", "-3u"])
+    out, err = capsys.readouterr()
+    assert status == 2
+    assert "--pulse-width" in err and len(err.strip().splitlines()) == 1 and "Traceback" not in err
+
+
+def test_a_record_that_begins_mid_response_is_said_so(tmp_path):
+    from fitkit.conditioning.analysis import analyse_steps
+    # an RC under a square wave (scipy.signal.lsim): edges every 2 time constants never let it settle,
+    # so a record cut anywhere begins moving; edges every 10 time constants, cut 6 after one, at rest
+    tau, dt = 100e-6, 1e-6
+    rng = np.random.default_rng(41)
+
+    def flagged(half_period, first):
+        t = np.arange(4000) * dt
+        u = 2.0 * (((t / (2 * half_period)) % 1.0) < 0.5).astype(float)
+        _, y, _ = sig.lsim(sig.lti([1.0], [tau, 1.0]), u, t)
+        y = y + 3e-3 * rng.standard_normal(t.size)
+        path = _write(tmp_path / f"cut_{half_period}_{first}.csv", t[first:] - t[first], {"out": y[first:]})
+        return any("already moving where the record begins" in f for f in analyse_steps(load_capture(path)).flags)
+
+    assert flagged(200e-6, 1250)      # 50 us after an edge, the next 150 us later
+    assert not flagged(1e-3, 1600)    # 600 us after an edge, the next 400 us later

@@ -151,6 +151,9 @@ def _relative_tolerance(text: str, unit: str, value_text: str, name: str) -> flo
 @click.option("--edge-time", metavar="SECONDS", default=None,
               help="Fit only the edge at this time (e.g. 12.5u).")
 @click.option("--average", is_flag=True, help="Average the edges coherently before fitting.")
+@click.option("--pulse-width", metavar="SECONDS", default=None,
+              help="The drive is rectangular pulses of this width (e.g. 20u): both edges of a pulse are "
+                   "fitted as one response.")
 @click.option("--intervals", type=click.Choice(["auto", "covariance", "profile"]), default="auto",
               show_default=True, help="How 95 % intervals of the shape parameters are found.")
 @click.option("--noise-record", metavar="FILE", default=None, type=click.Path(),
@@ -160,7 +163,7 @@ def _relative_tolerance(text: str, unit: str, value_text: str, name: str) -> flo
 @output_options
 @circuit_options
 def fit(file: str, out_file: str | None, model: str, edge_time: str | None, average: bool,
-        intervals: str, noise_record: str | None, as_json: bool, **kwargs) -> None:
+        pulse_width: str | None, intervals: str, noise_record: str | None, as_json: bool, **kwargs) -> None:
     """Fit the step response in FILE: time constants, f0, Q and gain with 95 % intervals.
 
     With OUT_FILE, FILE holds the input (drive) and OUT_FILE the output.
@@ -175,6 +178,10 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
     check_model(model)
     check_distinct_inputs(file, out_file)
     t_edge = time_option(edge_time, "--edge-time")
+    width = time_option(pulse_width, "--pulse-width")
+    if width is not None and not width > 0:
+        from ..errors import OptionError
+        raise OptionError(f"--pulse-width must be a positive time, not {pulse_width!r}", hint="for example 20u")
     circuit_args = CircuitArgs.pop(kwargs)
     circuit_args.wanted  # refuses circuit options without a circuit, before any work
     capture = options.load(file, out_file)
@@ -189,11 +196,15 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
                               hint="fit the form with the noise record, or the circuit without it")
         noise = noise_record_from_capture(options.load(noise_record), options.roles(capture)[1])
     if circuit_args.wanted:
+        if width is not None:
+            from ..errors import OptionError
+            raise OptionError("--pulse-width cannot be combined with --circuit or --topology",
+                              hint="fit a form with the pulse width, or record the drive channel")
         result = circuit_args.fit(capture, model=model, input=inp, output=out, edge_time=t_edge,
                                   average=average, intervals=intervals)
     else:
         result = fit_capture(capture, model=model, input=inp, output=out, edge_time=t_edge,
-                             average=average, intervals=intervals, noise_record=noise)
+                             average=average, intervals=intervals, noise_record=noise, pulse_width=width)
     emit_result(outputs, result, capture, as_json)
     if not result.describes_data:
         from .. import exitcodes

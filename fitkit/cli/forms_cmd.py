@@ -11,6 +11,17 @@ def _with_unit(name: str, unit: str) -> str:
     return f"{name} [{unit}]" if unit else name
 
 
+def automatic_condition(name: str) -> str:
+    """When the automatic choice tries a form: always (''), or the condition in words."""
+    from ..fitting import selection
+    if name in selection.RETURNING_CANDIDATES:
+        return " when the response returns to its baseline" + (
+            " and no drive channel is recorded" if name in selection.IDEAL_DRIVE_ONLY else "")
+    if name in selection.UNDERSHOOT_CANDIDATES:
+        return " when the response first moves the wrong way"
+    return ""
+
+
 def forms_text(descriptions: list[dict], common: list[dict], delay_suffix: str = "") -> str:
     """The forms as a plain-text listing (our own layout); with ``delay_suffix``, a closing
     line on the dead-time variant every form has."""
@@ -19,8 +30,7 @@ def forms_text(descriptions: list[dict], common: list[dict], delay_suffix: str =
     for d in descriptions:
         poles = f"{d['poles']} pole" + ("s" if d["poles"] != 1 else "")
         how = "tried by --model auto" if d["automatic"] else "fitted only when named with --model"
-        if d["automatic"] and d["settles_to"] == 0:
-            how += " when the response returns to its baseline"
+        how += automatic_condition(d["name"]) if d["automatic"] else ""
         lines.append(f"{d['name']}  ({poles}; {how})")
         lines.append(f"    {d['summary']}")
         for p in d["parameters"]:
@@ -48,11 +58,11 @@ def forms(name, as_json):
     For each form: its name (what --model takes), a one-line summary, its
     shape parameters with units, and the derived quantities reported with it.
     """
-    from ..forms import FORMS, get_form
+    from ..forms import FORMS, PULSE_FORMS, get_form
     from ..forms.catalogue import common_parameters, describe_form
     from ..forms.dead_time import DELAY_SUFFIX
 
-    chosen = [get_form(name)] if name else list(FORMS.values())
+    chosen = [get_form(name)] if name else [*FORMS.values(), *PULSE_FORMS.values()]
     descriptions = [describe_form(f) for f in chosen]
     common = common_parameters()
     if as_json:

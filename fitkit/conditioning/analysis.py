@@ -20,7 +20,8 @@ from ..capture import Capture, Channel
 from ..errors import ConditioningError, OptionError
 from ..results import json_number
 from ..units import format_value
-from .edges import Edge, EdgeSearch, detect_edges, edge_sharpness, forced_edge, is_two_level
+from .edges import (Edge, EdgeSearch, detect_edges, edge_sharpness, forced_edge, is_two_level,
+                    pulse_leading_edges)
 from .levels import StateLevels, state_levels
 from .metrics import StepMetrics, step_metrics
 from .noise import NoiseEstimate, estimate_noise
@@ -164,7 +165,7 @@ def find_edges(capture: Capture, channel: str | int | None = None) -> tuple[Edge
 def analyse_steps(capture: Capture, *, input: str | int | None = None, output: str | int | None = None,
                   edge_time: float | None = None, average: bool = False,
                   reference_levels: tuple[float, float] = (0.1, 0.9),
-                  settling_band: float = 0.02) -> StepAnalysis:
+                  settling_band: float = 0.02, pulse_width: float | None = None) -> StepAnalysis:
     """Condition a capture: channels, edges, segments, noise, metrics and quality flags.
 
     input, output: channel names or 1-based positions (None: chosen from the data;
@@ -173,6 +174,8 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
     average: coherently average the edges of each direction into one segment.
     reference_levels: (low, high) fractions of the step for rise/fall times.
     settling_band: half-width of the settling band as a fraction of the step.
+    pulse_width: the drive is a train of pulses of this width (s): both edges of a pulse are
+        one segment (the window of its leading edge, until the next pulse).
     Raises ConditioningError when no edge is found, OptionError on bad options.
     """
     lo_ref, hi_ref = (float(x) for x in reference_levels)
@@ -209,6 +212,12 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
                          "later than the drive's edges by the response's delay; the delay is not measured")
     if edge_time is None:
         decisions.append(f"{len(edges)} edge(s) found in {edge_ch.name!r} by {search.method}")
+    if pulse_width is not None:
+        leading = pulse_leading_edges(edges, pulse_width)
+        decisions.append(f"drive pulses of {format_value(pulse_width, 's')}: {len(leading)} pulse(s), each one "
+                         f"window holding the response to both of its edges ({len(edges) - len(leading)} "
+                         "trailing edge(s) inside them)")
+        edges = leading
 
     time = capture.time
     in_values = None if in_ch is None else in_ch.values
@@ -233,8 +242,10 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
     if in_ch is not None:
         clipped[in_ch.name] = clipped_runs(in_ch.values, edge_noise.rms, edge_noise.quantisation_step)
     segments, metrics = _without_clipped(segments, metrics, clipped[out_ch.name], out_ch, capture, decisions)
-    segments = tuple(replace(s, flags=s.flags + segment_flags(s, m, clipped=clipped))
-                     for s, m in zip(segments, metrics))
+    pulses = pulse_width is not None
+    segments = tuple(replace(s, flags=s.flags + segment_flags(s, m, clipped=clipped, pulse=pulses,
+                                                             first=i == 0 and s.averaged_edges == 1))
+                     for i, (s, m) in enumerate(zip(segments, metrics)))
     flags: list[str] = []
     if repeated:
         flags.append(f"{repeated} samples repeat the previous time stamp (times rounded in the file?); "

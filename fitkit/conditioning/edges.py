@@ -39,7 +39,7 @@ Times in seconds, levels in volts.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Sequence
 
 import numpy as np
 
@@ -312,3 +312,19 @@ def forced_edge(time: np.ndarray, values: np.ndarray, edge_time: float) -> Edge:
     direction = 1 if departure[k] >= 0 else -1
     after = float(np.mean(values[max(index, n - max(1, (n - index) // 10)):]))
     return Edge(index, float(edge_time), direction, index - 1, before, after)
+
+
+#: Two opposite edges closer than this multiple of a stated pulse width are one pulse.
+PULSE_PAIRING = 1.5
+
+
+def pulse_leading_edges(edges: Sequence[Edge], width: float) -> tuple[Edge, ...]:
+    """The leading edge of each drive pulse of a stated ``width`` (s): an edge that follows a kept
+    edge of the other direction within :data:`PULSE_PAIRING` widths is that pulse's trailing edge
+    and is dropped, so both edges of a pulse fall in one window (the response to both)."""
+    kept: list[Edge] = []
+    for e in edges:
+        if kept and e.direction != kept[-1].direction and e.time - kept[-1].time < PULSE_PAIRING * width:
+            continue
+        kept.append(e)
+    return tuple(kept)

@@ -19,6 +19,8 @@ change at the bench. The thresholds are common practice, no source:
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from ..errors import ConditioningError
@@ -86,14 +88,17 @@ def _at(seconds: float) -> str:
 
 
 def segment_flags(segment: StepSegment, metrics: StepMetrics, *,
-                  clipped: dict[str, np.ndarray]) -> tuple[str, ...]:
+                  clipped: dict[str, np.ndarray], pulse: bool = False, first: bool = False) -> tuple[str, ...]:
     """Plain-language quality warnings for one segment.
 
     ``clipped`` maps a channel name to its clipped runs (from clipped_runs).
+    ``pulse``: the window holds a whole drive pulse (both edges), whose step
+    metrics (settling to a final level, the 10-90 % transition) do not apply.
+    ``first``: the record's first window (no earlier edge of the record is modelled before it).
     """
     flags: list[str] = []
     where = f"edge at {_at(segment.edge_time)}"
-    if not segment.settled:
+    if not segment.settled and not pulse:
         flags.append(f"{where}: the window after the edge is too short for the response to settle "
                      "(the final level is not reached), so time constants fitted to it will be poorly "
                      "determined; capture more time after each edge (slower time base or lower "
@@ -101,7 +106,8 @@ def segment_flags(segment: StepSegment, metrics: StepMetrics, *,
     transition = metrics.transition_time
     kind = "rise" if metrics.rise_time is not None else "fall" if metrics.fall_time is not None else "decay"
     dt = float(np.median(np.diff(segment.time))) if segment.time.size > 1 else float("nan")
-    if metrics.samples_across_transition is not None and metrics.samples_across_transition < MIN_TRANSITION_SAMPLES:
+    if not pulse and metrics.samples_across_transition is not None \
+            and metrics.samples_across_transition < MIN_TRANSITION_SAMPLES:
         flags.append(f"{where}: only {metrics.samples_across_transition:.1f} samples across the "
                      f"10-90 % {kind} ({_at(transition)} at {_at(dt)} per sample): the sample interval "
                      "is too coarse for the fastest time constant; use a faster sample rate")
@@ -115,6 +121,11 @@ def segment_flags(segment: StepSegment, metrics: StepMetrics, *,
                        "settled samples before it")
         flags.append(f"{where}: too little baseline before the edge ({n_before} samples, "
                      f"{_at(before)}), so the starting level is poorly determined; {remedy}")
+    if first and begins_moving(segment):
+        flags.append(f"{where}: the output is already moving where the record begins (during the response "
+                     "to an earlier change of the drive, or to this edge if it came before the first sample), "
+                     "so the fit rests on its assumption about what came before; move the trigger point or "
+                     "lengthen the record so it begins where the response has settled")
     for name, runs in clipped.items():
         if runs.size == 0:
             continue
@@ -128,6 +139,36 @@ def segment_flags(segment: StepSegment, metrics: StepMetrics, *,
         flags.append(f"{where}: the output returns to its baseline (a high-pass or band-pass "
                      f"response); the step size is taken from the {segment.step_source}")
     return tuple(flags)
+
+
+#: The pre-edge samples move when a straight line through them changes by more than this many
+#: noise sigmas and this share of the step across them, at more than 4 standard errors
+#: (common practice, no source).
+MOVING_SIGMAS = 8.0
+MOVING_SHARE = 0.05
+
+
+def begins_moving(segment: StepSegment) -> bool:
+    """True when the output before the segment's edge is not at rest: a straight line through the
+    first half of the pre-edge samples (the second can hold the start of the response itself, the
+    edge time being its mid-level crossing without a drive channel) changes by more than
+    MOVING_SIGMAS noise sigmas and MOVING_SHARE of the step."""
+    n = segment.n_before_edge // 2
+    if n < 3:
+        return False
+    t = np.asarray(segment.time[:n], dtype=float)
+    y = np.asarray(segment.output[:n], dtype=float)
+    tc = t - t.mean()
+    sxx = float(tc @ tc)
+    if not sxx > 0:
+        return False
+    slope = float(tc @ (y - y.mean())) / sxx
+    resid = y - y.mean() - slope * tc
+    se = math.sqrt(float(resid @ resid) / max(n - 2, 1) / sxx)  # n >= 3
+    change = abs(slope) * float(t[-1] - t[0])
+    noise = segment.noise_rms if math.isfinite(segment.noise_rms) else 0.0
+    step = abs(segment.step_size) if math.isfinite(segment.step_size) else 0.0
+    return change > max(MOVING_SIGMAS * noise, MOVING_SHARE * step) and abs(slope) > 4 * se
 
 
 def no_edge_error(channel: str, looked_for: str, path: str | None) -> ConditioningError:

@@ -164,6 +164,10 @@ def describe_window(time: np.ndarray, output: np.ndarray, input: np.ndarray | No
     peak_excursion = float(excursion[k])
     returns = (abs(final - baseline) < RETURN_FRACTION * abs(peak_excursion)
                and abs(peak_excursion) > 6 * (noise if np.isfinite(noise) else 0.0))
+    if returns and u is not None and u.size and input_before is not None and input_after is not None:
+        # a drive that returns as well (a pulse inside the window) explains an output that does
+        drive_excursion = float(np.max(np.abs(u - input_before)))
+        returns = not abs(input_after - input_before) < RETURN_FRACTION * drive_excursion
     if returns:
         if input_before is not None and input_after is not None and input_after != input_before:
             step_size, source = input_after - input_before, "input step"

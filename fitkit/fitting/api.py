@@ -19,11 +19,12 @@ from ..conditioning.analysis import BELOW_ONE_CODE
 from ..conditioning.segment import StepSegment
 from ..errors import FitError, FitkitError
 from ..units import format_value
-from ..forms import FORMS, delayed, get_form
+from ..forms import FORMS, delayed, get_form, pulse_response
 from ..forms.base import Form
 from ..results import CandidateScore, Estimate, FitDiagnostics, FitResult, FittedSegment
 from .adequacy import assess
 from .engine import FormFit, fit_form, sample_interval
+from .information import has_measured_input
 from .estimates import derived_estimates, level_estimates, shape_estimates
 from .noise_record import NoiseRecord
 from .quantised import ROUNDED_GAUSSIAN, quantised_refit
@@ -93,7 +94,8 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         reason = f"{chosen_form.name} was asked for"
         return _build(cand, scores, reason, extra_warn + list(warnings), file, segments, derived)
     forms = [f if isinstance(f, Form) else get_form(f) for f in candidates] if candidates \
-        else default_candidates(_returns_to_baseline(segments), _moves_wrong_way(segments))
+        else default_candidates(_returns_to_baseline(segments), _moves_wrong_way(segments),
+                                measured_input if measured_input is not None else has_measured_input(segments))
     cands: list[Candidate] = []
     queue = list(forms)
     # candidates compete on coarser bins of a long record, and on the first
@@ -146,7 +148,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
 def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = None,
                 output: str | None = None, edge_time: float | None = None, average: bool = False,
                 candidates: Iterable[str] | None = None, intervals: str = "auto",
-                noise_record: NoiseRecord | None = None) -> FitResult:
+                noise_record: NoiseRecord | None = None, pulse_width: float | None = None) -> FitResult:
     """Find the steps in a capture (fitkit.conditioning.analyse_steps) and fit them.
 
     model: a form name or "auto" (model selection among ``candidates``).
@@ -155,6 +157,10 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
     edge_time: seconds, to fit only the edge nearest this time.
     average: coherently average the edges before fitting.
     noise_record: see :func:`fit_segments`.
+    pulse_width: the drive is a train of rectangular pulses of this width (s): both
+        edges of a pulse are one segment, and without a drive channel each form is
+        fitted as its response to such a pulse (fitkit.forms.pulse_response, the
+        width held); with one, the measured drive already is the pulse.
 
     When the roles were chosen from the data and the fit does not describe the
     capture, the other assignments the roles offer are fitted too, and the
@@ -164,9 +170,21 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
     from ..conditioning import analyse_steps  # written alongside; imported when used
 
     options = dict(model=model, edge_time=edge_time, average=average, candidates=candidates,
-                   intervals=intervals, noise_record=noise_record)
-    analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average)
+                   intervals=intervals, noise_record=noise_record, pulse_width=pulse_width)
+    analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average,
+                             pulse_width=pulse_width)
     result = _fit_analysis(capture, analysis, **options)
+    if pulse_width is not None and analysis.input_channel is None and not result.describes_data:
+        # without a drive channel the output's own edges locate the pulses; a ringing response
+        # crosses its levels many times, and then its edges fitted one by one (each with the
+        # previous one's tail: superposition as well) may describe it where the pulse forms did not
+        plain = _fit_analysis(capture, analyse_steps(capture, input=input, output=output, edge_time=edge_time,
+                                                     average=average), **dict(options, pulse_width=None))
+        if plain.describes_data:
+            note = (f"the forms driven by a {format_value(pulse_width, 's')} pulse left residuals "
+                    f"{result.adequacy.misfit_ratio:.1f} times the noise; the output's edges fitted one by one "
+                    "(each with the previous edge's tail) describe the capture")
+            return dataclasses.replace(plain, warnings=(note,) + tuple(plain.warnings))
     if result.describes_data or (input is not None and output is not None):
         return result
     tried = []
@@ -175,7 +193,7 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
             continue
         try:
             other = analyse_steps(capture, input=alt_in or "none", output=alt_out, edge_time=edge_time,
-                                  average=average)
+                                  average=average, pulse_width=pulse_width)
             alt = _fit_analysis(capture, other, **options)
         except FitkitError:
             continue
@@ -195,8 +213,10 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
 
 
 def _fit_analysis(capture: Capture, analysis, *, model, edge_time, average, candidates, intervals,
-                  noise_record) -> FitResult:
+                  noise_record, pulse_width=None) -> FitResult:
     """Fit the segments of one conditioning of ``capture``; the roles' decisions lead the warnings."""
+    if pulse_width is not None and analysis.input_channel is None:
+        model, candidates = _pulse_forms(model, candidates, pulse_width)
     warnings = list(capture.warnings) + list(getattr(analysis, "flags", ()))
     for seg in analysis.segments:
         warnings.extend(f for f in seg.flags if f not in warnings)
@@ -218,6 +238,18 @@ def _fit_analysis(capture: Capture, analysis, *, model, edge_time, average, cand
     if period is not None:
         extra["drive_period"] = period
     return dataclasses.replace(result, extra=extra)
+
+
+#: The forms tried for a stated pulse drive without a drive channel (each as its pulse response).
+PULSE_CANDIDATES = ("first-order", "two-real-pole", "underdamped", "three-real-pole")
+
+
+def _pulse_forms(model, candidates, width: float):
+    """(model, candidates) as responses to a pulse of ``width`` seconds (the width held)."""
+    if model != "auto":
+        return pulse_response(model if isinstance(model, Form) else get_form(model), width), candidates
+    names = candidates if candidates is not None else PULSE_CANDIDATES
+    return model, [pulse_response(n if isinstance(n, Form) else get_form(n), width) for n in names]
 
 
 # -- assembling the result ------------------------------------------------------
@@ -268,7 +300,7 @@ def _add_gain(ff: FormFit, params: dict[str, Estimate], derived: dict[str, Estim
     if seg.input_before is None or seg.input_after is None:
         return
     in_step = seg.input_after - seg.input_before
-    if in_step == 0:
+    if in_step == 0 or _drive_returns(seg):  # no step to scale: the drive is a pulse inside the window
         return
     if "gain" in params:  # measured-input mode: the step follows from the gain
         g = params["gain"]
@@ -415,9 +447,20 @@ def _runaway_note(ff: FormFit, dt: float) -> str:
             "the data show no such time constant")
 
 
+def _drive_returns(seg: StepSegment) -> bool:
+    """True when the segment's recorded drive ends near where it began (a pulse inside the window)."""
+    if seg.input is None or seg.input_before is None or seg.input_after is None or not np.asarray(seg.input).size:
+        return False
+    drive_excursion = float(np.max(np.abs(np.asarray(seg.input, dtype=float) - seg.input_before)))
+    return abs(seg.input_after - seg.input_before) < 0.2 * drive_excursion
+
+
 def _returns_to_baseline(segments: Sequence[StepSegment]) -> bool:
-    """True when the response decays back to its pre-edge level (high-pass shape)."""
+    """True when the response decays back to its pre-edge level (high-pass shape) while its
+    drive, when recorded, does not (a drive pulse that returns is the low-pass forms' case)."""
     seg = segments[0]
+    if _drive_returns(seg):
+        return False
     excursion = float(np.max(np.abs(np.asarray(seg.output) - seg.baseline))) if seg.output.size else 0.0
     return excursion > 0 and abs(seg.final - seg.baseline) < 0.2 * excursion
 

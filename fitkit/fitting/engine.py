@@ -163,7 +163,8 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
         the form does not jump at the edge).
     start: optional physical starting values (the NIST tests use this);
         missing ones come from the data.
-    fixed: physical values held fixed, e.g. {"baseline": 0.0, "t0": 0.0}.
+    fixed: physical values held fixed, e.g. {"baseline": 0.0, "t0": 0.0}; the form's own
+        ``held`` values (a stated pulse width) are held too.
     correlation: "auto", "on" or "off" for the correlated-residual correction
         and the whitened refit (:mod:`.whitening`) that comes with it.
     noise_record: a separate quiet record's noise model (:mod:`.noise_record`):
@@ -185,7 +186,8 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     scaling = make_scaling(segments, form, measured_input)
     joint = JointModel(form, segments, scaling, measured_input=measured_input, free_t0=free_t0,
                        max_points=max_points)
-    fixed_int = to_internal(joint, fixed or {})
+    # a wrapper's own given parameter (a stated pulse width) is held wherever the form is fitted
+    fixed_int = to_internal(joint, {**dict(getattr(form, "held", {}) or {}), **dict(fixed or {})})
     starts = best_starts(joint, keep=STARTS_REFINED)
     if start:
         # A given start is tried as given, and with its levels solved linearly

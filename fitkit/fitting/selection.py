@@ -22,7 +22,7 @@ from dataclasses import dataclass, replace
 from typing import Sequence
 
 from ..errors import FitError
-from ..forms import FORMS
+from ..forms import FORMS, PULSE_FORMS, get_form
 from ..forms.base import Form
 from ..results import CandidateScore, Estimate
 from .engine import FormFit
@@ -40,7 +40,10 @@ DEFAULT_CANDIDATES = ("first-order", "first-order-decay", "two-real-pole", "unde
 #: Candidates for a response that returns to its baseline after each edge, simplest first: the
 #: high-pass decay that jumps at the edge, and the band-pass forms that rise from the baseline
 #: (the voltage across the series resistor of an RLC) and come back.
-RETURNING_CANDIDATES = ("first-order-decay", "two-real-pole-band-pass", "underdamped-band-pass")
+RETURNING_CANDIDATES = ("first-order-decay", "first-order-pulse", "two-real-pole-band-pass",
+                        "underdamped-band-pass")
+#: ... of which these only without a drive channel (a measured drive needs no pulse wrapper).
+IDEAL_DRIVE_ONLY = ("first-order-pulse",)
 #: Tried as well when the response first moves the wrong way (a right-half-plane zero).
 UNDERSHOOT_CANDIDATES = ("two-real-pole-undershoot", "underdamped-undershoot")
 #: Tried as well when neither two-real-pole nor underdamped is supported by the data
@@ -60,7 +63,8 @@ class Candidate:
     note: str
 
 
-def default_candidates(returns_to_baseline: bool, moves_wrong_way: bool = False) -> list[Form]:
+def default_candidates(returns_to_baseline: bool, moves_wrong_way: bool = False,
+                       measured_input: bool = False) -> list[Form]:
     """The default candidate forms that exist, simplest first.
 
     When the response returns to its baseline after each edge the candidates
@@ -71,13 +75,14 @@ def default_candidates(returns_to_baseline: bool, moves_wrong_way: bool = False)
     rules: AICc margin and determinability).
     """
     if returns_to_baseline:
-        names = [n for n in RETURNING_CANDIDATES if n in FORMS]
+        names = [n for n in RETURNING_CANDIDATES if (n in FORMS or n in PULSE_FORMS)
+                 and not (measured_input and n in IDEAL_DRIVE_ONLY)]
     else:
         names = [n for n in DEFAULT_CANDIDATES if n in FORMS and getattr(FORMS[n], "auto_candidate", True)
                  and n != "first-order-decay"]
         if moves_wrong_way:
             names += [n for n in UNDERSHOOT_CANDIDATES if n in FORMS]
-    return [FORMS[n] for n in names]
+    return [get_form(n) for n in names]
 
 
 def needs_fallback(candidates: Sequence[Candidate]) -> bool:

@@ -53,6 +53,11 @@ FORMS: dict[str, Form] = {f.name: f for f in (
     UNDERDAMPED_BAND_PASS, TWO_REAL_POLE_BAND_PASS,
     UNDERDAMPED_ZERO, UNDERDAMPED_UNDERSHOOT, TWO_REAL_POLE_UNDERSHOOT,
 )}
+#: Forms made by a wrapper that the automatic choice can try by name, kept apart from FORMS
+#: (whose step responses are those of their rational transfer functions): a first-order
+#: low-pass driven by a pulse whose width is fitted (an output-only capture of a pulse shorter
+#: than the time constant: the output rises while the pulse lasts, then decays).
+PULSE_FORMS: dict[str, Form] = {"first-order-pulse": pulse_response(FIRST_ORDER, None)}
 
 
 def get_form(name: str) -> Form:
@@ -60,6 +65,8 @@ def get_form(name: str) -> Form:
     dead_time.py); OptionError listing the known forms otherwise."""
     if name in FORMS:
         return FORMS[name]
+    if name in PULSE_FORMS:
+        return PULSE_FORMS[name]
     base = name[:-len(DELAY_SUFFIX)] if name.endswith(DELAY_SUFFIX) else None
     if base in FORMS:
         return delayed(FORMS[base])
@@ -67,4 +74,4 @@ def get_form(name: str) -> Form:
                       hint="run `fitkit forms` to list them")
 
 
-__all__ = ["Form", "ParamSpec", "FORMS", "DELAY_SUFFIX", "get_form", "real_pole_form", "delayed", "pulse_response"]
+__all__ = ["Form", "ParamSpec", "FORMS", "PULSE_FORMS", "DELAY_SUFFIX", "get_form", "real_pole_form", "delayed", "pulse_response"]

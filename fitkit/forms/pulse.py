@@ -83,12 +83,34 @@ def step_from_pulse(t_rel: np.ndarray, y_norm: np.ndarray, width: float) -> np.n
 
 
 WIDTH_SPEC = ParamSpec("pulse_width", "s", "time", "width of the drive pulse (given, held fixed)")
+#: The same parameter when the width is fitted (no drive channel and no stated width).
+FITTED_WIDTH_SPEC = ParamSpec("pulse_width", "s", "time", "width of the drive pulse (fitted)")
 
 
-def pulse_response(form: Form, width: float) -> Form:
-    """``form`` driven by a rectangular pulse of ``width`` seconds (see the module docstring)."""
+def width_from_peak(t_rel: np.ndarray, y_norm: np.ndarray) -> float:
+    """A starting width (same unit as ``t_rel``): the time from the edge to the output's largest
+    excursion, which for a first-order low-pass is the pulse width exactly (the output rises
+    while the pulse lasts and falls after it); at least one sample interval."""
+    t = np.asarray(t_rel, dtype=float)
+    y = np.asarray(y_norm, dtype=float)
+    after = t >= 0
+    if np.count_nonzero(after) < 2:
+        return float(np.ptp(t)) / 10.0 or 1.0
+    ta, ya = t[after], y[after]
+    peak = float(ta[int(np.argmax(np.abs(ya)))])
+    step = float(np.median(np.diff(ta)))
+    return max(peak, step)
+
+
+def pulse_response(form: Form, width: float | None) -> Form:
+    """``form`` driven by a rectangular pulse of ``width`` seconds (see the module docstring);
+    with ``width`` None the width is one more fitted shape parameter, started from the time
+    the output takes to its peak (:func:`width_from_peak`)."""
+    fitted = width is None
+    if fitted:
+        width = math.nan
     width = float(width)
-    if not (math.isfinite(width) and width > 0):
+    if not fitted and not (math.isfinite(width) and width > 0):
         raise OptionError(f"the pulse width must be a positive number of seconds, not {width!r}",
                           hint="give the drive pulse's width, e.g. 20u")
 
@@ -102,7 +124,8 @@ def pulse_response(form: Form, width: float) -> Form:
         return form.transfer_function(**split_off(shape, WIDTH_SPEC.name, width)[1])
 
     def guess(t_rel: np.ndarray, y_norm: np.ndarray) -> list[dict[str, float]]:
-        rebuilt = step_from_pulse(t_rel, y_norm, width)
+        start_width = width_from_peak(t_rel, y_norm) if fitted else width
+        rebuilt = step_from_pulse(t_rel, y_norm, start_width)
         t = np.asarray(t_rel, dtype=float)
         after = rebuilt[t >= 0]
         if form.final_value == 0.0:  # the rebuilt response itself returns to zero: scale by its peak
@@ -111,7 +134,7 @@ def pulse_response(form: Form, width: float) -> Form:
             size = float(np.mean(after[-max(1, int(TAIL_FRACTION * after.size)):])) if after.size else 0.0
         if not (math.isfinite(size) and size != 0.0):
             size = 1.0
-        return [{**in_wrapped_coordinates(form, g), WIDTH_SPEC.name: width}
+        return [{**in_wrapped_coordinates(form, g), WIDTH_SPEC.name: start_width}
                 for g in form.guess(t, rebuilt / size)]
 
     def derived(**shape: float) -> dict[str, float]:
@@ -124,8 +147,10 @@ def pulse_response(form: Form, width: float) -> Form:
 
     return Form(
         name=f"{form.name}-pulse",
-        summary=f"{form.name} driven by a {width:g} s rectangular pulse: response(t) - response(t - width)",
-        shape=(*wrapped_shape(form), WIDTH_SPEC),
+        summary=(f"{form.name} driven by a rectangular pulse of fitted width (no drive channel): "
+                 "response(t) - response(t - width)" if fitted else
+                 f"{form.name} driven by a {width:g} s rectangular pulse: response(t) - response(t - width)"),
+        shape=(*wrapped_shape(form), FITTED_WIDTH_SPEC if fitted else WIDTH_SPEC),
         unit_step=unit_step,
         transfer_function=transfer_function,
         guess=guess,
@@ -133,8 +158,8 @@ def pulse_response(form: Form, width: float) -> Form:
         derived_units={**dict(form.derived_units), WIDTH_SPEC.name: "s"},
         order=form.order,
         final_value=0.0,
-        auto_candidate=False,
+        auto_candidate=fitted,  # the fitted-width form competes when a response returns to its baseline
         canonical=canonical if form.canonical is not None else None,
-        held={WIDTH_SPEC.name: width},
+        held={} if fitted else {WIDTH_SPEC.name: width},
         jumps_at_edge=form.edge_jumps,
     )

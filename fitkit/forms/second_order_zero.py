@@ -30,7 +30,8 @@ Forms:
   machinery that fits "two-real-pole" in (tau0, Q) handles two fit
   coordinates only.
 
-None is tried by the automatic choice (``auto_candidate=False``).
+The undershoot forms are tried by the automatic choice when a response first moves the
+wrong way (fitkit.fitting.selection.UNDERSHOOT_CANDIDATES); the left-half-plane zero only when named.
 Derived: f0, Q, zeta, omega0 of the poles, tz and the zero's frequency
 1/(2 pi tz), and from the form's own response the -3 dB bandwidth, rise time,
 overshoot and 2 % settling time (fitkit.forms.metrics), plus the undershoot
@@ -195,7 +196,7 @@ UNDERDAMPED_UNDERSHOOT = Form(
     derived=_right_derived,
     derived_units={**SECOND_ORDER_UNITS, **_ZERO_UNITS, "damped_frequency": "Hz", "undershoot": "%"},
     order=2,
-    auto_candidate=False,
+    auto_candidate=True,
 )
 
 TWO_REAL_POLE_UNDERSHOOT = Form(
@@ -212,6 +213,6 @@ TWO_REAL_POLE_UNDERSHOOT = Form(
     derived_units={"tz": "s", "tau1": "s", "tau2": "s", **POLE_PAIR_UNITS, "zero_frequency": "Hz",
                    **TIMING_UNITS, "undershoot": "%"},
     order=2,
-    auto_candidate=False,
+    auto_candidate=True,
     canonical=pole_zero.canonical,
 )
