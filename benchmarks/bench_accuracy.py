@@ -49,14 +49,14 @@ a left-half-plane zero tz = 1/w0 and a right-half-plane zero tz = 0.5/w0; two
 real poles 100 us and 20 us with a right-half-plane zero tz = 30 us), a first
 order (tau = 100 us) behind a dead time of 20 us, measured with the input
 channel recorded (the only mode where a dead time is separable from the edge
-time), and a first order driven by a 100 us pulse (width given, held). Forms
-whose final value is 0 (band-pass, pulse) are fitted with the edge time
-held at the segment's edge, as the engine does; their bound is computed with
-t0 known accordingly; in measured-input mode the edge is the input's and the
-bound has no t0 either. Their selection rate is the rate at which the
-automatic choice among the new form and its nearest old forms (NEAREST_OLD,
-listed first, so the new form must win by the AICc margin) picks the new
-form; none of these forms is an automatic candidate yet.
+time), a first order driven by a 100 us pulse (width given, held) and one
+driven by a 30 us pulse whose width is fitted. The edge time is fitted for
+every form that does not jump at the edge (band-pass and pulse forms
+included), as the engine does, and the bound counts it; in measured-input
+mode the edge is the input's and the bound has no t0. Their selection rate is
+the rate at which the automatic choice among the new form and its nearest old
+forms (NEAREST_OLD, listed first, so the new form must win by the AICc margin)
+picks the new form.
 
 Results: benchmarks/results/accuracy.json and accuracy.md
 (accuracy_new_forms.* with --new-forms).
@@ -113,9 +113,12 @@ NEW_RESPONSES = {
                             100e-6, None),
     "dead time 0.2": ("first-order-with-delay", {"tau": 100e-6, "delay": 20e-6}, 20e-6, 100e-6, None),
     "pulse 1 tau": ("first-order-pulse", {"tau": 100e-6}, 100e-6, 100e-6, None),
+    "pulse 0.3 tau, width fitted": ("first-order-pulse-fitted", {"tau": 100e-6, "pulse_width": 30e-6}, 30e-6,
+                                    100e-6, None),
 }
 RESPONSES.update(NEW_RESPONSES)
 ACCEPTED.update({k: {v[0]} for k, v in NEW_RESPONSES.items()})
+ACCEPTED["pulse 0.3 tau, width fitted"] = {"first-order-pulse"}  # the fitted-width form's own name
 #: The old forms each new row competes with in its selection rate (listed before the new form).
 NEAREST_OLD = {
     "band-pass Q 5": ("first-order-decay", "underdamped"),
@@ -124,6 +127,7 @@ NEAREST_OLD = {
     "zero right Q 2": ("underdamped",),
     "zero right two-pole": ("two-real-pole", "three-real-pole"),
     "dead time 0.2": ("first-order", "two-real-pole"),
+    "pulse 0.3 tau, width fitted": ("first-order-decay", "two-real-pole-band-pass"),
 }
 #: Rows fitted with the input channel recorded (a sampled ideal step), in measured-input mode.
 MEASURED_INPUT = {"dead time 0.2"}
@@ -134,8 +138,10 @@ NEW_VARIATIONS = [{}, {"snr_db": 20.0}, {"noise": "band"}]
 
 def resolve_form(name: str):
     """The form called ``name``: a registered form, NAME-with-delay, or one of PULSES."""
-    from fitkit.forms import get_form, pulse_response
+    from fitkit.forms import PULSE_FORMS, get_form, pulse_response
 
+    if name == "first-order-pulse-fitted":
+        return PULSE_FORMS["first-order-pulse"]
     if name in PULSES:
         base, width = PULSES[name]
         return pulse_response(get_form(base), width)
@@ -147,12 +153,13 @@ def edge_setup(response: str, form, dt: float) -> tuple[float, bool]:
 
     With an input channel, a sampled ideal step at t = 0 read piecewise-linearly
     (the engine's reading of a measured input) crosses mid-level at -dt/2, so
-    the output's true edge is there and the input fixes it; a form whose final
-    value is 0 has its edge held at the segment's edge (the engine's rule).
+    the output's true edge is there and the input fixes it; a form that jumps
+    at the edge has its edge held at the segment's edge, every other form has it
+    fitted (the engine's rule, Form.edge_jumps).
     """
     if response in MEASURED_INPUT:
         return -dt / 2, False
-    return 0.0, form.final_value != 0.0
+    return 0.0, not form.edge_jumps
 
 
 #: Samples in the separate quiet record of the band-limited noise (fitkit fit --noise-record).

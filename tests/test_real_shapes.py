@@ -227,3 +227,31 @@ def test_a_record_that_begins_mid_response_is_said_so(tmp_path):
 
     assert flagged(200e-6, 1250)      # 50 us after an edge, the next 150 us later
     assert not flagged(1e-3, 1600)    # 600 us after an edge, the next 400 us later
+
+
+def test_a_refit_on_trimmed_windows_that_fails_keeps_the_fit_with_its_own_windows(tmp_path):
+    # an RC under a square wave with 50 Hz pickup (20 mV): the trimmed refit could fail to converge,
+    # and the fit kept must then be judged on its own windows (this once raised a shape mismatch)
+    rng = np.random.default_rng(7)
+    dt, tau = 1e-6, 100e-6
+    t = np.arange(6000) * dt
+    u = 2.0 * ((t % 2e-3) < 1e-3)
+    _, y, _ = sig.lsim(sig.lti([1.0], [tau, 1.0]), u, t)
+    y = y + 0.02 * np.sin(2 * np.pi * 50 * t + 0.3) + 3e-3 * rng.standard_normal(t.size)
+    r = fit_capture(load_capture(_write(tmp_path / "hum.csv", t, {"out": y})))
+    assert r.describes_data and r.model == "first-order"
+    assert _covers(r.parameters["tau"], tau)
+
+
+def test_the_noise_before_a_slowly_leaving_response_is_the_noise(tmp_path):
+    from fitkit.conditioning.analysis import analyse_steps
+    # three real poles leave their baseline as t^3: the samples just before the onset move
+    rng = np.random.default_rng(8)
+    dt = 1e-6
+    t = np.arange(6000) * dt
+    u = 2.0 * ((t % 2e-3) < 1e-3)
+    den = np.polymul(np.polymul([100e-6, 1.0], [30e-6, 1.0]), [10e-6, 1.0])
+    _, y, _ = sig.lsim(sig.lti([1.0], den), u, t)
+    y = y + 2e-3 * rng.standard_normal(t.size)
+    a = analyse_steps(load_capture(_write(tmp_path / "three.csv", t, {"out": y})))
+    assert all(s.noise_rms < 1.5 * 2e-3 for s in a.segments)

@@ -238,10 +238,11 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
             best = fit
     trimmed = _trim_overlaps(joint, best)
     if trimmed is not None:  # an edge window ran into the next edge's response: refit without it
-        joint = JointModel(form, trimmed, scaling, measured_input=measured_input, free_t0=free_t0,
-                           max_points=max_points)
-        refit = _run(joint, {k: best.values[k] for k in best.names}, fixed_int, project)
-        best = refit if refit.converged or not best.converged else best
+        trimmed_joint = JointModel(form, trimmed, scaling, measured_input=measured_input, free_t0=free_t0,
+                                   max_points=max_points)
+        refit = _run(trimmed_joint, {k: best.values[k] for k in best.names}, fixed_int, project)
+        if refit.converged or not best.converged:  # else the untrimmed fit stands, with its own windows
+            joint, best = trimmed_joint, refit
     best = _canonical(joint, best)
     w = joint.weights
     pieces = joint.split(w * best.residual)
