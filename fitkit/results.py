@@ -80,7 +80,8 @@ class CandidateScore:
     """How one candidate form fared in model selection.
 
     ``criterion`` is the information criterion value (lower is better) and
-    ``delta`` its difference from the chosen form's.
+    ``delta`` its difference from the chosen form's (ΔAICc, JSON ``delta_aicc``;
+    bigger = worse fit).
     """
 
     model: str
@@ -93,7 +94,7 @@ class CandidateScore:
 
     def to_dict(self) -> dict[str, Any]:
         return {"model": self.model, "converged": self.converged, "n_parameters": self.n_parameters,
-                "criterion": json_number(self.criterion), "delta": json_number(self.delta),
+                "criterion": json_number(self.criterion), "delta_aicc": json_number(self.delta),
                 "rms_residual": json_number(self.rms_residual), "note": self.note}
 
 

@@ -16,7 +16,7 @@ from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 from test_batch_support import write_good_first_order
 
-ARGS = ["--model", "first-order", "--workers", "1", "--no-plots"]
+ARGS = ["--form", "first-order", "--workers", "1", "--no-plots"]
 
 
 def _write_lock(folder, pid, host=None):

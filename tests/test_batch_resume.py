@@ -32,7 +32,7 @@ def test_killed_batch_resumes_to_the_same_summary(tmp_path, capsys):
     write_garbage(folder / "board_garbage.csv", seed=98)
     distinct = N_BOARDS + 2
     killed = tmp_path / "killed"
-    args = [str(folder), "--out", str(killed), "--workers", "1", "--model", "first-order", "--no-plots"]
+    args = [str(folder), "--out", str(killed), "--workers", "1", "--form", "first-order", "--no-plots"]
 
     proc = subprocess.Popen([sys.executable, "-m", "fitkit", "batch", *args],
                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)

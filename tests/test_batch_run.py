@@ -17,7 +17,7 @@ from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 from test_batch_support import (frame_without_timing, line_folder, write_glitch, write_good_first_order)
 
-MODEL = ["--model", "first-order", "--workers", "1"]
+MODEL = ["--form", "first-order", "--workers", "1"]
 
 
 def _batch(args, capsys):
@@ -155,7 +155,7 @@ def test_changed_file_damaged_result_and_redo(tmp_path, capsys):
     assert "[3/3]" in err                                        # plain progress lines when not a terminal
     assert sorted(p.name for p in (out / "captures").glob("*.json")) == before
 
-    status, text, _ = _batch([str(folder), "--out", str(out), "--model", "critically-damped",
+    status, text, _ = _batch([str(folder), "--out", str(out), "--form", "critically-damped",
                               "--workers", "1", "--no-plots"], capsys)
     assert _counts_line(text)[0] == 3                            # other settings: computed afresh
 

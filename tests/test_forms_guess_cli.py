@@ -169,7 +169,7 @@ def test_first_guess_is_measured_from_the_data(name, truth):
 
 
 def test_forms_listing_tells_the_truth_about_automatic_selection():
-    # `fitkit forms` says which forms --model auto tries; that must match the engine's default list
+    # `fitkit forms` says which forms --form auto tries; that must match the engine's default list
     from fitkit.fitting import selection
     auto = [n for n, f in FORMS.items() if f.auto_candidate]
     assert auto == [n for n in selection.DEFAULT_CANDIDATES if n in FORMS]

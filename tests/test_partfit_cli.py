@@ -126,8 +126,8 @@ def test_bad_options_are_one_line_errors(files, capsys):
     status, _, err = _run(capsys, files["rc"], "--topology", "rc-low-pass", "--known", "R9=1k")
     assert status not in (exitcodes.OK, exitcodes.INTERNAL) and "R9" in err
     status, _, err = _run(capsys, files["rc"], "--topology", "rc-low-pass", "--known", "R1=10k",
-                          "--model", "first-order")
-    assert status not in (exitcodes.OK, exitcodes.INTERNAL) and "--model" in err
+                          "--form", "first-order")
+    assert status not in (exitcodes.OK, exitcodes.INTERNAL) and "--form" in err
     assert "Traceback" not in err
 
 

@@ -144,7 +144,7 @@ def test_command_line_reports_the_one_sided_interval(tmp_path):
     path = tmp_path / "single_pole.csv"
     np.savetxt(path, np.column_stack([t, y]), delimiter=",", header="time,vout", comments="")
     before = path.read_bytes()
-    run = subprocess.run([sys.executable, "-m", "fitkit", "fit", str(path), "--model", "two-real-pole", "--json"],
+    run = subprocess.run([sys.executable, "-m", "fitkit", "fit", str(path), "--form", "two-real-pole", "--json"],
                          capture_output=True, text=True, timeout=120)
     assert run.returncode == 0, run.stderr
     data = json.loads(run.stdout)
@@ -152,7 +152,7 @@ def test_command_line_reports_the_one_sided_interval(tmp_path):
     assert tau2["ci95"][0] == 0 and tau2["ci95"][1] > 0 and tau2["stderr"] is None
     lo, hi = data["parameters"]["tau1"]["ci95"]
     assert lo <= tau <= hi
-    text = subprocess.run([sys.executable, "-m", "fitkit", "fit", str(path), "--model", "two-real-pole"],
+    text = subprocess.run([sys.executable, "-m", "fitkit", "fit", str(path), "--form", "two-real-pole"],
                           capture_output=True, text=True, timeout=120)
     assert text.returncode == 0 and "[0 s," in text.stdout and "Traceback" not in text.stderr
     assert path.read_bytes() == before
