@@ -16,7 +16,8 @@ import math
 from typing import Any
 
 from ..units import format_interval, format_value
-from .check_text import SUSPECT_DELTA_MEANING, TIE_MEANING, percent_text, rank_mark
+from .check_text import SUSPECT_DELTA_MEANING, TIE_MEANING, output_unit_of, percent_text, rank_mark
+from .quantities import unique_lines
 
 #: Columns of the check CSV (see check_result_csv).
 CHECK_CSV_COLUMNS = ("kind", "name", "value", "ci95_low", "ci95_high", "unit", "limit_low", "limit_high",
@@ -158,12 +159,12 @@ def check_html_sections(result) -> list[tuple[str, str]]:
     text = (f"<p>{env.trials} boards drawn {_e(env.distribution)}, plus {env.corners} worst-case corners.")
     if cmp_ is not None:
         text += (f" {100 * cmp_.fraction_outside:.1f} % of {cmp_.n_samples} samples lie outside by more than "
-                 f"3 noise sigma ({_e(format_value(cmp_.margin, 'V'))}); largest excursion "
-                 f"{_e(format_value(cmp_.max_excursion, 'V'))}.")
+                 f"3 noise sigma ({_e(format_value(cmp_.margin, output_unit_of(result)))}); largest excursion "
+                 f"{_e(format_value(cmp_.max_excursion, output_unit_of(result)))}.")
     sections.append(("Tolerance envelope", text + "</p>"))
     if result.resolve:
         sections.append(("To resolve", "<ul>" + "".join(f"<li>{_e(r)}</li>" for r in result.resolve) + "</ul>"))
-    more = [w for w in result.warnings if w not in result.fit.warnings]
+    more = [w for w in unique_lines(result.warnings) if w not in result.fit.warnings]
     if more:
         sections.append(("Check warnings", '<ul class="warnings">' + "".join(f"<li>{_e(w)}</li>" for w in more)
                          + "</ul>"))

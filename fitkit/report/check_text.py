@@ -14,6 +14,7 @@ from __future__ import annotations
 import re
 
 from ..units import format_interval, format_value
+from .quantities import unique_lines
 
 QUANTITY_WORDS = {"tau": "time constant", "f0": "natural frequency", "Q": "quality factor", "gain": "DC gain"}
 BANNER = {"pass": "PASS - the board matches its design",
@@ -41,6 +42,12 @@ def rank_mark(rank: int, suspect, result) -> str:
     place (when more than one is), else the bare rank."""
     tied = sum(1 for s in result.suspects if s.tied) > 1
     return f"{rank}=" if tied and suspect.tied else str(rank)
+
+
+def output_unit_of(result) -> str:
+    """The output channel's unit ("" for a file that names none)."""
+    fit = getattr(result, "fit", None)
+    return fit.output_unit if fit is not None else "V"
 
 
 def percent_text(text: str) -> str:
@@ -97,12 +104,12 @@ def render_check_text(result) -> str:
     lines.append(text)
     if cmp_ is not None:
         lines.append(f"  capture: {100 * cmp_.fraction_outside:.1f} % of {cmp_.n_samples} samples outside by more than "
-                     f"3 noise sigma ({format_value(cmp_.margin, 'V')}); largest excursion "
-                     f"{format_value(cmp_.max_excursion, 'V')}")
+                     f"3 noise sigma ({format_value(cmp_.margin, output_unit_of(result))}); largest excursion "
+                     f"{format_value(cmp_.max_excursion, output_unit_of(result))}")
     if result.resolve:
         lines += ["", "to resolve:"] + [f"  - {r}" for r in result.resolve]
     lines += ["", "warnings:" + ("" if result.warnings else " none")]
-    lines += [f"  - {w}" for w in result.warnings]
+    lines += [f"  - {w}" for w in unique_lines(result.warnings)]
     return "\n".join(lines)
 
 

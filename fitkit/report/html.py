@@ -32,7 +32,7 @@ from ..errors import OptionError
 from ..results import FitResult
 from .quantities import (COMPARISON_RMS, COMPARISON_RMS_MEANING, FINAL_RMS, QuantityRow, criterion_name,
                          delta_meaning, delta_name, format_quantity, interval_text, is_reportable, quantity_rows,
-                         runner_up_text, set_aside_lines, stderr_text, value_text)
+                         runner_up_text, set_aside_lines, stderr_text, unique_lines, value_text)
 
 # Our own sober, printable style, scoped to the report's container.
 _CSS = """
@@ -200,7 +200,7 @@ def _diagnostics_table(result: FitResult) -> str:
 def _warnings_list(result: FitResult) -> str:
     if not result.warnings:
         return '<h2>Warnings</h2><p class="none">None.</p>'
-    items = "".join(f"<li>{_e(w)}</li>" for w in result.warnings)
+    items = "".join(f"<li>{_e(w)}</li>" for w in unique_lines(result.warnings))
     return f'<h2>Warnings</h2><ul class="warnings">{items}</ul>'
 
 

@@ -53,6 +53,7 @@ LABELS: dict[str, str] = {
     "fd": "damped (ringing) frequency",
     "damped_frequency": "damped (ringing) frequency",
     "gain": "DC gain (output step / input step)",
+    "circuit_dc_gain": "DC gain the circuit's fitted parts give (its topology may fix it); measured: gain",
     "bandwidth_3db": "-3 dB bandwidth",
     "rise_time": "10-90 % rise time",
     "overshoot": "overshoot",
@@ -242,6 +243,11 @@ def runner_up_text(result: FitResult) -> str:
 def set_aside_lines(result: FitResult) -> list[str]:
     """One line per candidate set aside: "form: why"."""
     return [f"{c.model}: {c.note if c.converged else 'did not converge'}" for c in set_aside(result)]
+
+
+def unique_lines(lines) -> list[str]:
+    """The lines in order, each once (a warning raised at two stages is shown once)."""
+    return list(dict.fromkeys(str(line) for line in lines))
 
 
 def criterion_name(result: FitResult) -> str:

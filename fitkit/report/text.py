@@ -16,7 +16,7 @@ from typing import Sequence
 from ..results import FitResult
 from .quantities import COMPARISON_RMS, COMPARISON_RMS_MEANING, FINAL_RMS
 from .quantities import (NOT_DETERMINED, QuantityRow, delta_meaning, delta_name, format_quantity, interval_text,
-                         is_reportable, quantity_rows, runner_up_text, set_aside_lines, value_text)
+                         is_reportable, quantity_rows, runner_up_text, set_aside_lines, unique_lines, value_text)
 
 _SECTION_TITLES = {"parameter": "Fitted parameters", "derived": "Derived quantities",
                    "component": "Component values"}
@@ -57,7 +57,7 @@ def render_fit_text(result: FitResult, quiet: bool = False) -> str:
     if notes:
         blocks.append(notes)
     if result.warnings:
-        blocks.append("Warnings\n" + "\n".join(f"{_INDENT}! {w}" for w in result.warnings))
+        blocks.append("Warnings\n" + "\n".join(f"{_INDENT}! {w}" for w in unique_lines(result.warnings)))
     return "\n\n".join(blocks) + "\n"
 
 
@@ -231,4 +231,4 @@ def _circuit_notes(result: FitResult) -> str:
     chain = extra.get("chain_effect")
     if chain and chain.get("messages"):
         lines += ["measurement chain"] + [_INDENT + m for m in chain["messages"]]
-    return ("Circuit notes\n" + "\n".join(lines)) if lines else ""
+    return ("Circuit notes\n" + "\n".join(_INDENT + line for line in lines)) if lines else ""
