@@ -73,11 +73,11 @@ def write_names_then_units(tmp: Path) -> tuple[Path, dict]:
 def write_side_metadata(tmp: Path) -> tuple[Path, dict]:
     """Layout 5: key/value cells in the first columns beside time and value, space padded."""
     t, v = truth()
-    side = [("Record Length", f"{N:.6e}", ""), ("Sample Interval", f"{DT:.6e}", ""),
-            ("Trigger Point", f"{-T0 / DT:.12e}", ""), ("", "", ""), ("Source", "CH1", ""),
-            ("Vertical Units", "V", ""), ("Vertical Scale", "2.000000e-01", ""),
-            ("Vertical Offset", "0.000000e+00", ""), ("", "", ""), ("Horizontal Units", "s", ""),
-            ("Horizontal Scale", "2.000000e-05", ""), ("Probe Attenuation", "1.000000e+01", "")]
+    side = [("Points", f"{N:.6e}", ""), ("Time step", f"{DT:.6e}", ""),
+            ("Trigger sample", f"{-T0 / DT:.12e}", ""), ("", "", ""), ("Channel", "CH1", ""),
+            ("Value unit", "V", ""), ("Screen scale", "2.000000e-01", "V/div"),
+            ("Screen centre", "0.000000e+00", "V"), ("", "", ""), ("Time unit", "s", ""),
+            ("Time per division", "2.000000e-05", "s"), ("Probe", "10:1", "")]
     lines = []
     for k, (a, b) in enumerate(zip(t, v)):
         key, val, unit = side[k] if k < len(side) else ("", "", "")
@@ -169,7 +169,7 @@ def test_layout5_metadata_beside_the_data(tmp_path):
     path, want = write_side_metadata(tmp_path)
     cap = load_capture(path)
     check_truth(cap, want, time_tol=1e-9)
-    assert cap.metadata["Probe Attenuation"] == "1.000000e+01"
+    assert cap.metadata["Probe"].strip() == "10:1"
     assert cap.channel_names == ("CH1",) and cap.channel("CH1").unit == "V"
     assert cap.provenance.data_start_line == 1
     assert "beside the data" in cap.provenance.layout
