@@ -12,7 +12,7 @@ from fitkit.batch import BatchRun, BatchSettings, batch_exit_status, discover_in
 from fitkit.batch.discover import content_hash
 from fitkit.batch.runner import plan_batch, result_key
 from fitkit.errors import OptionError
-from test_batch_support import write_flat, write_garbage, write_good_first_order, write_glitch
+from support.batch_captures import write_flat, write_garbage, write_good_first_order, write_glitch
 
 
 def _touch(path, text="x"):

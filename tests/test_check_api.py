@@ -19,10 +19,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML, simulate_board
+from support.check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML, simulate_board
 from fitkit.check import check_capture, loads_design
 from fitkit.io import load_capture
-from reference_paths import REAL_CAPTURES, needs_real_captures
+from support.reference_paths import REAL_CAPTURES, needs_real_captures
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "demo_captures"

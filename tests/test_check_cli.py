@@ -7,7 +7,7 @@ from pathlib import Path
 
 import numpy as np
 
-from check_simulator import RC_DESIGN_TOML, simulate_board
+from support.check_simulator import RC_DESIGN_TOML, simulate_board
 from fitkit import exitcodes
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling

@@ -1,7 +1,7 @@
 """Fault diagnosis on simulated boards: every library topology, every part position,
 one part wrong (a decade off, the neighbouring E24 value, drifted 30 %, taken in turn).
 
-The boards come from an independent simulator (tests/check_simulator.py:
+The boards come from an independent simulator (tests/support/check_simulator.py:
 closed-form transfer functions from circuit textbooks, scipy.signal.lsim),
 two channels (input pad and output) as on a bench, 3 mV rms band-limited
 noise, 10-bit quantisation over +-1.2 V; 1,000 samples over 7 slowest time
@@ -25,11 +25,15 @@ import math
 import eseries
 import pytest
 
-from check_simulator import simulate_board
+from support.check_simulator import simulate_board
 from fitkit.check.design import PartSpec, loads_design
 from fitkit.check.diagnosis import diagnose, fault_pattern
 from fitkit.circuits import TOPOLOGIES
 from fitkit.conditioning import analyse_steps
+
+#: The sweep of every topology and part is one Monte Carlo study, built once: every test of this
+#: module runs on one xdist worker (pyproject's --dist loadgroup), which builds the sweep once.
+pytestmark = [pytest.mark.slow, pytest.mark.xdist_group("check_diagnosis_sweep")]
 
 TOLERANCE = {"resistor": "1%", "capacitor": "5%", "inductor": "10%"}
 FAULTS = {"decade": 0.1, "neighbour": None, "drift": 0.7}
@@ -76,13 +80,6 @@ def sweep():
         design, truth, dx = run_case(topo, part, fault, seed=1000 + i)
         out.append((topo, part, fault, design, truth, dx))
     return out
-
-
-def test_every_topology_and_part_is_covered():
-    # 10 library topologies; every resistor, capacitor and inductor position; every fault kind
-    assert len(TOPOLOGIES) == 10
-    assert len(CASES) == sum(k != "amplifier" for t in TOPOLOGIES.values() for _, k, _, _ in t.parts)
-    assert {c[2] for c in CASES} == set(FAULTS)
 
 
 def test_right_part_ranks_first_or_among_tied_leaders(sweep):
@@ -186,7 +183,7 @@ def test_the_simulators_textbook_transfer_functions_agree_with_fitkits_nodal_ana
     # guards the independent simulator itself: textbook H(s) against fitkit.circuits (nodal analysis)
     import numpy as np
 
-    from check_simulator import closed_form_tf
+    from support.check_simulator import closed_form_tf
     from fitkit.circuits import topology, transfer_function
     for name in TOPOLOGIES:
         circuit = topology(name)

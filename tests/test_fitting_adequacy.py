@@ -20,7 +20,7 @@ from fitkit.capture import Capture
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 from fitkit.fitting import fit_capture
-from test_fitting_support import coloured_noise, first_order_tf, second_order_tf, square_wave_capture, two_pole_tf
+from support.fitting_sims import coloured_noise, first_order_tf, second_order_tf, square_wave_capture, two_pole_tf
 
 
 def single_edge_capture(tf, *, dt: float, n: int, edge: float, rng, noise: float, band: float | None = None,

@@ -16,7 +16,7 @@ from fitkit import exitcodes
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 
-from test_fitting_support import first_order_tf, second_order_tf, square_wave_capture
+from support.fitting_sims import first_order_tf, second_order_tf, square_wave_capture
 
 
 def _write(cap, path, names):

@@ -20,7 +20,7 @@ from scipy import optimize, stats
 from fitkit.conditioning.segment import StepSegment
 from fitkit.fitting import fit_segments
 
-from test_fitting_support import first_order_tf, simulated_segment
+from support.fitting_sims import first_order_tf, simulated_segment
 from test_nist_strd import read_strd
 
 

@@ -26,7 +26,7 @@ import pytest
 from fitkit.conditioning.segment import StepSegment
 from fitkit.fitting import fit_model, fit_segments
 from fitkit.forms.first_order import FIRST_ORDER
-from reference_paths import NIST_STRD, needs_nist_strd
+from support.reference_paths import NIST_STRD, needs_nist_strd
 
 NIST = NIST_STRD
 pytestmark = needs_nist_strd

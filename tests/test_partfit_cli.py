@@ -14,7 +14,7 @@ import pytest
 from fitkit import exitcodes
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
-from test_partfit_support import rc_ladder_tf, rc_low_pass_tf, step_capture
+from support.circuit_sims import rc_ladder_tf, rc_low_pass_tf, step_capture
 
 LADDER_TOML = """
 name = "ladder board"

@@ -19,7 +19,7 @@ import pytest
 from fitkit.circuits import topology
 from fitkit.io import load_capture
 from fitkit.part_values import POORLY_DETERMINED, fit_circuit
-from reference_paths import REAL_CAPTURES, needs_real_captures
+from support.reference_paths import REAL_CAPTURES, needs_real_captures
 
 CAPTURE = REAL_CAPTURES / "rc-ladder-adc-step.csv"
 pytestmark = needs_real_captures

@@ -101,6 +101,7 @@ def test_one_sided_when_the_data_allow_a_single_pole():
     assert r.derived["tau2"].ci95 == tau2.ci95
 
 
+@pytest.mark.slow
 def test_profile_coverage_of_a_barely_determined_second_pole():
     # 100 captures, tau2/tau1 = 0.02 at 40 dB (tau2's bound about 34 %): the
     # region's quadratic range covered 81-87 % here (benchmarks/bench_accuracy.py);

@@ -30,7 +30,7 @@ import pytest
 from fitkit.capture import Capture
 from fitkit.errors import OptionError
 from fitkit.report.html import render_html_report, write_html_report
-from test_report_fixtures import make_result
+from support.report_results import make_result
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 needs_chromium = pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed here "

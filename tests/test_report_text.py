@@ -9,7 +9,7 @@ import pytest
 from quantiphy import Quantity
 
 from fitkit.report.text import render_fit_text
-from test_report_fixtures import FORM_NAMES, make_result
+from support.report_results import FORM_NAMES, make_result
 
 
 @pytest.fixture(scope="module")
