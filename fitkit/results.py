@@ -75,6 +75,11 @@ class Estimate:
         }
 
 
+#: Quantity names of earlier releases, still accepted by FitResult.quantity (a zero's time
+#: constant was "tz"; it is "tau_z" like every other time constant).
+OLDER_NAMES = {"tz": "tau_z"}
+
+
 @dataclass(frozen=True)
 class CandidateScore:
     """How one candidate form fared in model selection.
@@ -221,6 +226,7 @@ class FitResult:
         Raises QuantityError (a KeyError and a ValueError) naming the known quantities."""
         if not isinstance(name, str):
             raise ArgumentError(f"quantity: a name is text, not {type(name).__name__}")
+        name = OLDER_NAMES.get(name, name)
         for table in (self.parameters, self.derived, self.components):
             if name in table:
                 return table[name]

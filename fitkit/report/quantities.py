@@ -44,7 +44,7 @@ LABELS: dict[str, str] = {
     "tau3": "third time constant",
     "tau4": "fourth time constant",
     "tau5": "fifth time constant",
-    "tz": "zero time constant",
+    "tau_z": "zero time constant",
     "tau_dominant": "dominant time constant",
     "f0": "natural frequency",
     "omega0": "natural angular frequency",

@@ -29,7 +29,7 @@ FORM_SHAPES: dict[str, dict[str, tuple[float, str]]] = {
     "underdamped": {"f0": (10e3, "Hz"), "Q": (3.0, "")},
     "second-order": {"f0": (20e3, "Hz"), "Q": (0.8, "")},
     "three-real-pole": {"tau1": (40e-6, "s"), "tau2": (12e-6, "s"), "tau3": (3e-6, "s")},
-    "pole-zero": {"tz": (5e-6, "s"), "tau1": (30e-6, "s"), "tau2": (8e-6, "s")},
+    "pole-zero": {"tau_z": (5e-6, "s"), "tau1": (30e-6, "s"), "tau2": (8e-6, "s")},
 }
 FORM_NAMES = tuple(FORM_SHAPES)
 
@@ -47,7 +47,7 @@ def transfer_function(model: str) -> tuple[np.ndarray, np.ndarray]:
         w0 = TWO_PI * p["f0"]
         return np.array([w0 * w0]), np.array([1.0, w0 / p["Q"], w0 * w0])
     if model == "pole-zero":
-        return np.array([p["tz"], 1.0]), np.polymul([p["tau1"], 1.0], [p["tau2"], 1.0])
+        return np.array([p["tau_z"], 1.0]), np.polymul([p["tau1"], 1.0], [p["tau2"], 1.0])
     den = np.array([1.0])
     for name in ("tau1", "tau2", "tau3"):
         if name in p:
