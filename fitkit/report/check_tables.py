@@ -16,7 +16,8 @@ import math
 from typing import Any
 
 from ..units import format_interval, format_value
-from .check_text import SUSPECT_DELTA_MEANING, TIE_MEANING, output_unit_of, percent_text, rank_mark
+from .check_text import (SUSPECT_DELTA_MEANING, TIE_MEANING, output_unit_of, percent_text, rank_mark,
+                         summary_after_banner)
 from .quantities import unique_lines
 
 #: Columns of the check CSV (see check_result_csv).
@@ -124,7 +125,7 @@ def check_html_sections(result) -> list[tuple[str, str]]:
     suspects, the capture against the envelope and what would resolve an inconclusive
     check. Every text from files is escaped."""
     d = result.design
-    summary = (f'<p class="check-summary">{_e(result.summary)}</p>'
+    summary = (f'<p class="check-summary">{_e(summary_after_banner(result))}</p>'
                f"<p>Design: {_e(d.name)}" + (f" ({_e(d.path)})" if d.path else "") + ". Model driven by "
                + ("the measured input" if result.measured_input else "an ideal step (no input channel)") + ".</p>")
     sections = [("Board check", summary)]

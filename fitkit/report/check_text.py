@@ -50,6 +50,13 @@ def output_unit_of(result) -> str:
     return fit.output_unit if fit is not None else "V"
 
 
+def summary_after_banner(result) -> str:
+    """The one-line summary under the verdict banner, without the verdict word the banner
+    has just said ("fail; f0 ... outside ..." -> "f0 ... outside ...")."""
+    head = f"{result.verdict}; "
+    return result.summary[len(head):] if result.summary.startswith(head) else result.summary
+
+
 def percent_text(text: str) -> str:
     """A tolerance as written in a design file ("1%", "+-5%") in SI style ("1 %", "+-5 %")."""
     return re.sub(r"(\d)\s*%", r"\1 %", text)
@@ -72,7 +79,7 @@ def render_check_text(result) -> str:
              f"  model driven by: {'the measured input' if result.measured_input else 'an ideal step (no input channel)'}"
              + (f"; fixture: {d.circuit.chain.describe()}" if not d.circuit.chain.is_empty else ""),
              *_channels_line(result),
-             "", f"  {BANNER[result.verdict]}", f"  {result.summary}", ""]
+             "", f"  {BANNER[result.verdict]}", f"  {summary_after_banner(result)}", ""]
     if result.quantities:
         lines.append("behaviour                  measured     95 % interval                  allowed range"
                      "                  from                 verdict")
