@@ -25,7 +25,7 @@ DEMO = Path(__file__).resolve().parents[1] / "demo_captures"
 
 #: Names the AICc difference, the tie and the residual once had; none may appear again.
 RETIRED = ("delta AICc", "difference from chosen", "evidence", "(leader)", "higher by",
-           "simplest form that fits", "a more complex form needs", "leading suspect")
+           "simplest form that fits", "a more complex form needs")
 RETIRED_JSON_KEYS = ("delta", "evidence", "evidence_against_all_nominal")
 
 
