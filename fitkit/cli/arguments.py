@@ -31,7 +31,7 @@ def pop_form(kwargs: dict) -> str:
     if form is not None and alias is not None and form != alias:
         raise OptionError(f"--form {form!r} and --model {alias!r} disagree",
                           hint="give --form only (--model is its older spelling)")
-    chosen = form or alias or "auto"
+    chosen = form if form is not None else alias if alias is not None else "auto"
     check_model(chosen, "--form" if form is not None or alias is None else "--model")
     return chosen
 
