@@ -18,7 +18,7 @@ from fitkit.cli import cli
 from fitkit.cli.capture_options import CaptureOptions, capture_options, channel_roles
 from fitkit.errors import OptionError
 
-import test_io_layouts as layouts
+import support.layout_files as layouts
 from support.reference_paths import REAL_CAPTURES, needs_real_captures
 
 REAL = REAL_CAPTURES
