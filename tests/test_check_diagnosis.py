@@ -21,19 +21,21 @@ correlation of quantised band-limited noise is only approximately AR(1)).
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import eseries
 import pytest
 
 from support.check_simulator import simulate_board
+from support.session_cache import built_once
 from fitkit.check.design import PartSpec, loads_design
 from fitkit.check.diagnosis import diagnose, fault_pattern
 from fitkit.circuits import TOPOLOGIES
 from fitkit.conditioning import analyse_steps
 
-#: The sweep of every topology and part is one Monte Carlo study, built once: every test of this
-#: module runs on one xdist worker (pyproject's --dist loadgroup), which builds the sweep once.
-pytestmark = [pytest.mark.slow, pytest.mark.xdist_group("check_diagnosis_sweep")]
+#: The sweep of every topology and part is one Monte Carlo study (about 80 s): built once per
+#: session and shared by the xdist workers (tests/support/session_cache.py).
+pytestmark = pytest.mark.slow
 
 TOLERANCE = {"resistor": "1%", "capacitor": "5%", "inductor": "10%"}
 FAULTS = {"decade": 0.1, "neighbour": None, "drift": 0.7}
@@ -73,13 +75,19 @@ def run_case(topo: str, part: str, fault: str, seed: int):
     return design, truth, diagnose(design, segments)
 
 
-@pytest.fixture(scope="module")
-def sweep():
+def _sweep() -> list:
     out = []
     for i, (topo, part, fault) in enumerate(CASES):
         design, truth, dx = run_case(topo, part, fault, seed=1000 + i)
         out.append((topo, part, fault, design, truth, dx))
     return out
+
+
+@pytest.fixture(scope="session")
+def sweep(tmp_path_factory):
+    here = Path(__file__).resolve()
+    return built_once(tmp_path_factory, "check_diagnosis_sweep",
+                      [here, here.parent / "support" / "check_simulator.py"], _sweep)
 
 
 def test_right_part_ranks_first_or_among_tied_leaders(sweep):
