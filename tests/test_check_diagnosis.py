@@ -34,8 +34,7 @@ from fitkit.circuits import TOPOLOGIES
 from fitkit.conditioning import analyse_steps
 
 #: The sweep of every topology and part is one Monte Carlo study (about 80 s): built once per
-#: session and shared by the xdist workers (tests/support/session_cache.py).
-pytestmark = pytest.mark.slow
+#: session and shared by the xdist workers (tests/support/session_cache.py); its tests are slow.
 
 TOLERANCE = {"resistor": "1%", "capacitor": "5%", "inductor": "10%"}
 FAULTS = {"decade": 0.1, "neighbour": None, "drift": 0.7}
@@ -90,12 +89,14 @@ def sweep(tmp_path_factory):
                       [here, here.parent / "support" / "check_simulator.py"], _sweep)
 
 
+@pytest.mark.slow
 def test_right_part_ranks_first_or_among_tied_leaders(sweep):
     misses = [(topo, part, fault, [s.part for s in dx.suspects[:3]])
               for topo, part, fault, _, _, dx in sweep if part not in dx.leaders]
     assert len(misses) <= 0.05 * len(sweep), misses
 
 
+@pytest.mark.slow
 def test_implied_value_interval_holds_the_truth(sweep):
     held, total = 0, 0
     for _, part, _, _, truth, dx in sweep:
@@ -107,6 +108,7 @@ def test_implied_value_interval_holds_the_truth(sweep):
     assert held >= 0.85 * total, (held, total)
 
 
+@pytest.mark.slow
 def test_no_reported_value_sits_at_a_search_bound(sweep):
     # a fit that ran beyond PLAUSIBLE_SPAN x nominal "does not explain the capture" and has no value
     from fitkit.check.hypotheses import PLAUSIBLE_SPAN
@@ -117,6 +119,7 @@ def test_no_reported_value_sits_at_a_search_bound(sweep):
                 assert s.ci95 is not None, s
 
 
+@pytest.mark.slow
 def test_leading_suspect_explains_the_capture_to_the_noise(sweep):
     explained = sum(dx.explained for *_, dx in sweep)
     assert explained >= 0.95 * len(sweep)
@@ -136,6 +139,7 @@ def expected_pattern(spec: PartSpec, truth: float) -> str:
     return "drifted"
 
 
+@pytest.mark.slow
 def test_fault_pattern_of_the_leader_matches_the_fault(sweep):
     right, total = 0, 0
     for _, part, _, design, truth, dx in sweep:
@@ -150,9 +154,9 @@ def test_fault_pattern_of_the_leader_matches_the_fault(sweep):
 @pytest.mark.parametrize("nominal,value,ci,words", [
     (47e-9, 4.7e-9, (4.6e-9, 4.8e-9), "a decade low"),                    # 4.7 nF where 47 nF belongs
     (10e3, 100e3, (99e3, 101e3), "a decade high"),
-    (10e3, 11e3, (10.9e3, 11.1e3), "neighbouring E24 value up"),          # IEC 60063 E24: 10, 11, 12
+    (10e3, 11e3, (10.9e3, 11.1e3), "neighbouring E24 value up (11 kOhm)"),  # IEC 60063 E24: 10, 11, 12
     (10e3, 9.1e3, (9.05e3, 9.15e3), "neighbouring E24 value down"),
-    (10e3, 15e3, (14.9e3, 15.1e3), "another E24 value"),
+    (10e3, 15e3, (14.9e3, 15.1e3), "another E24 value (15 kOhm)"),       # the value in engineering notation
     (22e-9, 13.86e-9, (13.7e-9, 14.0e-9), "drifted"),                    # demo README: 6.6 % from 13 nF
     (10e3, 10.05e3, (9.95e3, 10.15e3), "within tolerance"),
 ])
