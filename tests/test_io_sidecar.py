@@ -54,7 +54,9 @@ def test_without_a_sidecar_a_headerless_file_needs_the_interval(headerless, caps
 
 @pytest.mark.parametrize("text,words", [('sample_intervall = "1u"\n', "unknown setting 'sample_intervall'"),
                                         ("skip_rows = 'two'\n", "skip_rows"),
-                                        ("sample_interval = \n", "cannot be read")])
+                                        ("sample_interval = \n", "cannot be read"),
+                                        ('sample_interval = "abc"\n', "sample_interval: cannot read 'abc'"),
+                                        ('time_unit = "weeks"\n', "time_unit 'weeks' is not a unit of time")])
 def test_a_wrong_sidecar_is_refused_naming_it(headerless, text, words):
     (headerless.parent / "board.txt.fitkit.toml").write_text(text)
     with pytest.raises(CaptureError) as err:

@@ -75,7 +75,27 @@ def sidecar_settings(capture_path: str | Path) -> tuple[dict[str, Any], Path | N
         if key == "decimal":
             value = _DECIMALS.get(value, value)
         settings[key] = value
+    _check_values(settings, side)
     return settings, side
+
+
+def _check_values(settings: dict[str, Any], side: Path) -> None:
+    """The checks load_capture makes of its options, made of the sidecar's values, so an
+    error names the sidecar and its key rather than a command-line option not given."""
+    from . import check_read_options, checked_numbers
+    from ..errors import OptionError
+    try:
+        check_read_options(encoding=settings.get("encoding"), time_unit=settings.get("time_unit"),
+                           value_unit=settings.get("value_unit"), skip_rows=settings.get("skip_rows"),
+                           header_rows=settings.get("header_rows"), delimiter=settings.get("delimiter"),
+                           time_column=settings.get("time_column"))
+        checked_numbers(settings.get("sample_interval"), settings.get("time_origin"),
+                        settings.get("vertical_scale"), settings.get("vertical_offset"))
+    except OptionError as err:
+        message = err.message
+        for key in SETTINGS:
+            message = message.replace("--" + key.replace("_", "-"), key)
+        raise CaptureError(message, path=str(side), hint=err.hint) from None
 
 
 def with_sidecar(capture_path: str | Path, given: dict[str, Any]) -> tuple[dict[str, Any], list[str]]:
