@@ -75,9 +75,12 @@ class Estimate:
         }
 
 
-#: Quantity names of earlier releases, still accepted by FitResult.quantity (a zero's time
-#: constant was "tz"; it is "tau_z" like every other time constant).
-OLDER_NAMES = {"tz": "tau_z"}
+#: Quantity names of earlier releases, still accepted by FitResult.quantity: a zero's time
+#: constant was "tz" (now "tau_z" like every other time constant); a circuit fit's time
+#: constants were "tau_slow", "tau_fast", "tau_slowest" (now named as the forms name them) and
+#: its circuit's DC gain "dc_gain" (now "circuit_dc_gain", apart from the measured "gain").
+OLDER_NAMES = {"tz": "tau_z", "tau_slow": "tau1", "tau_fast": "tau2", "tau_slowest": "tau_dominant",
+               "dc_gain": "circuit_dc_gain"}
 
 
 @dataclass(frozen=True)

@@ -81,6 +81,6 @@ def name_value_pairs(items, option: str) -> dict[str, str]:
                 raise OptionError(f"{option} {piece!r} is not NAME=VALUE", hint=f"write e.g. {option} R1=10k")
             if name in out:
                 raise OptionError(f"{option} gives {name} twice ({out[name]} and {value})",
-                                  hint=f"give each part once")
+                                  hint="give each part once")
             out[name] = value
     return out
