@@ -106,10 +106,10 @@ W0_10K = 2 * math.pi * 10e3
 NEW_RESPONSES = {
     "band-pass Q 5": ("underdamped-band-pass", {"f0": 10e3, "Q": 5.0}, 1 / W0_10K, 10 / W0_10K, None),
     "band-pass two-pole 0.2": ("two-real-pole-band-pass", {"tau1": 100e-6, "tau2": 20e-6}, 20e-6, 100e-6, None),
-    "zero left Q 2": ("underdamped-zero", {"f0": 10e3, "Q": 2.0, "tz": 1 / W0_10K}, 1 / W0_10K, 4 / W0_10K, None),
-    "zero right Q 2": ("underdamped-undershoot", {"f0": 10e3, "Q": 2.0, "tz": 0.5 / W0_10K}, 0.5 / W0_10K,
+    "zero left Q 2": ("underdamped-zero", {"f0": 10e3, "Q": 2.0, "tau_z": 1 / W0_10K}, 1 / W0_10K, 4 / W0_10K, None),
+    "zero right Q 2": ("underdamped-undershoot", {"f0": 10e3, "Q": 2.0, "tau_z": 0.5 / W0_10K}, 0.5 / W0_10K,
                        4 / W0_10K, None),
-    "zero right two-pole": ("two-real-pole-undershoot", {"tz": 30e-6, "tau1": 100e-6, "tau2": 20e-6}, 20e-6,
+    "zero right two-pole": ("two-real-pole-undershoot", {"tau_z": 30e-6, "tau1": 100e-6, "tau2": 20e-6}, 20e-6,
                             100e-6, None),
     "dead time 0.2": ("first-order-with-delay", {"tau": 100e-6, "delay": 20e-6}, 20e-6, 100e-6, None),
     "pulse 1 tau": ("first-order-pulse", {"tau": 100e-6}, 100e-6, 100e-6, None),

@@ -12,7 +12,7 @@ step with the input pad measured, the output alone, and a square wave (four
 edges, input measured). Time units: the capture is written as CSV with its
 time column in s, ms or us (the unit in the header) and read back by
 fitkit's reader. ADC: 8 or 12 bits over the scope's vertical range. Boards
-come from tests/check_simulator.py (closed-form transfer functions from
+come from tests/support/check_simulator.py (closed-form transfer functions from
 circuit textbooks simulated with scipy.signal.lsim, 3 mV rms band-limited
 noise), independent of fitkit's circuit code.
 
@@ -42,7 +42,7 @@ from scipy import signal
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "tests"))
 
-from check_simulator import closed_form_tf  # noqa: E402
+from support.check_simulator import closed_form_tf  # noqa: E402
 from test_check_diagnosis import design_for, faulty_value  # noqa: E402
 
 from fitkit.check import check_capture  # noqa: E402

@@ -120,7 +120,7 @@ def simulate(ewma_setting, cusum_setting, sizes: dict, runs: int, seed: int = 1)
 
 def store_throughput(url: str, count: int, chunk: int) -> float:
     """Captures per second appended to a fresh store at url, ``chunk`` per transaction."""
-    from line_store_support import entry
+    from support.line_store_entries import entry
 
     from fitkit.line_store import StoredValue, open_store
     extra = tuple(StoredValue("quantity", f"q{j}", 1.0 + j, 0.9, 1.1, "s", True) for j in range(13))
@@ -142,7 +142,7 @@ def throughput_table(count: int) -> list[dict]:
             rows.append({"store": "SQLite file", "per_transaction": chunk,
                          "captures_per_s": store_throughput(str(Path(tmp) / f"s{chunk}.sqlite"), count, chunk)})
     try:
-        from postgres_server import running_server, server_url
+        from support.postgres_server import running_server, server_url
         with running_server() as server:
             import psycopg
             for chunk in (1, 200):

@@ -4,7 +4,7 @@ For tau2/tau1 in (1.0, 0.9, 0.5) (tau1 = 100 us), simulated captures with
 white noise at 40 dB (noise rms = step / 100), the same sampling as the
 accuracy benchmark's base cell (10 samples per fast time constant, a record
 of 6 slow time constants after the edge and a fifth of that before it), are
-fitted with ``--model two-real-pole``; the study counts how often each 95 %
+fitted with ``--form two-real-pole``; the study counts how often each 95 %
 interval of tau1 and tau2 contains the truth, how often the fit fails, and
 how often the equal-pole warning is given.
 
@@ -111,7 +111,7 @@ def main() -> None:
     markdown = "\n".join([
         "# Two-real-pole intervals at equal and close time constants", "",
         f"{info['date_utc']}; {info['cpu_model']}, {info['nproc']} cores. {args.trials} captures per ratio "
-        f"(seed {args.seed}), 40 dB white noise, `--model two-real-pole`; coverage of the 95 % intervals "
+        f"(seed {args.seed}), 40 dB white noise, `--form two-real-pole`; coverage of the 95 % intervals "
         f"in % of the fitted captures (standard error {se:.1f} %).", "",
         "| tau2/tau1 | fitted | failed | tau1 covered % | tau2 covered % | Q covered % | equal-pole warnings |",
         "|---|---|---|---|---|---|---|", *lines, ""])

@@ -61,7 +61,7 @@ VALUES = {
     "--input": ["1", "Input", "nope", ""],
     "--output": ["2", "Output", "nope", "1"],
     "--edge-time": ["1m", "abc", "0", "-1", "1e300"],
-    "--model": ["auto", "first-order", "underdamped", "two-real-pole", "nonsense", ""],
+    "--form": ["auto", "first-order", "underdamped", "two-real-pole", "nonsense", ""],
     "--intervals": ["auto", "covariance", "profile", "bogus"],
     "--topology": ["rc-lowpass", "rc-ladder-2", "nonsense"],
     "--known": ["R1=10k", "R1=10k,R1=20k", "R1=x", "R9=1k", "=5", "R1"],
@@ -75,11 +75,11 @@ PER_COMMAND = {
                 "--vertical-scale", "--delimiter", "--decimal", "--skip-rows", "--header-rows", "--encoding",
                 "--channel", "--input", "--output", "--edge-time"],
     "fit": ["--sample-interval", "--time-column", "--time-unit", "--value-unit", "--vertical-scale",
-            "--skip-rows", "--encoding", "--channel", "--input", "--output", "--edge-time", "--model",
+            "--skip-rows", "--encoding", "--channel", "--input", "--output", "--edge-time", "--form",
             "--intervals", "--topology", "--known"],
     "check": ["--design", "--sample-interval", "--time-unit", "--value-unit", "--encoding", "--input",
               "--output", "--edge-time", "--trials", "--seed"],
-    "batch": ["--model", "--design", "--sample-interval", "--value-unit", "--encoding", "--skip-rows"],
+    "batch": ["--form", "--design", "--sample-interval", "--value-unit", "--encoding", "--skip-rows"],
 }
 DOCUMENTED = {0, 1, 2, 3, 4, 5, 6, 73}
 

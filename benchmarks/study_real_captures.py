@@ -1,7 +1,7 @@
 """Study: fitkit on the real captures of ../shared/reference/real-captures, with no options.
 
 For each file: the exit status, the form, the checked quantities against the
-ranges of tests/real_corpus.py (from that folder's SOURCE.md), and the verdict
+ranges of tests/support/real_corpus.py (from that folder's SOURCE.md), and the verdict
 (right, refused naming a fix, or wrong). Writes results/real_captures.{json,md}.
 
     python benchmarks/study_real_captures.py
@@ -18,7 +18,7 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent / "tests"))
 
-from real_corpus import CASES, judge, run_fitkit  # noqa: E402
+from support.real_corpus import CASES, judge, run_fitkit  # noqa: E402
 
 
 def _fmt(x: float | None) -> str:

@@ -359,6 +359,10 @@ def seconds_sci(time_ns: int) -> str:
 
 # ---- the file layouts (each header is our own design) -------------------------------
 
+#: The settings file beside a capture that does not state them (fitkit.io.sidecar; not imported:
+#: this script uses numpy and scipy only).
+SIDECAR_SUFFIX = ".fitkit.toml"
+
 def board_line(board: str) -> str:
     return f"{PRODUCT} serial {BOARDS[board]['serial']}"
 
@@ -436,13 +440,13 @@ def write_settings_beside_data(paths: list[Path], board: str, topology: str, tb:
 def _write_one_channel(path: Path, number: int, pad: str, board: str, topology: str, tb: Timebase,
                        counts: np.ndarray, role: str) -> None:
     """One channel's file of layout 5; fields space-padded."""
-    settings = [("Record length", str(tb.points)), ("Sample interval (s)", f"{tb.sample_interval:.6e}"),
-                ("Trigger point", str(tb.pretrigger)), ("Vertical units", "V"),
-                ("Vertical scale", f"{SCREEN.volts_per_division:g} V/div"),
-                ("Vertical offset", f"{SCREEN.centre:g} V at centre"), ("Probe attenuation", "10"),
-                ("Channel", f"CH{number}"), ("Pad", f"{pad} {role}"), ("Board serial", BOARDS[board]["serial"]),
-                ("Stage", STAGE_NAMES[topology]), ("Date", f"{TRIGGER_WALL_CLOCK:%Y-%m-%d}")]
-    lines = [f"{'Setting':<19},{'Value':<19},,{'Time (s)':>14},{pad + ' (V)':>9}"]
+    settings = [("Board serial", BOARDS[board]["serial"]), ("Stage", STAGE_NAMES[topology]),
+                ("Pad", f"{pad} {role}"), ("Channel", f"CH{number}"), ("Points", str(tb.points)),
+                ("Time step (s)", f"{tb.sample_interval:.6e}"), ("Pretrigger samples", str(tb.pretrigger)),
+                ("Value unit", "V"), ("Screen", f"{SCREEN.volts_per_division:g} V/div"),
+                ("Screen centre", f"{SCREEN.centre:g} V"), ("Probe", "10:1"),
+                ("Date", f"{TRIGGER_WALL_CLOCK:%Y-%m-%d}")]
+    lines = [f"{'Bench record':<19},{'':<19},,{'Time (s)':>14},{pad + ' (V)':>9}"]
     for row, (t, count) in enumerate(zip(tb.times_ns(), counts)):
         key, value = settings[row] if row < len(settings) else ("", "")
         lines.append(f"{key:<19},{value:<19},,{seconds_sci(t):>14},{volts_text(count):>9}")
@@ -467,6 +471,11 @@ def write_no_header(paths: list[Path], board: str, topology: str, tb: Timebase, 
     """Layout 7: no header at all; two space-separated columns, input and output volts."""
     lines = [f"{volts_text(i):>9} {volts_text(o):>9}" for i, o in zip(cap["input"], cap["output"])]
     paths[0].write_text("\n".join(lines) + "\n", newline="")
+    # what the file does not say, in the settings file fitkit reads beside it (FILE.fitkit.toml)
+    first_us = tb.times_ns()[0] // 1000
+    sidecar = [f"# what {paths[0].name} does not say (fitkit reads this file beside it)",
+               f'sample_interval = "{tb.interval_ns // 1000}u"', f'time_origin = "{first_us}u"', 'value_unit = "V"']
+    paths[0].with_name(paths[0].name + SIDECAR_SUFFIX).write_text("\n".join(sidecar) + "\n", newline="")
 
 
 def write_wall_clock(paths: list[Path], board: str, topology: str, tb: Timebase, cap: dict) -> None:
@@ -510,7 +519,7 @@ def make_all(out_dir: Path) -> list[str]:
         cap = simulate_capture(board, topology, tb, stream, SQUARE_HALF_PERIOD if square else None,
                                lead_in=4 * SQUARE_HALF_PERIOD if square else 0)
         writer([out_dir / name for name in names], board, topology, tb, cap)
-        written += names
+        written += names + [n + SIDECAR_SUFFIX for n in names if (out_dir / (n + SIDECAR_SUFFIX)).exists()]
         edge_count = -(-(tb.points - tb.pretrigger) // SQUARE_HALF_PERIOD) if square else 1
         edges = [k * SQUARE_HALF_PERIOD * tb.sample_interval for k in range(edge_count)]
         truth[names[0]] = {

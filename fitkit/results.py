@@ -75,12 +75,21 @@ class Estimate:
         }
 
 
+#: Quantity names of earlier releases, still accepted by FitResult.quantity: a zero's time
+#: constant was "tz" (now "tau_z" like every other time constant); a circuit fit's time
+#: constants were "tau_slow", "tau_fast", "tau_slowest" (now named as the forms name them) and
+#: its circuit's DC gain "dc_gain" (now "circuit_dc_gain", apart from the measured "gain").
+OLDER_NAMES = {"tz": "tau_z", "tau_slow": "tau1", "tau_fast": "tau2", "tau_slowest": "tau_dominant",
+               "dc_gain": "circuit_dc_gain"}
+
+
 @dataclass(frozen=True)
 class CandidateScore:
     """How one candidate form fared in model selection.
 
     ``criterion`` is the information criterion value (lower is better) and
-    ``delta`` its difference from the chosen form's.
+    ``delta`` its difference from the chosen form's (ΔAICc, JSON ``delta_aicc``;
+    bigger = worse fit).
     """
 
     model: str
@@ -93,7 +102,7 @@ class CandidateScore:
 
     def to_dict(self) -> dict[str, Any]:
         return {"model": self.model, "converged": self.converged, "n_parameters": self.n_parameters,
-                "criterion": json_number(self.criterion), "delta": json_number(self.delta),
+                "criterion": json_number(self.criterion), "delta_aicc": json_number(self.delta),
                 "rms_residual": json_number(self.rms_residual), "note": self.note}
 
 
@@ -220,6 +229,7 @@ class FitResult:
         Raises QuantityError (a KeyError and a ValueError) naming the known quantities."""
         if not isinstance(name, str):
             raise ArgumentError(f"quantity: a name is text, not {type(name).__name__}")
+        name = OLDER_NAMES.get(name, name)
         for table in (self.parameters, self.derived, self.components):
             if name in table:
                 return table[name]

@@ -13,7 +13,7 @@ import pytest
 from fitkit import exitcodes
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
-from test_batch_support import first_order
+from support.batch_captures import first_order
 
 
 DESIGN = Path(__file__).resolve().parents[1] / "demo_captures" / "designs" / "input_rc_lowpass.toml"

@@ -8,7 +8,7 @@ import pytest
 from fitkit.batch import BatchSettings, run_batch, summary_frame
 from fitkit.batch.summary import TIMING_COLUMNS
 from fitkit.errors import OptionError
-from test_batch_support import line_folder
+from support.batch_captures import line_folder
 
 distributed = pytest.importorskip("distributed")
 

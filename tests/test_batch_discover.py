@@ -12,7 +12,7 @@ from fitkit.batch import BatchRun, BatchSettings, batch_exit_status, discover_in
 from fitkit.batch.discover import content_hash
 from fitkit.batch.runner import plan_batch, result_key
 from fitkit.errors import OptionError
-from test_batch_support import write_flat, write_garbage, write_good_first_order, write_glitch
+from support.batch_captures import write_flat, write_garbage, write_good_first_order, write_glitch
 
 
 def _touch(path, text="x"):
@@ -120,3 +120,33 @@ def test_exit_status_follows_the_documented_order(statuses, expected):
 def test_no_inputs_is_an_option_error(tmp_path):
     with pytest.raises(OptionError, match="no inputs"):
         plan_batch([], BatchSettings(), tmp_path / "out")
+
+
+def test_input_and_output_files_of_one_capture_are_one_input(tmp_path, monkeypatch):
+    # the naming rule of fitkit.io.pairs: NAME_input.EXT + NAME_output.EXT in one folder
+    monkeypatch.chdir(tmp_path)
+    for name in ("d/board_7_input.csv", "d/board_7_output.csv", "d/board_8_output.csv", "d/board_9.csv",
+                 "d/other_input.txt", "d/other_output.csv"):
+        _touch(tmp_path / name)
+    found = [i.path for i in discover_inputs(["d"])]
+    assert found == [os.path.join("d", "board_7_input.csv") + " + " + os.path.join("d", "board_7_output.csv"),
+                     os.path.join("d", "board_8_output.csv"),     # no partner: a capture of its own
+                     os.path.join("d", "board_9.csv"),
+                     os.path.join("d", "other_input.txt"), os.path.join("d", "other_output.csv")]  # not one extension
+    # a pair's name, as a batch reports it, is an input again (a --follow run passes it back)
+    assert [i.path for i in discover_inputs([found[0]])] == [found[0]]
+    # its content hash covers both files: a change to either is a new capture
+    before = content_hash(found[0])
+    _touch(tmp_path / "d" / "board_7_output.csv", "y")
+    assert content_hash(found[0]) != before
+
+
+def test_a_pair_is_fitted_as_input_and_output(tmp_path):
+    # the demo's one-file-per-channel capture: read as `fitkit fit IN OUT` reads it
+    from pathlib import Path
+    demo = Path(__file__).resolve().parents[1] / "demo_captures"
+    name = f"{demo / 'wrong_part_board_ladder_input.csv'} + {demo / 'wrong_part_board_ladder_output.csv'}"
+    record = process_capture(name, BatchSettings(model="auto"))
+    assert record["status"] == "fitted", record["reason"]
+    # measured-input mode needs the input file's channel: both files were read
+    assert record["result"]["extra"]["mode"] == "measured input"

@@ -14,9 +14,9 @@ from fitkit.batch import BatchSettings, run_batch
 from fitkit.batch.folder_lock import LOCK_NAME, output_folder_lock
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
-from test_batch_support import write_good_first_order
+from support.batch_captures import write_good_first_order
 
-ARGS = ["--model", "first-order", "--workers", "1", "--no-plots"]
+ARGS = ["--form", "first-order", "--workers", "1", "--no-plots"]
 
 
 def _write_lock(folder, pid, host=None):

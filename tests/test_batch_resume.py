@@ -17,7 +17,7 @@ import pytest
 from fitkit.batch import BatchSettings, run_batch, write_summary
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
-from test_batch_support import frame_without_timing, write_garbage, write_glitch, write_good_first_order
+from support.batch_captures import frame_without_timing, write_garbage, write_glitch, write_good_first_order
 
 N_BOARDS = 24
 KILL_AFTER = 3          # per-capture results on disk before the kill
@@ -32,7 +32,7 @@ def test_killed_batch_resumes_to_the_same_summary(tmp_path, capsys):
     write_garbage(folder / "board_garbage.csv", seed=98)
     distinct = N_BOARDS + 2
     killed = tmp_path / "killed"
-    args = [str(folder), "--out", str(killed), "--workers", "1", "--model", "first-order", "--no-plots"]
+    args = [str(folder), "--out", str(killed), "--workers", "1", "--form", "first-order", "--no-plots"]
 
     proc = subprocess.Popen([sys.executable, "-m", "fitkit", "batch", *args],
                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)

@@ -15,9 +15,9 @@ import pytest
 from fitkit import exitcodes
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
-from test_batch_support import (frame_without_timing, line_folder, write_glitch, write_good_first_order)
+from support.batch_captures import (frame_without_timing, line_folder, write_glitch, write_good_first_order)
 
-MODEL = ["--model", "first-order", "--workers", "1"]
+MODEL = ["--form", "first-order", "--workers", "1"]
 
 
 def _batch(args, capsys):
@@ -155,7 +155,7 @@ def test_changed_file_damaged_result_and_redo(tmp_path, capsys):
     assert "[3/3]" in err                                        # plain progress lines when not a terminal
     assert sorted(p.name for p in (out / "captures").glob("*.json")) == before
 
-    status, text, _ = _batch([str(folder), "--out", str(out), "--model", "critically-damped",
+    status, text, _ = _batch([str(folder), "--out", str(out), "--form", "critically-damped",
                               "--workers", "1", "--no-plots"], capsys)
     assert _counts_line(text)[0] == 3                            # other settings: computed afresh
 
@@ -253,7 +253,7 @@ def test_progress_is_a_bar_on_a_terminal_and_lines_otherwise():
 
 def test_reading_options_reach_every_capture_and_the_resume_key(tmp_path, capsys):
     import numpy as np
-    from test_batch_support import N_SAMPLES, RECORD_S, first_order, time_axis
+    from support.batch_captures import N_SAMPLES, RECORD_S, first_order, time_axis
 
     # a logger export with no time column: the sample interval must be given
     y = first_order(time_axis(), 100e-6) + np.random.default_rng(1).normal(0.0, 0.004, N_SAMPLES)

@@ -19,10 +19,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML, simulate_board
+from support.check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML, simulate_board
 from fitkit.check import check_capture, loads_design
 from fitkit.io import load_capture
-from reference_paths import REAL_CAPTURES, needs_real_captures
+from support.reference_paths import REAL_CAPTURES, needs_real_captures
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "demo_captures"
@@ -65,7 +65,7 @@ def test_demo_board_verdicts(demo_results, name, expected):
 
 @pytest.mark.parametrize("name", [c[0] for c in DEMO_CASES])
 def test_fit_and_check_report_the_same_behaviour(demo_results, name):
-    # one engine: `fitkit fit --model FORM` on the same capture gives the check's tau / f0 / Q
+    # one engine: `fitkit fit --form FORM` on the same capture gives the check's tau / f0 / Q
     # and intervals, to rounding (the check's own fit must not drift from the fit command's)
     from fitkit.fitting import fit_capture
     case = next(c for c in DEMO_CASES if c[0] == name)
@@ -123,7 +123,7 @@ def test_good_board_result_shape(demo_results):
     for c in d["components"].values():
         assert {"value", "ci95", "nominal", "tolerance", "verdict"} <= set(c)
     for s in d["suspects"]:
-        assert {"part", "value", "ci95", "evidence", "pattern"} <= set(s)
+        assert {"part", "value", "ci95", "delta_aicc", "pattern"} <= set(s)
     assert d["envelope"]["trials"] == 40 and d["envelope"]["corners"] == 16
     assert r.summary.startswith("pass")
     assert r.fit.model == "second-order"

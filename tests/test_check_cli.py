@@ -7,7 +7,7 @@ from pathlib import Path
 
 import numpy as np
 
-from check_simulator import RC_DESIGN_TOML, simulate_board
+from support.check_simulator import RC_DESIGN_TOML, simulate_board
 from fitkit import exitcodes
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
@@ -48,7 +48,7 @@ def test_passing_board_json(capsys, tmp_path):
     assert d["verdict"] == "pass"
     assert {"verdict", "components", "quantities", "suspects", "envelope", "resolve", "warnings"} <= set(d)
     assert {"value", "ci95", "nominal", "tolerance", "verdict"} <= set(d["components"]["C31"])
-    assert all({"part", "value", "ci95", "evidence"} <= set(s) for s in d["suspects"])
+    assert all({"part", "value", "ci95", "delta_aicc"} <= set(s) for s in d["suspects"])
     assert "Board check" in html.read_text(encoding="utf-8")
 
 

@@ -9,7 +9,7 @@ import pytest
 from fitkit.check import load_design, loads_design
 from fitkit.check.design import resolve_limits
 from fitkit.errors import DesignError
-from check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML
+from support.check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_captures" / "designs"
 

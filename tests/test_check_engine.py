@@ -52,3 +52,23 @@ def test_capture_of_another_stage_gets_a_verdict_not_a_crash():
     r = check_capture(cap, DEMO / "designs" / "rc_ladder.toml", envelope_trials=20)
     assert r.verdict in ("fail", "inconclusive")
     assert not any(s.tied and s.explains for s in r.suspects)
+
+
+def test_a_part_outside_its_band_but_not_the_suspect_reads_outside_if_alone():
+    # a part whose own interval lies wholly outside its tolerance is not "cannot tell" (which
+    # means the interval straddles a limit); when another part explains the capture better it
+    # is "outside if alone", and only a leading suspect outside its band fails the board
+    from fitkit.check.design import load_design
+    from fitkit.check.verdicts import CANNOT_TELL, OUTSIDE, OUTSIDE_IF_ALONE, judge_parts, overall_verdict
+    from fitkit.results import Estimate
+    design = load_design(DEMO / "designs" / "sallen_key_lowpass.toml")
+    names = {spec.designator: name for name, spec in design.parts.items()}
+    c31, r31, c32 = names["C31"], names["R31"], names["C32"]
+    estimates = {c31: Estimate(c31, 13.8e-9, 0.05e-9, (13.7e-9, 13.9e-9), "F"),       # far below 22 nF +-5 %
+                 r31: Estimate(r31, 8.5e3, 0.1e3, (8.3e3, 8.7e3), "Ohm"),             # below 10 kOhm +-1 %
+                 c32: Estimate(c32, 10.2e-9, 0.5e-9, (9.2e-9, 11.2e-9), "F")}         # straddles 10 nF +-5 %
+    parts = {p.part: p for p in judge_parts(design, estimates, leaders=[c31], undetermined=[], widening={})}
+    assert parts["C31"].verdict == OUTSIDE
+    assert parts["R31"].verdict == OUTSIDE_IF_ALONE and "another part" in parts["R31"].note
+    assert parts["C32"].verdict == CANNOT_TELL
+    assert overall_verdict([], tuple(parts.values())) == "fail"

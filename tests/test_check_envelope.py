@@ -11,7 +11,7 @@ from scipy import signal
 
 from fitkit.check import loads_design
 from fitkit.check.envelope import compare, tolerance_envelope
-from check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML
+from support.check_simulator import RC_DESIGN_TOML, SK_DESIGN_TOML
 
 RC = RC_DESIGN_TOML
 

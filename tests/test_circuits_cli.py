@@ -56,7 +56,7 @@ def test_one_topology_json_and_file(capsys):
     d = json.loads(out)
     assert status == 0 and d["name"] == "RC ladder, two stages"
     assert d["measurement_chain"]["chain"]["source_resistance"] == 50.0
-    assert d["transfer_function"]["quantities"]["tau_slow"] == pytest.approx(4.56e-3, rel=1e-3)
+    assert d["transfer_function"]["quantities"]["tau1"] == pytest.approx(4.56e-3, rel=1e-3)
 
 
 @pytest.mark.parametrize("args,words", [

@@ -159,7 +159,7 @@ def test_high_pass_step_and_ideal_integrator():
     np.testing.assert_allclose(hp.step_response(t), np.exp(-t / 1e-4), atol=1e-12)
     integrator = Circuit("integrator", (Part("R1", "resistor", ("in", "m"), 1e3),
                                         Part("C1", "capacitor", ("m", "out"), 1e-6),
-                                        Part("U1", "amplifier", ("out", "0", "m"), math.inf)), "in", "out")
+                                        Part("U1", "amplifier", ("out", "gnd", "m"), math.inf)), "in", "out")
     tf = transfer_function(integrator)
     # With a pole at s = 0 the lowest non-zero denominator coefficient is normalised to 1.
     np.testing.assert_allclose(tf.denominator, [1.0, 0.0], rtol=1e-12)

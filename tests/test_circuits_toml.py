@@ -141,5 +141,18 @@ def test_documented_examples_parse():
     assert c.chain.source_resistance == 50.0
     doc = fmt.__doc__.split("::\n", 1)[1].split("\nValues are read", 1)[0]
     c2 = loads_circuit(textwrap.dedent(doc), "docstring-example.toml")
-    assert c2.part("U1").nodes == ("n2", "n1", "0")
+    assert c2.part("U1").nodes == ("n2", "n1", "gnd")
     assert c2.part("R2").value == pytest.approx(4700.0)
+
+
+def test_ground_is_gnd_by_default_and_0_still_accepted():
+    # the library and the examples name ground "gnd"; a file of node "0" without a ground key
+    # (written before the default changed) still reads, its ground then "0"
+    from fitkit.circuits import topology
+    assert topology("rc-low-pass").ground == "gnd"
+    body = ('drive = "in"\nmeasure = "out"\n[parts.R1]\nkind = "resistor"\nbetween = ["in", "out"]\nvalue = "1k"\n'
+            '[parts.C1]\nkind = "capacitor"\nbetween = ["out", "{g}"]\nvalue = "1u"\n')
+    assert loads_circuit(body.format(g="0"), "old.toml").ground == "0"
+    assert loads_circuit(body.format(g="gnd"), "new.toml").ground == "gnd"
+    with pytest.raises(CircuitError, match="looks like ground"):
+        loads_circuit('ground = "gnd"\n' + body.format(g="0"), "mixed.toml")

@@ -28,7 +28,7 @@ from fitkit import exitcodes
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 from fitkit.report.json_schema import check_result_schema, fit_result_schema
-from check_simulator import RC_DESIGN_TOML
+from support.check_simulator import RC_DESIGN_TOML
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_captures"
 SK_DESIGN = DEMO / "designs" / "sallen_key_lowpass.toml"

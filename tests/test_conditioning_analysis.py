@@ -21,7 +21,7 @@ import scipy.signal
 from fitkit.capture import Capture
 from fitkit.conditioning import analyse_steps, render_text
 from fitkit.errors import ConditioningError, FitkitError, OptionError
-from reference_paths import REAL_CAPTURES, needs_real_captures
+from support.reference_paths import REAL_CAPTURES, needs_real_captures
 
 DT = 1e-6
 REAL = REAL_CAPTURES

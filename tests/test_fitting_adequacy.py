@@ -20,7 +20,7 @@ from fitkit.capture import Capture
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 from fitkit.fitting import fit_capture
-from test_fitting_support import coloured_noise, first_order_tf, second_order_tf, square_wave_capture, two_pole_tf
+from support.fitting_sims import coloured_noise, first_order_tf, second_order_tf, square_wave_capture, two_pole_tf
 
 
 def single_edge_capture(tf, *, dt: float, n: int, edge: float, rng, noise: float, band: float | None = None,
@@ -86,7 +86,7 @@ def test_a_wrong_form_asked_for_is_refused_with_a_fix():
 
 def test_cli_exit_status_6_and_one_line_on_stderr(tmp_path, capsys):
     path = two_pole_file(tmp_path, seed=8)
-    status = run_with_error_handling(cli, ["fit", str(path), "--model", "first-order", "--json"])
+    status = run_with_error_handling(cli, ["fit", str(path), "--form", "first-order", "--json"])
     out = capsys.readouterr()
     assert status == exitcodes.NOT_DESCRIBED == 6
     err_lines = [ln for ln in out.err.splitlines() if ln.strip()]
@@ -96,7 +96,7 @@ def test_cli_exit_status_6_and_one_line_on_stderr(tmp_path, capsys):
 
 def test_text_output_puts_the_finding_first_and_prints_no_interval(tmp_path, capsys):
     path = two_pole_file(tmp_path, seed=9)
-    status = run_with_error_handling(cli, ["fit", str(path), "--model", "first-order"])
+    status = run_with_error_handling(cli, ["fit", str(path), "--form", "first-order"])
     text = capsys.readouterr().out
     assert status == 6
     assert text.startswith("NOT A MEASUREMENT: the first-order form does not describe this capture")
@@ -109,7 +109,7 @@ def test_every_report_of_a_refused_fit_drops_the_intervals(tmp_path, capsys):
     import pandas as pd
     path = two_pole_file(tmp_path, seed=10)
     csv_path, html_path = tmp_path / "fit.csv", tmp_path / "fit.html"
-    status = run_with_error_handling(cli, ["fit", str(path), "--model", "first-order", "--quiet",
+    status = run_with_error_handling(cli, ["fit", str(path), "--form", "first-order", "--quiet",
                                            "--csv", str(csv_path), "--report", str(html_path)])
     quiet = capsys.readouterr().out
     assert status == 6

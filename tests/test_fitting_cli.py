@@ -16,7 +16,7 @@ from fitkit import exitcodes
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 
-from test_fitting_support import first_order_tf, second_order_tf, square_wave_capture
+from support.fitting_sims import first_order_tf, second_order_tf, square_wave_capture
 
 
 def _write(cap, path, names):
@@ -74,7 +74,7 @@ def test_json_of_a_ringing_capture_holds_f0_and_q_in_derived(capsys, tmp_path):
     cap = square_wave_capture(second_order_tf(20e3, 5.0), period=1e-3, dt=1e-6, n_periods=1, rng=rng,
                               noise=0.01, with_input=False)
     path = _write(cap, tmp_path / "ring.csv", ["vout"])
-    status, out, err = _run(capsys, path, "--json", "--model", "underdamped")
+    status, out, err = _run(capsys, path, "--json", "--form", "underdamped")
     assert status == exitcodes.OK, err
     doc = json.loads(out)
     assert doc["model"] == "underdamped"
@@ -97,12 +97,24 @@ def test_flat_trace_gives_one_line_error_and_unusable_input_status(capsys, tmp_p
 def test_fit_that_cannot_succeed_gives_one_line_error_and_status_5(capsys, rc_files):
     # A first-order response has no ringing: the underdamped form cannot describe it.
     _, _, out_only = rc_files
-    status, out, err = _run(capsys, out_only, "--model", "underdamped")
+    status, out, err = _run(capsys, out_only, "--form", "underdamped")
     assert status == exitcodes.ANALYSIS_FAILED
     assert out == "" and len(err.strip().splitlines()) == 1 and "Traceback" not in err
 
 
 def test_unknown_model_name_is_a_usage_error(capsys, rc_files):
     _, both, _ = rc_files
-    status, out, err = _run(capsys, both, "--model", "no-such-form")
+    status, out, err = _run(capsys, both, "--form", "no-such-form")
     assert status == exitcodes.USAGE and len(err.strip().splitlines()) == 1
+
+
+def test_model_is_a_hidden_older_spelling_of_form(capsys, rc_files):
+    # --form is the option's name (the word the outputs use); --model still works and is not in --help
+    _, _, out_only = rc_files
+    status, out, err = _run(capsys, out_only, "--quiet", "--model", "first-order")
+    assert status == exitcodes.OK, err
+    assert out.startswith("tau ")
+    status, out, err = _run(capsys, out_only, "--model", "first-order", "--form", "underdamped")
+    assert status == exitcodes.USAGE and "--form" in err and "--model" in err
+    status, out, err = _run(capsys, "--help")
+    assert "--form" in out and "--model" not in out

@@ -18,7 +18,7 @@ import pytest
 
 from fitkit.fitting import fit_segments
 
-from test_fitting_support import first_order_tf, second_order_tf, simulated_segment, step_control, two_pole_tf
+from support.fitting_sims import first_order_tf, second_order_tf, simulated_segment, step_control, two_pole_tf
 
 TIME_SCALES = (1e-9, 1e-6, 1e-3, 1.0, 10.0)
 

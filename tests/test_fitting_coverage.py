@@ -21,7 +21,7 @@ import pytest
 from fitkit.conditioning.segment import StepSegment
 from fitkit.fitting import fit_segments
 
-from test_fitting_support import coloured_noise, first_order_tf, second_order_tf, step_control, step_scipy
+from support.fitting_sims import coloured_noise, first_order_tf, second_order_tf, step_control, step_scipy
 
 N_CAPTURES = 400
 N_BEFORE, N_AFTER = 100, 400
@@ -44,6 +44,7 @@ def _coverage(form: str, tf: tuple, truth: dict[str, float], dt: float, simulato
     return {k: h / N_CAPTURES for k, h in hits.items()}, float(np.mean(widening))
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("band, low, high", [(None, 0.92, 0.98), (0.15, 0.90, 0.97)])
 def test_first_order_tau_coverage(band, low, high):
     tau = 1.0
@@ -55,6 +56,7 @@ def test_first_order_tau_coverage(band, low, high):
         assert widening > 1.5   # the correction is on and does widen
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("band, low, high", [(None, 0.92, 0.98), (0.15, 0.90, 0.97)])
 def test_underdamped_f0_and_q_coverage(band, low, high):
     f0, q = 1.0, 4.0

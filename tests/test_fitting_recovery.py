@@ -21,7 +21,7 @@ from fitkit.fitting import fit_capture, fit_segments
 from fitkit.fitting.measured_input import response_by_superposition, response_to_input
 from fitkit.forms import FORMS
 
-from test_fitting_support import (first_order_tf, second_order_tf, simulated_segment, square_wave_capture,
+from support.fitting_sims import (first_order_tf, second_order_tf, simulated_segment, square_wave_capture,
                                   step_control, two_pole_tf)
 
 

@@ -14,7 +14,7 @@ import pytest
 from fitkit.fitting import fit_segments
 from fitkit.fitting.selection import MARGIN
 
-from test_fitting_support import first_order_tf, second_order_tf, simulated_segment, step_control, two_pole_tf
+from support.fitting_sims import first_order_tf, second_order_tf, simulated_segment, step_control, two_pole_tf
 
 N = 40
 
@@ -64,7 +64,7 @@ def test_equal_poles_are_two_real_poles_that_the_data_cannot_tell_apart():
     # converges and is chosen, reporting tau1 = tau2 or nearly so with intervals that
     # hold the truth; the double pole stays a fallback when no second-order form holds.
     import math
-    from test_fitting_support import two_pole_tf
+    from support.fitting_sims import two_pole_tf
     tau = 1e-6
     for seed in range(6):
         rng = np.random.default_rng(seed)

@@ -20,8 +20,9 @@ from scipy import optimize, stats
 from fitkit.conditioning.segment import StepSegment
 from fitkit.fitting import fit_segments
 
-from test_fitting_support import first_order_tf, simulated_segment
-from test_nist_strd import read_strd
+from support.fitting_sims import first_order_tf, simulated_segment
+from support.nist_strd import read_strd
+from support.reference_paths import needs_nist_strd
 
 
 def _boxbod_profile_limits() -> tuple[float, float, float]:
@@ -40,6 +41,7 @@ def _boxbod_profile_limits() -> tuple[float, float, float]:
     return best.x, lo, hi
 
 
+@needs_nist_strd
 def test_profile_interval_matches_an_independent_profile_on_boxbod():
     params, x, y = read_strd("BoxBOD")
     seg = StepSegment(0, x.size, x, y, None, 0.0, 1, 0.0, float(y.max()))
@@ -57,6 +59,7 @@ def test_profile_interval_matches_an_independent_profile_on_boxbod():
     assert above / below > 1.3 or below / above > 1.3
 
 
+@needs_nist_strd
 def test_auto_intervals_pick_the_profile_where_the_objective_is_asymmetric():
     params, x, y = read_strd("BoxBOD")
     seg = StepSegment(0, x.size, x, y, None, 0.0, 1, 0.0, float(y.max()))

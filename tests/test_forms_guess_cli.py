@@ -32,15 +32,15 @@ TRUTHS = [
     ("three-real-pole", {"tau1": 1.0, "tau2": 1.0, "tau3": 1.0}),
     ("four-real-pole", {"tau1": 1e-3, "tau2": 3e-4, "tau3": 1e-4, "tau4": 3e-5}),
     ("five-real-pole", {"tau1": 1e-3, "tau2": 1e-3, "tau3": 1e-3, "tau4": 1e-3, "tau5": 1e-3}),
-    ("pole-zero", {"tz": 3e-4, "tau1": 1e-3, "tau2": 2e-4}),   # lag-like
-    ("pole-zero", {"tz": 3e-3, "tau1": 1e-3, "tau2": 2e-4}),   # lead: overshoots
+    ("pole-zero", {"tau_z": 3e-4, "tau1": 1e-3, "tau2": 2e-4}),   # lag-like
+    ("pole-zero", {"tau_z": 3e-3, "tau1": 1e-3, "tau2": 2e-4}),   # lead: overshoots
     ("underdamped-band-pass", {"f0": 1e3, "Q": 3.0}),
     ("underdamped-band-pass", {"f0": 1e5, "Q": 0.7}),
     ("two-real-pole-band-pass", {"tau1": 1e-3, "tau2": 2e-4}),
     ("two-real-pole-band-pass", {"tau1": 1e-6, "tau2": 1e-6}),
-    ("underdamped-zero", {"f0": 1e3, "Q": 2.0, "tz": 1e-4}),
-    ("underdamped-undershoot", {"f0": 1e4, "Q": 5.0, "tz": 1e-5}),
-    ("two-real-pole-undershoot", {"tz": 3e-4, "tau1": 1e-3, "tau2": 2e-4}),
+    ("underdamped-zero", {"f0": 1e3, "Q": 2.0, "tau_z": 1e-4}),
+    ("underdamped-undershoot", {"f0": 1e4, "Q": 5.0, "tau_z": 1e-5}),
+    ("two-real-pole-undershoot", {"tau_z": 3e-4, "tau1": 1e-3, "tau2": 2e-4}),
 ]
 
 
@@ -171,7 +171,7 @@ def test_first_guess_is_measured_from_the_data(name, truth):
 
 
 def test_forms_listing_tells_the_truth_about_automatic_selection():
-    # `fitkit forms` says which forms --model auto tries; that must match the engine's default list
+    # `fitkit forms` says which forms --form auto tries; that must match the engine's default list
     from fitkit.fitting import selection
     from fitkit.forms import PULSE_FORMS
     auto = {n for n, f in {**FORMS, **PULSE_FORMS}.items() if f.auto_candidate}

@@ -34,12 +34,12 @@ SAMPLE_SHAPES = {
     "three-real-pole": {"tau1": 1.0, "tau2": 0.4, "tau3": 0.1},
     "four-real-pole": {"tau1": 1e-3, "tau2": 1e-3, "tau3": 5e-4, "tau4": 1e-4},
     "five-real-pole": {"tau1": 2.0, "tau2": 1.0, "tau3": 1.0, "tau4": 0.5, "tau5": 0.1},
-    "pole-zero": {"tz": 3e-3, "tau1": 1e-3, "tau2": 2e-4},
+    "pole-zero": {"tau_z": 3e-3, "tau1": 1e-3, "tau2": 2e-4},
     "underdamped-band-pass": {"f0": 1.5e3, "Q": 2.0},
     "two-real-pole-band-pass": {"tau1": 178e-6, "tau2": 62e-6},
-    "underdamped-zero": {"f0": 1e3, "Q": 2.0, "tz": 1e-4},
-    "underdamped-undershoot": {"f0": 1e3, "Q": 2.0, "tz": 1e-4},
-    "two-real-pole-undershoot": {"tz": 3e-4, "tau1": 1e-3, "tau2": 2e-4},
+    "underdamped-zero": {"f0": 1e3, "Q": 2.0, "tau_z": 1e-4},
+    "underdamped-undershoot": {"f0": 1e3, "Q": 2.0, "tau_z": 1e-4},
+    "two-real-pole-undershoot": {"tau_z": 3e-4, "tau1": 1e-3, "tau2": 2e-4},
 }
 
 
@@ -187,7 +187,7 @@ def test_extreme_shapes_give_finite_responses_and_derived_quantities(name):
         shape = {}
         for spec in form.shape:
             if spec.kind == "time":
-                shape[spec.name] = scale * 10 ** rng.uniform(-4, 3 if spec.name == "tz" else 0)
+                shape[spec.name] = scale * 10 ** rng.uniform(-4, 3 if spec.name == "tau_z" else 0)
             elif spec.kind == "frequency":
                 shape[spec.name] = 1 / scale
             else:

@@ -50,7 +50,7 @@ def _random_shapes(form, rng, count):
     shapes = []
     for _ in range(count):
         scale = 10.0 ** rng.uniform(-9, 1)
-        taus = [p.name for p in form.shape if p.kind == "time" and p.name not in ("tz", "tau0")]
+        taus = [p.name for p in form.shape if p.kind == "time" and p.name not in ("tau_z", "tau0")]
         ratios = np.sort(rng.uniform(0.02, 1.0, size=len(taus)))[::-1]
         if ratios.size:
             ratios[0] = 1.0
@@ -64,7 +64,7 @@ def _random_shapes(form, rng, count):
                 shape[spec.name] = float(math.exp(rng.uniform(math.log(low), math.log(high))))
             elif spec.name == "tau0":
                 shape[spec.name] = scale
-            elif spec.name == "tz":
+            elif spec.name == "tau_z":
                 shape[spec.name] = scale * 10 ** rng.uniform(-1.5, 1)
         shapes.append(shape)
     return shapes
@@ -87,10 +87,10 @@ def test_coincident_and_nearly_coincident_poles(name, ratio):
     # reference: scipy.signal.step; partial fractions would divide by (1 - ratio)
     form = FORMS[name]
     # two-real-pole is fitted as (tau0, Q) but also takes its time constants by name
-    taus = [p.name for p in form.reported_shape] or [n for n in form.shape_names if n != "tz"]
+    taus = [p.name for p in form.reported_shape] or [n for n in form.shape_names if n != "tau_z"]
     shape = {k: 1e-3 * ratio ** i for i, k in enumerate(taus)}
-    if "tz" in form.shape_names:
-        shape["tz"] = 2.5e-3
+    if "tau_z" in form.shape_names:
+        shape["tau_z"] = 2.5e-3
     t = np.linspace(0.0, 0.05, 2000)
     y = form.unit_step(t, **shape)
     assert np.all(np.isfinite(y))
@@ -175,8 +175,8 @@ def test_two_real_pole_and_pole_zero_are_symmetric_in_the_pole_taus():
     assert np.array_equal(TWO_REAL_POLE.unit_step(t, tau1=1e-3, tau2=3e-4),
                           TWO_REAL_POLE.unit_step(t, tau1=3e-4, tau2=1e-3))
     pz = FORMS["pole-zero"]
-    assert np.array_equal(pz.unit_step(t, tz=2e-3, tau1=1e-3, tau2=3e-4),
-                          pz.unit_step(t, tz=2e-3, tau1=3e-4, tau2=1e-3))
+    assert np.array_equal(pz.unit_step(t, tau_z=2e-3, tau1=1e-3, tau2=3e-4),
+                          pz.unit_step(t, tau_z=2e-3, tau1=3e-4, tau2=1e-3))
     assert TWO_REAL_POLE.canonical_shape({"tau1": 1.0, "tau2": 2.0}) == {"tau1": 2.0, "tau2": 1.0}
     three = FORMS["three-real-pole"]
     assert three.canonical_shape({"tau1": 1.0, "tau2": 3.0, "tau3": 2.0}) == {"tau1": 3.0, "tau2": 2.0, "tau3": 1.0}

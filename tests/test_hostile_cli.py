@@ -55,7 +55,7 @@ BAD_ARGUMENTS = [
     (["check", BOARD, "--design", LADDER_DESIGN, "--trials", "100000000"], "--trials"),
     (["fit", BOARD, BOARD], "same file"),
     (["fit", BOARD, "--plot", BOARD], "input file"),
-    (["fit", BOARD, "--model", "nonsense"], "--model"),
+    (["fit", BOARD, "--form", "nonsense"], "--form"),
     (["fit", BOARD, "--edge-time", "abc"], "--edge-time"),
     (["fit", "no_such_file.csv", "--edge-time", "abc"], "--edge-time"),  # the usage error comes first
     (["inspect", BOARD, "--time-origin", "1e300"], "--time-origin"),
@@ -70,8 +70,8 @@ def test_bad_arguments_are_usage_errors(capsys, argv, named):
 
 
 def test_batch_with_an_unknown_form_stops_before_any_work(capsys, tmp_path):
-    status, out, err = run(capsys, "batch", BOARD, "--out", tmp_path / "out", "--model", "nonsense")
-    assert status == exitcodes.USAGE and "--model" in err
+    status, out, err = run(capsys, "batch", BOARD, "--out", tmp_path / "out", "--form", "nonsense")
+    assert status == exitcodes.USAGE and "--form" in err
     assert not (tmp_path / "out").exists()  # nothing was processed or written
 
 
@@ -182,7 +182,7 @@ def test_a_time_column_in_ms_without_a_unit_is_warned_by_fit(capsys, tmp_path):
     v = np.where(k >= 30, 1 - np.exp(-(k - 30) / 10.0), 0.0)
     path = tmp_path / "logger.csv"
     path.write_text("\n".join(f"{2 * i};{x:.5f}" for i, x in zip(k, v)) + "\n")
-    status, out, _ = run(capsys, "fit", path, "--model", "first-order")
+    status, out, _ = run(capsys, "fit", path, "--form", "first-order")
     assert status == exitcodes.OK
     assert "milliseconds" in out
     assert "tau " in out and " ms " in out.split("tau ", 1)[1].splitlines()[0]  # 2 ms steps, tau 20 ms

@@ -18,8 +18,8 @@ from fitkit.cli import cli
 from fitkit.cli.capture_options import CaptureOptions, capture_options, channel_roles
 from fitkit.errors import OptionError
 
-import test_io_layouts as layouts
-from reference_paths import REAL_CAPTURES
+import support.layout_files as layouts
+from support.reference_paths import REAL_CAPTURES, needs_real_captures
 
 REAL = REAL_CAPTURES
 
@@ -57,10 +57,10 @@ def test_inspect_json_matches_the_capture(tmp_path):
     assert ch["max"] == pytest.approx(want["CH1"].max(), abs=1e-5)
     assert ch["noise_sigma"] >= 0
     assert report["output_channel"] == "CH1" and report["input_channel"] is None
-    assert report["metadata"]["Source"] == "CH1"
+    assert report["metadata"]["Channel"] == "CH1"
 
 
-@pytest.mark.skipif(not REAL.exists(), reason="reference captures not available")
+@needs_real_captures
 def test_inspect_real_capture_json_roles_and_interval():
     status, out, err = run(["inspect", REAL / "rc-ladder-adc-step.csv", "--json"])
     assert status == 0, err

@@ -21,7 +21,7 @@ from fitkit.capture import Capture
 from fitkit.errors import FitkitError
 from fitkit.io import load_capture
 
-import test_io_layouts as layouts
+import support.layout_files as layouts
 
 _DIR = Path(tempfile.mkdtemp(prefix="fitkit_fuzz_"))
 atexit.register(shutil.rmtree, _DIR, ignore_errors=True)

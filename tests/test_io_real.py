@@ -13,10 +13,10 @@ import pandas as pd
 import pytest
 
 from fitkit.io import load_capture
-from reference_paths import REAL_CAPTURES
+from support.reference_paths import REAL_CAPTURES, needs_real_captures
 
 REAL = REAL_CAPTURES
-pytestmark = pytest.mark.skipif(not REAL.exists(), reason="reference captures not available")
+pytestmark = needs_real_captures
 
 
 def test_rc_ladder_adc_capture():

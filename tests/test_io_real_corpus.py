@@ -14,10 +14,9 @@ import pandas as pd
 import pytest
 
 from fitkit.io import load_capture
-from reference_paths import REAL_CAPTURES
+from support.reference_paths import REAL_CAPTURES, needs_real_captures
 
-pytestmark = pytest.mark.skipif(not REAL_CAPTURES.exists(),
-                                reason="the real corpus (../shared/reference/real-captures) is not available")
+pytestmark = needs_real_captures
 
 
 def _no_volts_without_unit(cap):

@@ -166,7 +166,8 @@ def test_fixture_side_metadata_single_channel():
     cap = load_capture(FIXTURES / "side_metadata_channel2.csv")
     assert cap.channel_names == ("CH2",)
     assert cap.sample_interval == pytest.approx(2e-7)
-    assert cap.metadata["Record Length"].startswith("2.0")
+    assert cap.channel("CH2").unit == "V"       # from its settings' "Value unit"
+    assert cap.metadata["Points"].startswith("2.0")
 
 
 @pytest.mark.parametrize("meta,interval", [

@@ -17,7 +17,7 @@ import pytest
 
 from fitkit.line_store import open_store
 
-FIT_OPTIONS = ["--model", "first-order", "--workers", "1", "--no-plots"]
+FIT_OPTIONS = ["--form", "first-order", "--workers", "1", "--no-plots"]
 #: Poll interval of the follower; the growing file below changes ten times as often.
 POLL_S = 1.0
 
@@ -107,11 +107,11 @@ def test_batch_and_check_store_and_trend(tmp_path):
     for i in range(12):
         (folder / f"board_{2000 + i}.csv").write_text(capture_text(1e-3 * (1 + 0.002 * i), 100 + i, 2000 + i))
     first = subprocess.run([sys.executable, "-m", "fitkit", "batch", str(folder), "--out", str(tmp_path / "out"),
-                            "--store", str(store), "--model", "first-order", "--workers", "1", "--no-plots"],
+                            "--store", str(store), "--form", "first-order", "--workers", "1", "--no-plots"],
                            capture_output=True, text=True, timeout=300)
     assert first.returncode == 0, first.stderr
     again = subprocess.run([sys.executable, "-m", "fitkit", "batch", str(folder), "--out", str(tmp_path / "out"),
-                            "--store", str(store), "--model", "first-order", "--workers", "1", "--no-plots"],
+                            "--store", str(store), "--form", "first-order", "--workers", "1", "--no-plots"],
                            capture_output=True, text=True, timeout=300)
     assert "0 captures added" in again.stderr  # the same files again: nothing added
     with open_store(str(store)) as s:

@@ -11,8 +11,8 @@ import pytest
 from sqlalchemy import inspect, text
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from line_store_support import append_range, entry  # noqa: E402
-from postgres_server import fitkit_postgres_server, postgres_url, skip_reason  # noqa: E402,F401
+from support.line_store_entries import append_range, entry  # noqa: E402
+from support.postgres_server import fitkit_postgres_server, postgres_url, skip_reason  # noqa: E402,F401
 
 from fitkit.errors import OptionError  # noqa: E402
 from fitkit.line_store import open_store, store_url  # noqa: E402

@@ -18,7 +18,6 @@ Tolerances used (relative):
 from __future__ import annotations
 
 import math
-import re
 
 import numpy as np
 import pytest
@@ -26,23 +25,10 @@ import pytest
 from fitkit.conditioning.segment import StepSegment
 from fitkit.fitting import fit_model, fit_segments
 from fitkit.forms.first_order import FIRST_ORDER
-from reference_paths import NIST_STRD, needs_nist_strd
+from support.nist_strd import read_strd
+from support.reference_paths import needs_nist_strd
 
-NIST = NIST_STRD
 pytestmark = needs_nist_strd
-
-
-def read_strd(name: str) -> tuple[dict[str, tuple[float, float, float, float]], np.ndarray, np.ndarray]:
-    """Parse a NIST StRD .dat file: {b: (start1, start2, certified, certified sd)}, x, y."""
-    lines = (NIST / f"{name}.dat").read_text().splitlines()
-    params = {}
-    for line in lines:
-        m = re.match(r"\s*(b\d+)\s*=\s*(\S+)\s+(\S+)\s+(\S+)\s+(\S+)\s*$", line)
-        if m:
-            params[m.group(1)] = tuple(float(m.group(i)) for i in range(2, 6))
-    first = next(i for i, line in enumerate(lines) if re.match(r"\s*Data:\s+y\s+x\s*$", line))
-    rows = np.array([[float(v) for v in line.split()] for line in lines[first + 1:] if line.strip()])
-    return params, rows[:, 1], rows[:, 0]
 
 
 def lanczos(x, b1, b2, b3, b4, b5, b6):

@@ -148,7 +148,7 @@ def test_command_line_fit_with_a_noise_record(tmp_path):
     np.savetxt(quiet, np.column_stack([tq, 0.5 + band_noise(rng, tq.size, SIGMA)]), delimiter=",",
                header="time,vout", comments="")
     before = (capture.read_bytes(), quiet.read_bytes())
-    run = subprocess.run([sys.executable, "-m", "fitkit", "fit", str(capture), "--model", "first-order",
+    run = subprocess.run([sys.executable, "-m", "fitkit", "fit", str(capture), "--form", "first-order",
                           "--noise-record", str(quiet), "--json"], capture_output=True, text=True, timeout=120)
     assert run.returncode == 0, run.stderr
     data = json.loads(run.stdout)

@@ -14,7 +14,7 @@ import pytest
 from fitkit import exitcodes
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
-from test_partfit_support import rc_ladder_tf, rc_low_pass_tf, step_capture
+from support.circuit_sims import rc_ladder_tf, rc_low_pass_tf, step_capture
 
 LADDER_TOML = """
 name = "ladder board"
@@ -126,8 +126,8 @@ def test_bad_options_are_one_line_errors(files, capsys):
     status, _, err = _run(capsys, files["rc"], "--topology", "rc-low-pass", "--known", "R9=1k")
     assert status not in (exitcodes.OK, exitcodes.INTERNAL) and "R9" in err
     status, _, err = _run(capsys, files["rc"], "--topology", "rc-low-pass", "--known", "R1=10k",
-                          "--model", "first-order")
-    assert status not in (exitcodes.OK, exitcodes.INTERNAL) and "--model" in err
+                          "--form", "first-order")
+    assert status not in (exitcodes.OK, exitcodes.INTERNAL) and "--form" in err
     assert "Traceback" not in err
 
 
@@ -156,3 +156,22 @@ def test_known_overrides_a_file_unknown_and_unknown_option_picks_parts(files, ca
                             "R1=10k,R2=10k,C1=10n", "--unknown", "C2", "--json")
     assert status == exitcodes.OK, err
     assert set(json.loads(out)["components"]) == {"C2"}
+
+
+def test_circuit_fit_names_its_time_constants_like_the_forms(tmp_path):
+    # tau1 / tau2 as the two-real-pole form names them, and the circuit's DC gain apart from the
+    # measured gain; the names of earlier releases still find them (FitResult.quantity)
+    from pathlib import Path
+
+    from fitkit import load_capture
+    from fitkit.circuits import topology
+    from fitkit.part_values import fit_circuit
+    demo = Path(__file__).resolve().parents[1] / "demo_captures"
+    capture = load_capture(demo / "good_board_ladder.csv")
+    result = fit_circuit(capture, topology("rc-ladder-2", R1="10k", R2="10k", C1="?", C2="?"))
+    assert {"tau1", "tau2", "circuit_dc_gain"} <= set(result.derived)
+    assert not {"tau_slow", "tau_fast", "dc_gain"} & set(result.derived)
+    assert result.quantity("tau_slow") is result.quantity("tau1")
+    assert result.quantity("dc_gain") is result.quantity("circuit_dc_gain")
+    # demo_captures/truth.json: the ladder's slower time constant is 2.589 ms (within 1 %)
+    assert result.derived["tau1"].value == pytest.approx(2.589e-3, rel=0.01)

@@ -14,18 +14,21 @@ lower bound, so the mean interval width is checked against the scatter).
 
 from __future__ import annotations
 
+import pytest
+
 import math
 
 import numpy as np
 
 from fitkit.circuits import probe_chain, topology
 from fitkit.part_values import fit_circuit
-from test_partfit_support import rc_low_pass_tf, step_capture
+from support.circuit_sims import rc_low_pass_tf, step_capture
 
 TRIALS = 100
 R, C, RP, CP = 10e3, 10e-9, 1e6, 20e-12
 
 
+@pytest.mark.slow
 def test_direct_and_behavioural_intervals_cover_the_truth():
     circuit = topology("rc-low-pass", R1="10k", C1="?").with_chain(probe_chain("1x-direct"))
     tf = rc_low_pass_tf(R, C, RP, CP)

@@ -10,7 +10,7 @@ import pytest
 from fitkit.circuits import topology
 from fitkit.errors import CircuitError
 from fitkit.part_values import fit_circuit, prepare_problem
-from test_partfit_support import rc_ladder_tf, rc_low_pass_tf, step_capture
+from support.circuit_sims import rc_ladder_tf, rc_low_pass_tf, step_capture
 
 
 def test_rc_with_both_parts_unknown_names_the_product_and_asks_for_one():
@@ -63,7 +63,7 @@ def test_where_the_two_ladder_roots_merge_the_error_says_so():
     # is almost zero (hand algebra on the ladder's quadratic), so the two roots merge and the
     # linearised fit cannot separate C1 from C2: a clear FitError, not a false measurement
     from fitkit.errors import FitError
-    from test_partfit_support import square_capture
+    from support.circuit_sims import square_capture
     cap = square_capture(rc_ladder_tf(10e3, 100e-9, 10e3, 47e-9), period=40e-3, cycles=1, n_per_period=800,
                          noise=0.003, bits=12, seed=4, with_input=True)
     circuit = topology("rc-ladder-2", R1="10k", R2="10k", C1="?", C2="?")

@@ -20,7 +20,7 @@ from fitkit.circuits import topology
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 from fitkit.part_values import fit_circuit
-from test_partfit_support import rc_ladder_tf, rc_low_pass_tf, step_capture
+from support.circuit_sims import rc_ladder_tf, rc_low_pass_tf, step_capture
 
 
 @pytest.fixture(scope="module")

@@ -13,7 +13,7 @@ import pytest
 
 from fitkit.circuits import probe_chain, topology
 from fitkit.part_values import fit_circuit
-from test_partfit_support import (rc_ladder_tf, rc_low_pass_tf, sallen_key_unity_tf, series_rlc_across_c_tf,
+from support.circuit_sims import (rc_ladder_tf, rc_low_pass_tf, sallen_key_unity_tf, series_rlc_across_c_tf,
                                   square_capture, step_capture)
 
 

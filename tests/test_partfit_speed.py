@@ -18,7 +18,7 @@ import fitkit.circuits.transfer as transfer
 from fitkit.circuits import topology
 from fitkit.part_values import fit_circuit
 from fitkit.part_values.circuit_form import circuit_form
-from test_partfit_support import rc_ladder_tf, step_capture
+from support.circuit_sims import rc_ladder_tf, step_capture
 
 
 def _count(monkeypatch, module, name):

@@ -81,6 +81,7 @@ def _capture(rng, sigma, lsb, quantised=True, q_factor=Q):
                        noise_rms=lsb / math.sqrt(12), quantisation_step=lsb if quantised else None)
 
 
+@pytest.mark.slow
 def test_noise_below_one_code_fitted_without_the_bias_of_least_squares():
     # Q = 5 at 60 dB with an 8-bit scale: noise 0.12 codes. Least squares (the
     # code step withheld) is biased in Q by about 0.2 %; the maximum-likelihood

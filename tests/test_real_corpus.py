@@ -2,7 +2,7 @@
 
 The captures were measured by other people on real circuits (see that
 folder's SOURCE.md). With no options, fitkit must give each one either the
-right answer (every checked quantity within the range tests/real_corpus.py
+right answer (every checked quantity within the range tests/support/real_corpus.py
 derives from the stated parts and the independent fit quoted in SOURCE.md) or
 a non-zero exit whose message names the fix. A confident wrong answer (exit 0,
 a quantity outside its range) fails, and so does a refusal that names no fix.
@@ -12,8 +12,8 @@ from __future__ import annotations
 
 import pytest
 
-from real_corpus import CASES, judge, run_fitkit
-from reference_paths import REAL_CAPTURES
+from support.real_corpus import CASES, judge, run_fitkit
+from support.reference_paths import REAL_CAPTURES
 
 pytestmark = pytest.mark.skipif(not REAL_CAPTURES.exists(),
                                 reason=f"the real captures are not at {REAL_CAPTURES} (../shared/reference "

@@ -115,7 +115,7 @@ def test_a_response_that_first_moves_the_wrong_way_gets_its_zero(tmp_path, with_
     r = fit_capture(load_capture(_write(tmp_path / "rhp.csv", t, cols)))
     assert r.describes_data
     assert r.model == "underdamped-undershoot"
-    zero = r.parameters.get("tz") or r.parameters.get("tau_z")
+    zero = r.parameters["tau_z"]
     assert _covers(r.parameters["f0"], 1e3) and _covers(r.parameters["Q"], q) and _covers(zero, tz)
 
 

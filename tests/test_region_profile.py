@@ -101,6 +101,7 @@ def test_one_sided_when_the_data_allow_a_single_pole():
     assert r.derived["tau2"].ci95 == tau2.ci95
 
 
+@pytest.mark.slow
 def test_profile_coverage_of_a_barely_determined_second_pole():
     # 100 captures, tau2/tau1 = 0.02 at 40 dB (tau2's bound about 34 %): the
     # region's quadratic range covered 81-87 % here (benchmarks/bench_accuracy.py);
@@ -144,7 +145,7 @@ def test_command_line_reports_the_one_sided_interval(tmp_path):
     path = tmp_path / "single_pole.csv"
     np.savetxt(path, np.column_stack([t, y]), delimiter=",", header="time,vout", comments="")
     before = path.read_bytes()
-    run = subprocess.run([sys.executable, "-m", "fitkit", "fit", str(path), "--model", "two-real-pole", "--json"],
+    run = subprocess.run([sys.executable, "-m", "fitkit", "fit", str(path), "--form", "two-real-pole", "--json"],
                          capture_output=True, text=True, timeout=120)
     assert run.returncode == 0, run.stderr
     data = json.loads(run.stdout)
@@ -152,7 +153,7 @@ def test_command_line_reports_the_one_sided_interval(tmp_path):
     assert tau2["ci95"][0] == 0 and tau2["ci95"][1] > 0 and tau2["stderr"] is None
     lo, hi = data["parameters"]["tau1"]["ci95"]
     assert lo <= tau <= hi
-    text = subprocess.run([sys.executable, "-m", "fitkit", "fit", str(path), "--model", "two-real-pole"],
+    text = subprocess.run([sys.executable, "-m", "fitkit", "fit", str(path), "--form", "two-real-pole"],
                           capture_output=True, text=True, timeout=120)
     assert text.returncode == 0 and "[0 s," in text.stdout and "Traceback" not in text.stderr
     assert path.read_bytes() == before

@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 
 from fitkit.report.csv_out import CSV_COLUMNS, fit_result_csv, results_table
-from test_report_fixtures import make_result
+from support.report_results import make_result
 
 
 @pytest.fixture(scope="module")

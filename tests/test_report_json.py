@@ -8,7 +8,7 @@ import jsonschema
 import pytest
 
 from fitkit.report.json_schema import fit_result_json, fit_result_schema
-from test_report_fixtures import FORM_NAMES, make_result
+from support.report_results import FORM_NAMES, make_result
 
 
 @pytest.fixture(scope="module")

@@ -13,7 +13,7 @@ import pytest
 from fitkit.errors import OptionError
 from fitkit.report.plots import MAX_POINTS_DRAWN, PARAMETER_BOX_GID, plot_fit
 from fitkit.results import FittedSegment
-from test_report_fixtures import FORM_NAMES, make_result
+from support.report_results import FORM_NAMES, make_result
 
 
 def _box_text(fig) -> str:

@@ -9,7 +9,7 @@ import pytest
 from quantiphy import Quantity
 
 from fitkit.report.text import render_fit_text
-from test_report_fixtures import FORM_NAMES, make_result
+from support.report_results import FORM_NAMES, make_result
 
 
 @pytest.fixture(scope="module")
@@ -25,7 +25,7 @@ def test_header_names_file_form_reason_and_runner_up(underdamped):
     assert "bench/board_017.csv" in header
     assert re.search(r"form\s+underdamped", header)
     assert "lowest AICc" in header                       # selection_reason
-    assert re.search(r"runner-up\s+first-order \(AICc \+52\.2", header)
+    assert re.search(r"runner-up\s+first-order, ΔAICc \+52\.2", header)
 
 
 def test_values_with_units_and_intervals_in_engineering_notation(underdamped):
@@ -131,3 +131,31 @@ def test_runner_up_prefers_a_candidate_the_engine_did_not_set_aside():
                  CandidateScore("first-order", True, 4, -800.0, 100.0, 17e-3, ""))
     header = render_fit_text(replace(base, selection=selection)).split("\n\n")[0]
     assert re.search(r"runner-up\s+first-order", header)
+    # the candidate set aside is named with its reason before the runner-up, never as the runner-up
+    assert re.search(r"set aside\s+underdamped: Q = 0.33 is outside this form's range", header)
+    assert header.index("set aside") < header.index("runner-up")
+
+
+def test_no_runner_up_when_every_other_candidate_was_set_aside():
+    from dataclasses import replace
+    from fitkit.results import CandidateScore
+    base = make_result("first-order")
+    selection = (CandidateScore("first-order", True, 4, -900.0, 0.0, 3.5e-3, "chosen"),
+                 CandidateScore("two-real-pole", True, 5, -899.0, 1.0, 3.5e-3, "tau2 is not determined by the data"),
+                 CandidateScore("underdamped", False, 5, math.nan, math.nan, math.nan, "did not converge"))
+    header = render_fit_text(replace(base, selection=selection)).split("\n\n")[0]
+    assert "runner-up" not in header
+    assert "two-real-pole: tau2 is not determined by the data" in header
+    assert "underdamped: did not converge" in header
+
+
+def test_a_better_runner_up_says_why_it_was_not_chosen():
+    from dataclasses import replace
+    from fitkit.results import CandidateScore
+    base = make_result("two-real-pole")
+    selection = (CandidateScore("two-real-pole", True, 5, -900.0, 0.0, 3.5e-3, "chosen"),
+                 CandidateScore("three-real-pole", True, 6, -900.8, -0.8, 3.5e-3, ""))
+    header = render_fit_text(replace(base, selection=selection)).split("\n\n")[0]
+    # the margin of 10 is Burnham & Anderson's (2002, section 2.6), as fitkit.fitting.selection cites
+    assert re.search(r"runner-up\s+three-real-pole, ΔAICc -0\.8: fits better by 0\.8, less than the 10 ", header)
+    assert "two-real-pole is kept" in header

@@ -105,6 +105,7 @@ def test_jacobian_is_regular_at_equal_poles_in_fit_coordinates():
     assert fitc[1] / fitc[0] > 1e-2
 
 
+@pytest.mark.slow
 def test_equal_poles_always_converge_and_report_tau1_tau2():
     # the case that failed about half the time when tau1 and tau2 were fitted directly
     at_boundary = 0
@@ -128,6 +129,7 @@ def test_equal_poles_always_converge_and_report_tau1_tau2():
     assert 5 <= at_boundary <= 25
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("ratio", [1.0, 0.9, 0.5])
 def test_intervals_cover_the_truth_near_equal_poles(ratio):
     # 100 captures per ratio at 40 dB; the long study (benchmarks/bench_two_real_pole_coverage.py,
@@ -208,7 +210,7 @@ def _runaway_capture():
     # and the first search ends at its evaluation budget in a flat valley.
     # Simulator: scipy.signal.step of 1/((1 + s tau1)(1 + s tau2)); seed 107
     # found by scanning seeds 0-199 (3 of 200 end this way).
-    from test_fitting_support import simulated_segment, two_pole_tf
+    from support.fitting_sims import simulated_segment, two_pole_tf
 
     return simulated_segment(two_pole_tf(1e-4, 2e-5), dt=2e-6, n_before=120, n_after=300,
                              rng=np.random.default_rng(107), noise=0.1)

@@ -108,6 +108,7 @@ def first_order_study():
     return t, rows
 
 
+@pytest.mark.slow
 def test_whitened_fit_reaches_the_cramer_rao_bound(first_order_study):
     t, rows = first_order_study
     gls = np.array([r[0] for r in rows])
@@ -123,6 +124,7 @@ def test_whitened_fit_reaches_the_cramer_rao_bound(first_order_study):
     assert mse_ols > 1.4 * mse_gls
 
 
+@pytest.mark.slow
 def test_whitened_fit_intervals_cover(first_order_study):
     _, rows = first_order_study
     coverage = float(np.mean([r[2] for r in rows]))
@@ -130,6 +132,7 @@ def test_whitened_fit_intervals_cover(first_order_study):
     assert 0.88 <= coverage <= 0.99, coverage
 
 
+@pytest.mark.slow
 def test_underdamped_coverage_and_the_stated_correction():
     """Underdamped f0 = 10 kHz, Q = 5 (the accuracy benchmark's cell), 10 samples per
     1/(2 pi f0). The response is the textbook second-order step response

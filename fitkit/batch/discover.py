@@ -16,6 +16,10 @@ Every name the user gives is accounted for:
 A file reached twice (named twice, or by a folder and a pattern) is kept as
 two inputs: the runner marks the second as a duplicate of the first, so the
 summary has exactly one row per input and nothing is dropped silently.
+
+Two files of one folder named ``NAME_input.EXT`` and ``NAME_output.EXT`` are
+one input, the capture's two channels (fitkit.io.pairs), named by both files
+joined by " + ".
 """
 
 from __future__ import annotations
@@ -28,6 +32,8 @@ import stat
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable
+
+from ..io.pairs import capture_files, pair_parts, paired
 
 #: File extensions treated as captures when a folder is given (the importer's
 #: text formats, NumPy .npz and Parquet).
@@ -135,6 +141,8 @@ def discover_inputs(paths: Iterable[str | os.PathLike], exclude: str | os.PathLi
             found.extend(entries)
         elif p.is_file():
             found.append(BatchInput(str(p)))
+        elif pair_parts(name) and all(Path(f).is_file() for f in pair_parts(name)):
+            found.append(BatchInput(name))  # a paired capture named as a batch names it
         elif glob.has_magic(name):
             matches = sorted(m for m in glob.glob(name, recursive=True)
                              if Path(m).is_file() and not _inside(Path(m), excluded))
@@ -145,16 +153,38 @@ def discover_inputs(paths: Iterable[str | os.PathLike], exclude: str | os.PathLi
             found.append(BatchInput(name, _entry_problem(p) or "not a regular file or folder", "unreadable"))
         else:
             found.append(BatchInput(name, "no such file or folder"))
-    return found
+    return _paired_inputs(found)
+
+
+def _paired_inputs(found: list[BatchInput]) -> list[BatchInput]:
+    """The inputs with each NAME_input / NAME_output pair of files made one input
+    (fitkit.io.pairs), at the place of the first of the two."""
+    names = paired([b.path for b in found if b.missing_reason is None])
+    pair_of = {part: name for name in names for part in (pair_parts(name) or ())}
+    out: list[BatchInput] = []
+    emitted: set[str] = set()
+    for b in found:
+        name = pair_of.get(b.path) if b.missing_reason is None else None
+        if name is None:
+            out.append(b)
+        elif name not in emitted:
+            emitted.add(name)
+            out.append(BatchInput(name))
+    return out
 
 
 def content_hash(path: str | os.PathLike, chunk: int = 1 << 20) -> str:
-    """SHA-256 of the file's bytes, hex: the key for resuming and for spotting duplicates."""
+    """SHA-256 of the file's bytes, hex: the key for resuming and for spotting duplicates
+    (of both files' bytes, input then output, for a paired capture), and of the settings
+    file beside each (fitkit.io.sidecar), so a changed setting is processed again."""
+    from ..io.sidecar import sidecar_path
     h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        while True:
-            block = fh.read(chunk)
-            if not block:
-                break
-            h.update(block)
+    parts = capture_files(os.fspath(path))
+    for part in list(parts) + [str(s) for s in map(sidecar_path, parts) if s.is_file()]:
+        with open(part, "rb") as fh:
+            while True:
+                block = fh.read(chunk)
+                if not block:
+                    break
+                h.update(block)
     return h.hexdigest()

@@ -21,6 +21,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Iterable
 
+from ..io.pairs import capture_files as files_of
 from .discover import discover_inputs
 from .runner import BatchRun, run_batch
 from .worker import BatchSettings
@@ -42,10 +43,10 @@ class StableFiles:
         current: dict[str, tuple[int, int]] = {}
         for path in paths:
             try:
-                st = os.stat(path)
+                stats = [os.stat(f) for f in files_of(path)]  # both files of a pair
             except OSError:
                 continue  # removed between listing and stat
-            current[path] = (st.st_size, st.st_mtime_ns)
+            current[path] = (sum(st.st_size for st in stats), max(st.st_mtime_ns for st in stats))
         ready = [p for p, sig in current.items()
                  if self.seen.get(p) == sig and self.taken.get(p) != sig and sig[0] > 0]
         for p in ready:

@@ -107,6 +107,13 @@ def result_key(file_hash: str, settings: BatchSettings) -> str:
     return hashlib.sha256(payload.encode()).hexdigest()
 
 
+def _absolute(name: str) -> str:
+    """A capture's name with its file(s) as absolute paths (workers may run elsewhere)."""
+    from ..io.pairs import capture_files, pair_name
+    files = [str(Path(f).resolve()) for f in capture_files(name)]
+    return pair_name(*files) if len(files) == 2 else files[0]
+
+
 def _safe_stem(path: str) -> str:
     stem = re.sub(r"[^A-Za-z0-9_+-]+", "_", Path(path).stem).strip("_")
     return (stem or "capture")[:60]
@@ -255,7 +262,7 @@ def _run_batch_locked(paths: Iterable[str | os.PathLike], settings: BatchSetting
             progress(finished, total, record)
 
     if plan.todo:
-        jobs = {key: str(Path(path).resolve()) for key, path in plan.todo.items()}
+        jobs = {key: _absolute(path) for key, path in plan.todo.items()}
         if cluster:
             _run_on_dask(jobs, settings, cluster, complete)
         else:

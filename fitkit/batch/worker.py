@@ -149,8 +149,10 @@ def process_capture(path: str, settings: BatchSettings) -> dict[str, Any]:
 
 def _run_pipeline(path: str, settings: BatchSettings, record: dict[str, Any]) -> None:
     from ..io import load_capture
+    from ..io.pairs import capture_files
 
-    capture = load_capture(path, **settings.read_options)
+    files = capture_files(path)  # one file, or the input and output files of a pair
+    capture = load_capture(files[0], second_path=files[1] if len(files) > 1 else None, **settings.read_options)
     if settings.design:
         from ..check import check_capture  # the board-check layer
         outcome = check_capture(capture, settings.design, input=settings.input,

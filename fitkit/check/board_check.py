@@ -179,7 +179,7 @@ def check_capture(capture: Capture, design: Design | str | Path, *, input: str |
 
 
 def _behaviour(design: Design, segments, measured: bool, file: str, warnings: list[str]):
-    """The behavioural fit, made exactly as `fitkit fit --model FORM` makes it (the same
+    """The behavioural fit, made exactly as `fitkit fit --form FORM` makes it (the same
     engine call, measured-input mode when the capture has an input channel), with the
     form the design's order calls for; (FitResult, estimates judged)."""
     from ..fitting import fit_segments

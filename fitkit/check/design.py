@@ -223,7 +223,7 @@ class _DesignReader:
             raise self.fail(f"topology {topo.name} has no part {name}",
                             "its parts are " + ", ".join(topo.part_names), name)
         _, kind, nodes, default = entry
-        rename = {"in": data.get("drive", "in"), "out": data.get("measure", "out"), "0": data.get("ground", "0")}
+        rename = {"in": data.get("drive", "in"), "out": data.get("measure", "out"), "gnd": data.get("ground", "gnd")}
         nodes = tuple(rename.get(n, n) for n in nodes)
         out = dict(plain)
         if "kind" in out and str(out["kind"]).strip().lower() != kind:

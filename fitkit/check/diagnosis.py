@@ -94,7 +94,8 @@ class Suspect:
                 "value": json_number(self.value),
                 "ci95": None if self.ci95 is None else [json_number(self.ci95[0]), json_number(self.ci95[1])],
                 "nominal": json_number(self.nominal), "unit": self.unit,
-                "evidence": json_number(self.evidence), "evidence_against_all_nominal": json_number(self.against_nominal),
+                "delta_aicc": json_number(self.evidence),
+                "all_nominal_delta_aicc": json_number(self.against_nominal),
                 "rms_residual": json_number(self.rms_residual), "pattern": self.pattern,
                 "tied_leader": self.tied, "explains_capture": self.explains}
 
@@ -157,9 +158,9 @@ def fault_pattern(spec: PartSpec, value: float, ci95: tuple[float, float] | None
     for g in on_grid:
         if math.isclose(g, below, rel_tol=1e-9) or math.isclose(g, above, rel_tol=1e-9):
             word = "up" if g > spec.nominal else "down"
-            return f"the neighbouring {spec.series} value {word} ({_eng(g)}): a wrong-value part"
+            return f"the neighbouring {spec.series} value {word} ({_eng(g, UNITS.get(spec.kind, ''))}): a wrong-value part"
     if on_grid:
-        return f"another {spec.series} value ({_eng(on_grid[0])}): a wrong-value part"
+        return f"another {spec.series} value ({_eng(on_grid[0], UNITS.get(spec.kind, ''))}): a wrong-value part"
     pct = 100 * (ratio - 1)
     return f"drifted {pct:+.0f} % beyond tolerance, off the {spec.series} grid (ageing or damage)"
 

@@ -23,7 +23,8 @@ sum_q |s_q| * ln(1 + tol_q), worst case. A part is then "outside" only when
 it is among the leading suspects (the capture is explained at least as well
 by it as by any other single change) and its widened interval misses the
 tolerance band; another part whose single-part value misses the band is
-"cannot tell", because the capture is better explained otherwise.
+"outside if alone": its interval misses the band only if it alone changed,
+and the capture is better explained otherwise.
 
 Overall: "fail" when a quantity is outside its limits or a leading suspect
 is outside its tolerance; "pass" when every judged quantity is within its
@@ -45,6 +46,8 @@ from ..results import Estimate, json_number
 from .design import Design
 
 WITHIN, OUTSIDE, CANNOT_TELL, NOT_DETERMINED = "within", "outside", "cannot tell", "not determined"
+#: A part whose own interval misses its band, while another part explains the capture better.
+OUTSIDE_IF_ALONE = "outside if alone"
 
 
 def interval_verdict(ci: tuple[float, float] | None, low: float, high: float) -> str:
@@ -177,7 +180,7 @@ def judge_parts(design: Design, estimates: Mapping[str, Estimate], leaders: Sequ
         verdict = interval_verdict(judged, spec.low, spec.high)
         note = ""
         if verdict == OUTSIDE and name not in leaders:
-            verdict, note = CANNOT_TELL, "another part explains the capture better"
+            verdict, note = OUTSIDE_IF_ALONE, "another part explains the capture better"
         elif verdict == CANNOT_TELL and judged is not None and interval_verdict(est.ci95, spec.low, spec.high) == WITHIN:
             note = "within if the other parts are at nominal; their tolerances could hide a small deviation"
         out.append(PartVerdict(value=est.value, ci95=est.ci95, judged_interval=judged, verdict=verdict,

@@ -29,7 +29,7 @@ from ..probes import PROBE_PRESETS  # noqa: F401  (re-exported: part of this mod
 PART_UNITS: dict[str, str] = {"resistor": "Ohm", "capacitor": "F", "inductor": "H", "amplifier": ""}
 
 #: Names the ground node may have.
-GROUND_NAMES = ("0", "gnd")
+GROUND_NAMES = ("gnd", "0")
 
 #: Generator source resistance used when one is asked for without a value, ohms.
 DEFAULT_SOURCE_RESISTANCE = 50.0
@@ -132,7 +132,7 @@ class Circuit:
     parts: the parts, in the order given.
     drive: node driven by the step (ideal voltage source from ground).
     measure: node whose voltage (to ground) is captured.
-    ground: the ground node's name, "0" or "gnd".
+    ground: the ground node's name, "gnd" (default) or "0".
     chain: optional measurement chain (not included in ``parts``).
     source_path: the file it was read from, for error messages.
     """
@@ -141,7 +141,7 @@ class Circuit:
     parts: tuple[Part, ...]
     drive: str
     measure: str
-    ground: str = "0"
+    ground: str = "gnd"
     chain: MeasurementChain = field(default_factory=MeasurementChain)
     source_path: str | None = None
 
@@ -256,7 +256,7 @@ class Circuit:
         parts use their design value).
         """
         if self.ground not in GROUND_NAMES:
-            raise self.error(f"ground node {self.ground!r} is not allowed", hint='call it "0" or "gnd"')
+            raise self.error(f"ground node {self.ground!r} is not allowed", hint='call it "gnd" or "0"')
         if not self.parts:
             raise self.error("the circuit has no parts", hint="add at least one part")
         seen: set[str] = set()

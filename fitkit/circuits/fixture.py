@@ -22,7 +22,7 @@ from .transfer import transfer_function
 
 #: Units of the characteristic quantities (see TransferFunction.quantities).
 QUANTITY_UNITS = {"dc_gain": "", "tau": "s", "f0": "Hz", "Q": "", "zeta": "",
-                  "tau_slow": "s", "tau_fast": "s", "tau_slowest": "s"}
+                  "tau1": "s", "tau2": "s", "tau_dominant": "s"}
 
 
 @dataclass(frozen=True)
@@ -75,7 +75,7 @@ def _describe(label: str, shift: Mapping[str, float], order_change: tuple[int, i
     if order_change is not None:
         return f"{label} change{s} the response from {order_change[0]} to {order_change[1]} poles"
     parts = []
-    for name in ("tau", "tau_slow", "tau_fast", "tau_slowest", "f0", "Q", "dc_gain"):
+    for name in ("tau", "tau1", "tau2", "tau_dominant", "f0", "Q", "dc_gain"):
         if name in shift and shift[name] != 0.0:
             x = shift[name]
             verb = ("raise" if x > 0 else "lower") + s

@@ -3,7 +3,7 @@
 Example (two RC stages with a follower between them; the capacitors are to be found)::
 
     name = "RC ladder, board 7"
-    ground = "0"              # "0" or "gnd" (default "0")
+    ground = "gnd"            # "gnd" or "0" (default: the one the parts use, else "gnd")
     drive = "in"              # the node the step drives (ideal source from ground)
     measure = "out"           # the node whose voltage is captured
 
@@ -14,13 +14,13 @@ Example (two RC stages with a follower between them; the capacitors are to be fo
 
     [parts.C1]
     kind = "capacitor"
-    between = ["n1", "0"]
+    between = ["n1", "gnd"]
     value = "?"               # unknown, to be solved (no design value)
 
     [parts.U1]                # an ideal voltage amplifier (voltage-controlled source)
     kind = "amplifier"
     output = "n2"             # output node, driven from ground
-    sense = ["n1", "0"]       # [plus, minus]: V(output) = gain * (V(plus) - V(minus))
+    sense = ["n1", "gnd"]     # [plus, minus]: V(output) = gain * (V(plus) - V(minus))
     gain = 1                  # 1 = voltage follower; "inf" = ideal op-amp
 
     [parts.R2]
@@ -30,7 +30,7 @@ Example (two RC stages with a follower between them; the capacitors are to be fo
 
     [parts.C2]
     kind = "capacitor"
-    between = ["out", "0"]
+    between = ["out", "gnd"]
     solve = true              # unknown, to be solved ...
     design = "220n"           # ... with a design value (ranks several solutions)
 
@@ -147,8 +147,8 @@ class CircuitReader:
             if not isinstance(data.get(key), str) or not data[key]:
                 raise self.fail(f"missing {key!r} (the node the step {'drives' if key == 'drive' else 'is measured at'})",
                                 f'add e.g. {key} = "{"in" if key == "drive" else "out"}"')
-        ground = str(data.get("ground", "0"))
         parts_table = data.get("parts")
+        ground = str(data.get("ground", _ground_used(parts_table)))
         if not isinstance(parts_table, dict) or not parts_table:
             raise self.fail("no parts", 'add parts as [parts.R1] tables with kind, between and value')
         parts = tuple(self.part(name, spec) for name, spec in parts_table.items())
@@ -295,3 +295,17 @@ def dumps_circuit(circuit: Circuit) -> str:
 
 def _q(s: str) -> str:
     return '"' + str(s).replace("\\", "\\\\").replace('"', '\\"') + '"'
+
+
+def _ground_used(parts_table: Any) -> str:
+    """The ground name a file without a ``ground`` key uses: "0" when its parts name
+    node "0" and never "gnd" (older files), else "gnd"."""
+    nodes: set[str] = set()
+    for spec in (parts_table.values() if isinstance(parts_table, dict) else ()):
+        if isinstance(spec, dict):
+            for key in ("between", "sense"):
+                if isinstance(spec.get(key), list):
+                    nodes.update(str(n) for n in spec[key])
+            if isinstance(spec.get("output"), str):
+                nodes.add(spec["output"])
+    return "0" if "0" in nodes and "gnd" not in nodes else "gnd"

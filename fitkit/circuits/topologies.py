@@ -1,6 +1,6 @@
 """The named circuit library: common step-tested circuits with their usual part names.
 
-Every topology is driven at node "in" (an ideal step source from ground "0")
+Every topology is driven at node "in" (an ideal step source from ground "gnd")
 and measured at node "out". ``topology(name, **parts)`` gives the Circuit with
 default part values, any of which can be replaced: a number (SI units), a
 string in engineering notation ("4.7k", "10n", "4k7"), or "?" for an unknown
@@ -22,7 +22,7 @@ from ..errors import CircuitError, OptionError
 from ..units import parse_value
 from .description import Circuit, Part
 
-G = "0"
+G = "gnd"
 
 
 @dataclass(frozen=True)
@@ -106,10 +106,6 @@ TOPOLOGIES: dict[str, Topology] = {t.name: t for t in (
               _c("C1", "n2", "out", 4.7e-9), _c("C2", "n1", G, 47e-9),
               _amp("U1", "out", G, "n2", math.inf))),
 )}
-
-
-def topology_names() -> tuple[str, ...]:
-    return tuple(TOPOLOGIES)
 
 
 def get_topology(name: str) -> Topology:

@@ -87,9 +87,10 @@ class TransferFunction:
         """Characteristic quantities, SI units.
 
         Always "dc_gain". First order: "tau" (s). Second order: "f0" (Hz),
-        "Q", "zeta", and "tau_slow", "tau_fast" (s) when the poles are real.
-        Higher order: "tau_slowest" (s) and, if the slowest poles are a complex
-        pair, its "f0" and "Q".
+        "Q", "zeta", and "tau1" (slower), "tau2" (faster) (s) when the poles are
+        real, named as the two-real-pole form names them. Higher order:
+        "tau_dominant" (s, of the slowest pole) and, if the slowest poles are a
+        complex pair, its "f0" and "Q".
         """
         out: dict[str, float] = {"dc_gain": float(self.dc_gain)}
         den = self.denominator
@@ -104,14 +105,14 @@ class TransferFunction:
             disc = a1 * a1 - 4 * a0 * a2
             if disc >= -1e-12 * a1 * a1 and a1 > 0:
                 r = math.sqrt(max(disc, 0.0))
-                out["tau_slow"] = (a1 + r) / (2 * a0)
-                out["tau_fast"] = 2 * a2 / (a1 + r)
+                out["tau1"] = (a1 + r) / (2 * a0)
+                out["tau2"] = 2 * a2 / (a1 + r)
         elif self.order > 2:
             p = self.poles
             p = p[np.abs(p) > 0]
             if p.size:
                 slow = p[np.argmin(np.abs(p.real))]
-                out["tau_slowest"] = 1.0 / abs(slow.real) if slow.real != 0 else math.inf
+                out["tau_dominant"] = 1.0 / abs(slow.real) if slow.real != 0 else math.inf
                 if abs(slow.imag) > 1e-9 * abs(slow):
                     out["f0"] = abs(slow) / (2 * math.pi)
                     out["Q"] = abs(slow) / (2 * abs(slow.real)) if slow.real != 0 else math.inf

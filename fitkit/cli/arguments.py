@@ -10,7 +10,33 @@ from ..errors import OptionError
 from ..units import parse_value
 
 
-def check_model(model: str, option: str = "--model") -> None:
+def form_option(help_text: str):
+    """``--form NAME`` (default auto), with ``--model`` accepted as a hidden older spelling.
+
+    The decorated command receives ``form`` (the alias folded in, see :func:`pop_form`)."""
+    import click
+
+    def decorate(f):
+        f = click.option("--model", "model_alias", default=None, hidden=True,
+                         help="Older spelling of --form.")(f)
+        return click.option("--form", "form", default=None, metavar="auto|NAME",
+                            help=help_text + "  [default: auto]")(f)
+    return decorate
+
+
+def pop_form(kwargs: dict) -> str:
+    """The form asked for by ``--form`` or its older spelling ``--model`` ("auto" when
+    neither); both given with different values is a usage error."""
+    form, alias = kwargs.pop("form", None), kwargs.pop("model_alias", None)
+    if form is not None and alias is not None and form != alias:
+        raise OptionError(f"--form {form!r} and --model {alias!r} disagree",
+                          hint="give --form only (--model is its older spelling)")
+    chosen = form if form is not None else alias if alias is not None else "auto"
+    check_model(chosen, "--form" if form is not None or alias is None else "--model")
+    return chosen
+
+
+def check_model(model: str, option: str = "--form") -> None:
     """``auto`` or the name of a known form (NAME-with-delay included, see fitkit.forms.get_form)."""
     from ..forms import DELAY_SUFFIX, FORMS, get_form
     if model == "auto":
@@ -55,6 +81,6 @@ def name_value_pairs(items, option: str) -> dict[str, str]:
                 raise OptionError(f"{option} {piece!r} is not NAME=VALUE", hint=f"write e.g. {option} R1=10k")
             if name in out:
                 raise OptionError(f"{option} gives {name} twice ({out[name]} and {value})",
-                                  hint=f"give each part once")
+                                  hint="give each part once")
             out[name] = value
     return out

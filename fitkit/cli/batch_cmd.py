@@ -6,7 +6,7 @@ import sys
 
 import click
 
-from .arguments import check_model
+from .arguments import form_option, pop_form
 from .capture_options import CaptureOptions, capture_options
 from .signals import echo_while_read, terminate_as_interrupt
 from .store_options import StoreRequest, store_options
@@ -57,9 +57,8 @@ def _announce(plan):
               help="Folder for per-capture results and the summary (created if needed).")
 @click.option("--design", type=click.Path(),
               help="Design file: check every board against it (otherwise fit only).")
-@click.option("--model", default="auto", show_default=True,
-              help="Form to fit (see `fitkit forms`), or auto to choose one per capture; "
-                   "with --design the design decides the form.")
+@form_option("Form to fit (see `fitkit forms`), or auto to choose one per capture; "
+             "with --design the design decides the form.")
 @click.option("--average", is_flag=True, help="Coherently average the edges of each capture.")
 @click.option("--workers", type=click.IntRange(min=1), help="Local worker processes [default: all cores].")
 @click.option("--cluster", metavar="ADDRESS",
@@ -74,7 +73,7 @@ def _announce(plan):
               metavar="SECONDS", help="With --follow: seconds between looks at the folder.")
 @store_options
 @capture_options
-def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plots, follow, poll_s, **kwargs):
+def batch(paths, out_dir, design, average, workers, cluster, redo, no_plots, follow, poll_s, **kwargs):
     """Fit (or, with --design, check) every capture in PATHS: files, folders
     (searched recursively for .csv .txt .tsv .dat .asc .prn .npz .parquet) and
     glob patterns such as "line3/*.csv".
@@ -112,11 +111,10 @@ def batch(paths, out_dir, design, model, average, workers, cluster, redo, no_plo
 
     options = CaptureOptions.pop(kwargs)
     options.validate()
+    model = pop_form(kwargs)
     if design:
         from ..check import load_design
         load_design(design)  # a design that cannot be used stops the batch before any work
-    else:
-        check_model(model)
     store_request = StoreRequest.pop(kwargs)
     settings = BatchSettings(model=model, input=options.input_channel, output=options.output_channel,
                              average=average, design=design,

@@ -124,7 +124,7 @@ def _print_detail(d: dict) -> None:
     click.echo("Transfer function (at the values above, without the measurement chain)")
     click.echo(f"  H(s) = ({_polynomial(tf.num)}) / ({_polynomial(tf.den)})")
     q = tf.quantities()
-    units = {"tau": "s", "f0": "Hz", "tau_slow": "s", "tau_fast": "s", "tau_slowest": "s"}
+    units = {"tau": "s", "f0": "Hz", "tau1": "s", "tau2": "s", "tau_dominant": "s"}
     shown = ", ".join(f"{k} {format_value(v, units.get(k, ''))}" for k, v in q.items())
     click.echo(f"  {shown}")
     poles = ", ".join(f"{format_value(p.real)}{'' if p.imag == 0 else f' {p.imag:+.4g}j'}" for p in tf.poles)

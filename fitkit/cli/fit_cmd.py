@@ -6,7 +6,7 @@ from __future__ import annotations
 import click
 
 from ..units import parse_value
-from .arguments import check_distinct_inputs, check_model, name_value_pairs, time_option
+from .arguments import check_distinct_inputs, form_option, name_value_pairs, pop_form, time_option
 from .capture_options import CaptureOptions, capture_options
 from .output_options import OutputRequest, emit_result, output_options
 
@@ -103,8 +103,8 @@ class CircuitArgs:
         from ..errors import OptionError
         from ..part_values import fit_circuit
         if model != "auto":
-            raise OptionError("--model cannot be combined with --circuit or --topology",
-                              hint="the circuit decides the response's form; drop --model")
+            raise OptionError("--form cannot be combined with --circuit or --topology",
+                              hint="the circuit decides the response's form; drop --form")
         circuit = self.circuit()
         design = {}
         for n, v in self.design.items():
@@ -146,8 +146,7 @@ def _relative_tolerance(text: str, unit: str, value_text: str, name: str) -> flo
 @click.argument("file", type=click.Path())
 @click.argument("out_file", required=False, type=click.Path())
 @capture_options
-@click.option("--model", default="auto", show_default=True, metavar="auto|NAME",
-              help="Form to fit (see `fitkit forms`), or auto to choose among the usual ones.")
+@form_option("Form to fit (see `fitkit forms`), or auto to choose among the usual ones.")
 @click.option("--edge-time", metavar="SECONDS", default=None,
               help="Fit only the edge at this time (e.g. 12.5u).")
 @click.option("--average", is_flag=True, help="Average the edges coherently before fitting.")
@@ -162,7 +161,7 @@ def _relative_tolerance(text: str, unit: str, value_text: str, name: str) -> flo
 @click.option("--json", "as_json", is_flag=True, help="Print the result as one JSON object.")
 @output_options
 @circuit_options
-def fit(file: str, out_file: str | None, model: str, edge_time: str | None, average: bool,
+def fit(file: str, out_file: str | None, edge_time: str | None, average: bool,
         pulse_width: str | None, intervals: str, noise_record: str | None, as_json: bool, **kwargs) -> None:
     """Fit the step response in FILE: time constants, f0, Q and gain with 95 % intervals.
 
@@ -175,7 +174,7 @@ def fit(file: str, out_file: str | None, model: str, edge_time: str | None, aver
     outputs.validate([file, out_file, kwargs.get("circuit_file"), noise_record], as_json=as_json)
     options = CaptureOptions.pop(kwargs)
     options.validate()
-    check_model(model)
+    model = pop_form(kwargs)
     check_distinct_inputs(file, out_file)
     t_edge = time_option(edge_time, "--edge-time")
     width = time_option(pulse_width, "--pulse-width")
@@ -218,5 +217,5 @@ def not_described_line(result) -> str:
     fixes = "; ".join(adequacy.fixes)
     advice = (f"what would work: {fixes}" if fixes else
               "no form, channel or window fitkit tried describes it: choose the channels with --input/--output, "
-              "one edge with --edge-time, or another form with --model (see `fitkit forms`)")
+              "one edge with --edge-time, or another form with --form (see `fitkit forms`)")
     return f"{adequacy.finding}. {advice}"

@@ -25,12 +25,15 @@ def automatic_condition(name: str) -> str:
 def forms_text(descriptions: list[dict], common: list[dict], delay_suffix: str = "") -> str:
     """The forms as a plain-text listing (our own layout); with ``delay_suffix``, a closing
     line on the dead-time variant every form has."""
+    from ..fitting.selection import FALLBACK_CANDIDATES as fallback
+
     lines = ["Every form: y(t) = baseline + step * response(t - t0), with "
              + ", ".join(_with_unit(p["name"], p["unit"]) for p in common) + ".", ""]
     for d in descriptions:
         poles = f"{d['poles']} pole" + ("s" if d["poles"] != 1 else "")
-        how = "tried by --model auto" if d["automatic"] else "fitted only when named with --model"
-        how += automatic_condition(d["name"]) if d["automatic"] else ""
+        how = ("tried by --form auto" + automatic_condition(d["name"]) if d["automatic"] else
+               "tried by --form auto when neither two-real-pole nor underdamped is determined by the data"
+               if d["name"] in fallback else "fitted only when named with --form")
         lines.append(f"{d['name']}  ({poles}; {how})")
         lines.append(f"    {d['summary']}")
         for p in d["parameters"]:
@@ -55,7 +58,7 @@ def forms_text(descriptions: list[dict], common: list[dict], delay_suffix: str =
 def forms(name, as_json):
     """List the step-response forms (or describe the one called NAME).
 
-    For each form: its name (what --model takes), a one-line summary, its
+    For each form: its name (what --form takes), a one-line summary, its
     shape parameters with units, and the derived quantities reported with it.
     """
     from ..forms import FORMS, PULSE_FORMS, get_form

@@ -37,6 +37,7 @@ def inspect_report(capture, roles: tuple[str | None, str]) -> dict:
 
 
 def _text(report: dict) -> str:
+    from ..conditioning.render import CHANNEL_NOISE
     lines = [f"file:             {report['file']}",
              f"layout:           {report['layout']}"]
     if report["data_start_line"]:
@@ -54,7 +55,7 @@ def _text(report: dict) -> str:
         source = f" (file: {c['source_unit']})" if c["source_unit"] and c["source_unit"] != unit else ""
         lines.append(f"  {i}. {c['name']:<{width}}  unit {unit or '-'}{source}; "
                      f"range {format_value(c['min'], unit)} to {format_value(c['max'], unit)}; "
-                     f"noise {format_value(c['noise_sigma'], unit)} rms"
+                     f"{CHANNEL_NOISE} {format_value(c['noise_sigma'], unit)} rms"
                      + (f" (quantised in {format_value(c['quantisation_step'], unit)} steps)"
                         if c.get("quantisation_step") else ""))
     lines.append("decisions:")

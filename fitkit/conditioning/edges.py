@@ -190,7 +190,7 @@ def edges_by_levels(time: np.ndarray, values: np.ndarray, levels: StateLevels,
         edges.append(Edge(index, t_edge, direction, onset, before, after))
         floor = first_new
     method = (f"crossings of the 50 % level between the state levels, with hysteresis "
-              f"between {LOW_THRESHOLD:.0%} and {HIGH_THRESHOLD:.0%}")
+              f"between {100 * LOW_THRESHOLD:.0f} % and {100 * HIGH_THRESHOLD:.0f} %")
     return EdgeSearch(tuple(edges), method)
 
 

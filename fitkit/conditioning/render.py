@@ -13,6 +13,12 @@ from .metrics import StepMetrics
 from .segment import StepSegment
 from ..units import format_value
 
+#: The two noise figures of inspect, named apart: the whole channel's, from the
+#: differences of neighbouring samples (or the quantisation floor), and one edge's,
+#: from the spread of its baseline before the edge (band-limited noise makes the two differ).
+CHANNEL_NOISE = "sample-to-sample noise"
+EDGE_NOISE = "baseline noise before the edge"
+
 
 def _rows(pairs: list[tuple[str, str]], indent: str = "  ") -> list[str]:
     width = max((len(k) for k, _ in pairs), default=0)
@@ -37,7 +43,7 @@ def _segment_block(number: int, seg: StepSegment, m: StepMetrics, unit: str) -> 
     ]
     if seg.input_before is not None and seg.input_after is not None:
         pairs.append(("input", f"{format_value(seg.input_before, unit)} to {format_value(seg.input_after, unit)}"))
-    pairs.append(("noise", f"{format_value(seg.noise_rms, unit)} rms"))
+    pairs.append((EDGE_NOISE, f"{format_value(seg.noise_rms, unit)} rms"))
     lo, hi = m.reference_levels
     refs = f"{lo * 100:.0f}-{hi * 100:.0f} %"
     if m.rise_time is not None:
@@ -69,8 +75,9 @@ def _segment_block(number: int, seg: StepSegment, m: StepMetrics, unit: str) -> 
     return [title] + _rows(pairs)
 
 
-def render_text(analysis: StepAnalysis, unit: str = "V") -> str:
-    """The analysis as a plain aligned text section (lines joined by newlines)."""
+def render_text(analysis: StepAnalysis, unit: str = "") -> str:
+    """The analysis as a plain aligned text section (lines joined by newlines); ``unit`` is
+    the output channel's ("" for a file that names none: values are shown without one)."""
     a = analysis
     head = [
         ("output channel", repr(a.output_channel)),
@@ -79,7 +86,7 @@ def render_text(analysis: StepAnalysis, unit: str = "V") -> str:
         ("state levels", f"{format_value(a.levels.low, unit)} and {format_value(a.levels.high, unit)}"
                          f" ({a.levels.method})"),
         ("sample interval", format_value(a.sample_interval, "s")),
-        ("output noise", f"{format_value(a.noise_rms, unit)} rms ({a.noise_method})"),
+        ("output " + CHANNEL_NOISE, f"{format_value(a.noise_rms, unit)} rms ({a.noise_method})"),
         ("quantisation step", "not visibly quantised" if a.quantisation_step is None
          else format_value(a.quantisation_step, unit)),
     ]

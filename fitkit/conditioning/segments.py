@@ -111,9 +111,10 @@ def _baseline_noise(t: np.ndarray, y: np.ndarray, quantised: bool) -> float:
     the blocks' spreads differ by more than :data:`NOISE_BLOCKS_DISAGREE`
     times (stationary noise keeps them within about 20 % at this size), the
     quietest block's spread is the noise (common practice, no source). The
-    first two thirds are measured on their own as well (the smaller spread
-    counts): the onset is known only to within 5 % of the step, so the last
-    samples before it can hold the start of a slowly leaving response.
+    first two thirds are measured on their own as well, and count when the
+    whole is more than NOISE_BLOCKS_DISAGREE times noisier: the onset is known
+    only to within 5 % of the step, so the last samples before it can hold the
+    start of a slowly leaving response.
     """
     if y.size < 32:
         return float("nan")
@@ -126,7 +127,9 @@ def _baseline_noise(t: np.ndarray, y: np.ndarray, quantised: bool) -> float:
     # the last third can hold the start of the response itself (the onset is found to within 5 %
     # of the step, and a response of several poles leaves its baseline slowly)
     head = max(32, (2 * y.size) // 3)
-    whole = min(spread(t, y), spread(t[:head], y[:head]))
+    whole, first = spread(t, y), spread(t[:head], y[:head])
+    if whole > NOISE_BLOCKS_DISAGREE * first:  # the last third moves: signal, not noise
+        whole = first
     n_blocks = int(min(NOISE_BLOCKS, y.size // NOISE_BLOCK_SAMPLES))
     if n_blocks < 2:
         return whole

@@ -79,13 +79,13 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         ff = fit_form(segments, chosen_form, **kwargs)
         if not ff.converged:
             raise FitError(f"the {chosen_form.name} fit did not converge ({ff.fit.message})"
-                           + _runaway_note(ff, dt), path=file or None, hint="try --model auto or another form")
+                           + _runaway_note(ff, dt), path=file or None, hint="try --form auto or another form")
         ff = quantised_refit(ff) or ff
         shape, notes = shape_estimates(ff, intervals)
         ok, why = admissibility(chosen_form, shape, dt)
         if not ok and "outside this form's range" in why:
             raise FitError(f"the {chosen_form.name} form does not describe this response: {why}",
-                           path=file or None, hint="try --model auto or another form")
+                           path=file or None, hint="try --form auto or another form")
         extra_warn = list(notes)
         if not ok:
             extra_warn.append(f"{chosen_form.name}: {why}")
@@ -424,7 +424,7 @@ def _alternative_forms(chosen: Form, candidates: Sequence[Candidate],
         other = assess(c.fit, noise, c.fit.correction.lag1)
         if other.describes_data:
             why = f" (set aside: {c.note})" if c.note else ""
-            fixes.append(f"--model {c.form.name} leaves residuals {other.misfit_ratio:.1f} times the noise{why}")
+            fixes.append(f"--form {c.form.name} leaves residuals {other.misfit_ratio:.1f} times the noise{why}")
     return fixes
 
 

@@ -36,11 +36,6 @@ def nonlinear_names(joint: JointModel) -> tuple[str, ...]:
     return joint.shape_names + delays
 
 
-def linear_levels(joint: JointModel, values: Mapping[str, float]) -> dict[str, float]:
-    """Weighted least-squares levels for the shape and delays in ``values`` (internal units)."""
-    return projected_model(joint, values)[0]
-
-
 def projected_model(joint: JointModel, values: Mapping[str, float]) -> tuple[dict[str, float], np.ndarray]:
     """(levels, model over all points) for the shape and delays in ``values``, the
     levels by weighted linear least squares; each edge's response is computed once."""

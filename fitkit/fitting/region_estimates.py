@@ -329,5 +329,7 @@ def _beyond_text(ff: FormFit, region: BoundedRegion) -> str:
     j = [p.name for p in region.specs].index(name)
     value = ff.joint.scaling.shape_from_log_scaled(region.specs[j], float(region.centre[j]))
     side = "above" if region.specs[j].upper is not None and value > limit else "below"
-    return (f"the fitted {name} = {value:.3g} lies {region.beyond:.1f} standard errors {side} {limit:g}"
+    bound = "<=" if side == "above" else ">="
+    return (f"the data's best point lies at {name} = {value:.3g}, {region.beyond:.1f} standard errors "
+            f"{side} this form's range ({name} {bound} {limit:g})"
             + (" (the response rings)" if side == "above" and name == "Q" else ""))

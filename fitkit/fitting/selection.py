@@ -126,7 +126,7 @@ def choose(candidates: Sequence[Candidate], sample_interval: float = math.nan
     usable = [c for c in candidates if c.fit is not None and c.fit.converged]
     if not usable:
         raise FitError("no candidate form converged",
-                       hint="check that the capture holds a clean step response, or name a form with --model")
+                       hint="check that the capture holds a clean step response, or name a form with --form")
     admissible = [c for c in usable if c.admissible]
     if not admissible:
         notes = "; ".join(f"{c.form.name}: {c.note}" for c in usable)
@@ -136,12 +136,14 @@ def choose(candidates: Sequence[Candidate], sample_interval: float = math.nan
     crit = {c.form.name: c.fit.aicc(inflation) for c in usable}
     ranked = sorted(admissible, key=lambda c: (c.fit.n_parameters, c.form.order))
     chosen = ranked[0]
-    reason = f"{chosen.form.name} is the simplest form that fits"
+    reason = (f"{chosen.form.name} has the fewest parameters of the candidates the data determine, and no "
+              f"candidate with more lowers {CRITERION} by more than {MARGIN:g}")
     for c in ranked[1:]:
         gain = crit[chosen.form.name] - crit[c.form.name]
         if gain > MARGIN:
-            reason = (f"{c.form.name} lowers {CRITERION} by {gain:.1f} against {chosen.form.name} "
-                      f"(more than the {MARGIN:g} a more complex form needs)")
+            reason = (f"{c.form.name} lowers {CRITERION} by {gain:.1f} against {chosen.form.name}; a form with "
+                      f"more parameters replaces a simpler one only when it lowers {CRITERION} by more "
+                      f"than {MARGIN:g}")
             chosen = c
     warnings: list[str] = []
     if id(chosen) in promoted:
@@ -149,13 +151,6 @@ def choose(candidates: Sequence[Candidate], sample_interval: float = math.nan
                         f"support it decisively ({CRITERION} lower by more than {MARGIN:g} than every simpler "
                         "form, its interval bounded); it is reported, and its interval says how well the "
                         "samples resolve it")
-    runners = [c for c in ranked if c is not chosen]
-    if runners:
-        best_other = min(runners, key=lambda c: crit[c.form.name])
-        delta = crit[best_other.form.name] - crit[chosen.form.name]
-        reason += f"; runner-up {best_other.form.name}, {CRITERION} {delta:+.1f}"
-        if delta < 0:
-            reason += f" (better by {-delta:.1f}, but not by the margin of {MARGIN:g}, so the simpler form is kept)"
     for c in usable:
         if not c.admissible and crit[c.form.name] < crit[chosen.form.name] - MARGIN:
             warnings.append(f"{c.form.name} fits better than {chosen.form.name}, but {c.note}; "

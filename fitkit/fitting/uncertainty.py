@@ -358,10 +358,6 @@ def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequen
     return Correction(corrected, widening, lag1, m_max, True, text, variance_ratio, dof)
 
 
-def symmetric_interval(value: float, stderr: float, tq: float) -> tuple[float, float]:
-    return value - tq * stderr, value + tq * stderr
-
-
 def log_interval(value: float, log_stderr: float, tq: float) -> tuple[float, float]:
     """Interval of a positive quantity from the standard error of its natural log."""
     return value * math.exp(-tq * log_stderr), value * math.exp(tq * log_stderr)

@@ -64,5 +64,5 @@ CRITICALLY_DAMPED = Form(
     derived=derived,
     derived_units={"tau": "s", **POLE_PAIR_UNITS, **TIMING_UNITS},
     order=2,
-    auto_candidate=False,  # fitted when named; automatic selection uses its neighbours
+    auto_candidate=False,  # fitted when named, and by auto only as the fallback (fitting.selection)
 )

@@ -5,7 +5,7 @@
 ``delayed(form)`` returns a Form named "<form>-with-delay" with one more shape
 parameter, ``delay`` (seconds, positive, fitted in log space like every shape
 parameter). ``fitkit.forms.get_form`` knows these names, so
-``fitkit fit FILE --model first-order-with-delay`` works for every form.
+``fitkit fit FILE --form first-order-with-delay`` works for every form.
 
 A form fitted in internal coordinates ("two-real-pole", fitted in tau0 and Q
 and reported as tau1 and tau2) is delayed in its reported coordinates

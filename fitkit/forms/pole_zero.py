@@ -1,17 +1,17 @@
 """One real zero with two real poles: lead / lag networks, compensated dividers, op-amp stages.
 
-    H(s) = (1 + s tz) / ((1 + s tau1)(1 + s tau2)),   tau1 >= tau2 > 0,  tz > 0.
+    H(s) = (1 + s tau_z) / ((1 + s tau1)(1 + s tau2)),   tau1 >= tau2 > 0,  tau_z > 0.
 
-tz may lie below the poles (lag-like response, slower tail) or above them
+tau_z may lie below the poles (lag-like response, slower tail) or above them
 (lead: a fast rise that overshoots and then relaxes back). The step response is
-the two-pole response plus tz times its derivative; with
+the two-pole response plus tau_z times its derivative; with
 d = 1/tau2 - 1/tau1 >= 0 and (1 - exp(-x))/x from expm1 it reads
 
-    y(t) = 1 - exp(-t/tau1) [1 + (t/tau1) (1 - tz/tau2) (1 - exp(-d t))/(d t)],
+    y(t) = 1 - exp(-t/tau1) [1 + (t/tau1) (1 - tau_z/tau2) (1 - exp(-d t))/(d t)],
 
 exact for equal poles too (no division by tau1 - tau2).
 Like "two-real-pole", the form is symmetric in tau1 and tau2 and reports them
-sorted. Derived: tz, tau1, tau2, f0, Q, zeta, omega0 of the pole pair, and the
+sorted. Derived: tau_z, tau1, tau2, f0, Q, zeta, omega0 of the pole pair, and the
 numerical bandwidth, rise time, overshoot and 2 % settling time.
 """
 
@@ -26,30 +26,30 @@ from .stable_math import relative_decay
 from .two_real_pole import POLE_PAIR_UNITS, TIMING_UNITS, pole_pair_quantities
 
 
-def unit_step(t_rel: np.ndarray, *, tz: float, tau1: float, tau2: float) -> np.ndarray:
-    """Step response of (1 + s tz)/((1 + s tau1)(1 + s tau2)); seconds; 0 before the edge."""
+def unit_step(t_rel: np.ndarray, *, tau_z: float, tau1: float, tau2: float) -> np.ndarray:
+    """Step response of (1 + s tau_z)/((1 + s tau1)(1 + s tau2)); seconds; 0 before the edge."""
     slow, fast = max(tau1, tau2), min(tau1, tau2)
     after, t = causal(t_rel)
     d = (slow - fast) / (slow * fast)
     x = t / slow
-    return np.where(after, 1.0 - np.exp(-x) * (1.0 + x * (1.0 - tz / fast) * relative_decay(d * t)), 0.0)
+    return np.where(after, 1.0 - np.exp(-x) * (1.0 + x * (1.0 - tau_z / fast) * relative_decay(d * t)), 0.0)
 
 
-def transfer_function(*, tz: float, tau1: float, tau2: float) -> tuple[np.ndarray, np.ndarray]:
-    """H(s) = (tz s + 1) / (tau1 tau2 s^2 + (tau1 + tau2) s + 1)."""
-    return np.array([tz, 1.0]), np.array([tau1 * tau2, tau1 + tau2, 1.0])
+def transfer_function(*, tau_z: float, tau1: float, tau2: float) -> tuple[np.ndarray, np.ndarray]:
+    """H(s) = (tau_z s + 1) / (tau1 tau2 s^2 + (tau1 + tau2) s + 1)."""
+    return np.array([tau_z, 1.0]), np.array([tau1 * tau2, tau1 + tau2, 1.0])
 
 
 def canonical(shape) -> dict[str, float]:
     """The shape with tau1 >= tau2."""
     a, b = shape["tau1"], shape["tau2"]
-    return {"tz": shape["tz"], "tau1": max(a, b), "tau2": min(a, b)}
+    return {"tau_z": shape["tau_z"], "tau1": max(a, b), "tau2": min(a, b)}
 
 
-def derived(*, tz: float, tau1: float, tau2: float) -> dict[str, float]:
-    """tz, tau1 >= tau2 (s), f0 (Hz), Q, zeta, omega0 (rad/s) of the poles, bandwidth_3db (Hz),
+def derived(*, tau_z: float, tau1: float, tau2: float) -> dict[str, float]:
+    """tau_z, tau1 >= tau2 (s), f0 (Hz), Q, zeta, omega0 (rad/s) of the poles, bandwidth_3db (Hz),
     rise_time (s), overshoot (%), settling_time_2pct (s)."""
-    s = canonical({"tz": tz, "tau1": tau1, "tau2": tau2})
+    s = canonical({"tau_z": tau_z, "tau1": tau1, "tau2": tau2})
     num, den = transfer_function(**s)
     total = s["tau1"] + s["tau2"]
     m = step_metrics(lambda t: unit_step(t, **s), horizon=8.0 * total,
@@ -73,33 +73,33 @@ def _relaxation_time(t_rel: np.ndarray, y_norm: np.ndarray, shape: ResponseShape
 
 
 def guess(t_rel: np.ndarray, y_norm: np.ndarray) -> list[dict[str, float]]:
-    """Lag-like starts around the 63 % time; lead-like starts (tz above the poles) from the
+    """Lag-like starts around the 63 % time; lead-like starts (tau_z above the poles) from the
     overshoot and its relaxation time when the response overshoots."""
     shape = measure_response(t_rel, y_norm)
     scale = shape.time_scale
-    starts = [{"tz": scale * z, "tau1": scale * p1, "tau2": scale * p2}
+    starts = [{"tau_z": scale * z, "tau1": scale * p1, "tau2": scale * p2}
               for z, p1, p2 in ((0.3, 1.0, 0.3), (0.1, 1.0, 0.1), (0.5, 1.0, 0.5), (2.0, 1.0, 0.3))]
     if shape.overshoot > 0:
         relax = _relaxation_time(t_rel, y_norm, shape)
         if np.isfinite(relax) and relax > 0:
-            # after the fast pole, y ~ 1 + (tz/tau1 - 1) exp(-t/tau1): tz ~ tau1 (1 + overshoot)
+            # after the fast pole, y ~ 1 + (tau_z/tau1 - 1) exp(-t/tau1): tau_z ~ tau1 (1 + overshoot)
             for fast in (0.5 * shape.peak_time, 0.2 * shape.peak_time):
-                starts.insert(0, {"tz": relax * (1.0 + shape.overshoot), "tau1": relax,
+                starts.insert(0, {"tau_z": relax * (1.0 + shape.overshoot), "tau1": relax,
                                   "tau2": min(fast, 0.5 * relax)})
     return starts
 
 
 POLE_ZERO = Form(
     name="pole-zero",
-    summary="one real zero and two real poles (lead or lag): (1 + s tz)/((1 + s tau1)(1 + s tau2))",
-    shape=(ParamSpec("tz", "s", "time", "time constant of the zero"),
+    summary="one real zero and two real poles (lead or lag): (1 + s tau_z)/((1 + s tau1)(1 + s tau2))",
+    shape=(ParamSpec("tau_z", "s", "time", "time constant of the zero"),
            ParamSpec("tau1", "s", "time", "slower pole time constant"),
            ParamSpec("tau2", "s", "time", "faster pole time constant (the two may swap during a fit)")),
     unit_step=unit_step,
     transfer_function=transfer_function,
     guess=guess,
     derived=derived,
-    derived_units={"tz": "s", "tau1": "s", "tau2": "s", **POLE_PAIR_UNITS, **TIMING_UNITS},
+    derived_units={"tau_z": "s", "tau1": "s", "tau2": "s", **POLE_PAIR_UNITS, **TIMING_UNITS},
     order=2,
     auto_candidate=False,
     canonical=canonical,

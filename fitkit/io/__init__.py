@@ -60,6 +60,36 @@ def load_capture(path: str | Path, *, second_path: str | Path | None = None,
     if not isinstance(path, (str, os.PathLike)):
         from ..errors import ArgumentError
         raise ArgumentError(f"load_capture: path must be a file path (str or Path), not {type(path).__name__}")
+    given = dict(sample_interval=sample_interval, time_origin=time_origin, delimiter=delimiter,
+                 decimal=decimal, skip_rows=skip_rows, header_rows=header_rows, time_column=time_column,
+                 time_unit=time_unit, value_unit=value_unit, vertical_scale=vertical_scale,
+                 vertical_offset=vertical_offset, encoding=encoding)
+    capture = _load_with_sidecar(path, given, channels, second_path)
+    if second_path is not None:
+        capture = join_input_output(capture, _load_with_sidecar(second_path, given, channels, second_path))
+    if channels:
+        capture = capture.with_channels(list(channels))
+    return capture
+
+
+def _load_with_sidecar(path, given: dict, channels, second_path) -> Capture:
+    """One file read with the options given over the settings of its sidecar
+    (fitkit.io.sidecar), after every option is checked."""
+    from .sidecar import with_sidecar
+    if isinstance(path, (str, os.PathLike)) and os.path.isfile(path):
+        options, notes = with_sidecar(path, given)
+    else:
+        options, notes = dict(given), []
+    capture = _load_checked(path, options, channels, second_path)
+    return capture.with_decisions(notes) if notes else capture
+
+
+def _load_checked(path, options: dict, channels, second_path) -> Capture:
+    sample_interval, time_origin = options["sample_interval"], options["time_origin"]
+    delimiter, decimal, encoding = options["delimiter"], options["decimal"], options["encoding"]
+    skip_rows, header_rows, time_column = options["skip_rows"], options["header_rows"], options["time_column"]
+    time_unit, value_unit = options["time_unit"], options["value_unit"]
+    vertical_scale, vertical_offset = options["vertical_scale"], options["vertical_offset"]
     check_read_options(path=path, second_path=second_path, encoding=encoding, time_unit=time_unit,
                        value_unit=value_unit, skip_rows=skip_rows, header_rows=header_rows,
                        delimiter=delimiter, time_column=time_column, channels=channels)
@@ -70,12 +100,7 @@ def load_capture(path: str | Path, *, second_path: str | Path | None = None,
                    skip_rows=skip_rows, header_rows=header_rows, time_column=time_column,
                    time_unit=time_unit, value_unit=value_unit, vertical_scale=scale,
                    vertical_offset=offset, encoding=encoding)
-    capture = _load_one(Path(path), options)
-    if second_path is not None:
-        capture = join_input_output(capture, _load_one(Path(second_path), options))
-    if channels:
-        capture = capture.with_channels(list(channels))
-    return capture
+    return _load_one(Path(path), options)
 
 
 #: Sample intervals accepted from the user, in seconds (a 1 THz sampler to one sample a day).

@@ -329,6 +329,12 @@ def _choose_time_axis(shape: TextShape, names: dict[int, str], units: dict[int, 
     return time_col, index_col, time_source
 
 
+def _meta_text(meta: dict[str, str], keys: tuple[str, ...]) -> str | None:
+    """The value of the first metadata entry named by one of ``keys`` (normalised), or None."""
+    found = md.find(meta, keys)
+    return found[1].strip() or None if found else None
+
+
 def _channel_plans(shape: TextShape, channel_cols: list[int], names: dict[int, str],
                    units: dict[int, str], meta: dict[str, str], value_unit: str | None,
                    vertical_scale: float | None, vertical_offset: float | None,
@@ -337,8 +343,8 @@ def _channel_plans(shape: TextShape, channel_cols: list[int], names: dict[int, s
     with --vertical-scale, or with the file's metadata when the column holds integers
     and no other unit)."""
     single = len(channel_cols) == 1
-    source_name = meta.get("Source") if single else None
-    vertical_units = meta.get("Vertical Units") if single else None
+    source_name = _meta_text(meta, md.CHANNEL_NAME_KEYS) if single else None
+    vertical_units = _meta_text(meta, md.VALUE_UNIT_KEYS) if single else None
     plans: list[ChannelPlan] = []
     for k, j in enumerate(channel_cols, start=1):
         name = names.get(j) or source_name or f"ch{k}"

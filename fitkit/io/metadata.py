@@ -90,6 +90,10 @@ SCALE_KEYS = ("volts per count", "v per count", "vertical scale", "scale", "ymul
               "lsb", "lsb size", "volts per code", "v per code", "vertical gain", "gain",
               "count scale", "conversion factor")
 OFFSET_KEYS = ("vertical offset", "offset", "yzero", "y zero", "volt offset", "offset volts")
+#: A one-channel file's channel name and value unit written in its settings ("Source", "Channel";
+#: "Vertical Units", "Value unit").
+CHANNEL_NAME_KEYS = ("source", "channel", "channel name", "trace")
+VALUE_UNIT_KEYS = ("vertical units", "vertical unit", "value unit", "value units", "y unit", "y units")
 COUNT_OFFSET_KEYS = ("count offset", "code offset", "yoff", "zero code", "adc offset", "zero count")
 
 

@@ -93,7 +93,10 @@ def _parse_time(text: str) -> datetime | None:
 def capture_facts(path: str, file_sha256: str, *, serial_pattern: re.Pattern | None = None,
                   serial_field: str | None = None, time_field: str = DEFAULT_TIME_FIELD,
                   fixture: str | None = None) -> CaptureFacts:
-    """Serial, time and fixture of the capture in ``path`` (see the module docstring)."""
+    """Serial, time and fixture of the capture in ``path`` (see the module docstring); of a
+    paired capture (fitkit.io.pairs), from its output file."""
+    from ..io.pairs import capture_files
+    named, path = path, capture_files(path)[-1]
     fields = header_fields(path)
     serial, serial_source = None, "none found"
     if serial_field and fields.get(serial_field.lower()):
@@ -115,6 +118,6 @@ def capture_facts(path: str, file_sha256: str, *, serial_pattern: re.Pattern | N
             pass
     if not fixture:
         fixture = next((fields[f.lower()] for f in FIXTURE_FIELDS if fields.get(f.lower())), "unnamed")
-    return CaptureFacts(file_name=path, file_sha256=file_sha256, board_serial=serial,
+    return CaptureFacts(file_name=named, file_sha256=file_sha256, board_serial=serial,
                         serial_source=serial_source, captured_at=captured_at, time_source=time_source,
                         fixture=fixture)

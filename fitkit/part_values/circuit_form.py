@@ -34,9 +34,12 @@ from ..circuits import Circuit, TransferFunction
 from ..circuits.parametric import PartFamily
 from ..forms.base import Form, ParamSpec
 
-#: Units of the quantities TransferFunction.quantities() returns.
-QUANTITY_UNITS = {"dc_gain": "", "tau": "s", "f0": "Hz", "Q": "", "zeta": "", "tau_slow": "s",
-                  "tau_fast": "s", "tau_slowest": "s"}
+#: The DC gain the fitted parts give (TransferFunction.quantities()'s "dc_gain"), named apart
+#: from the measured gain (output step / input step) every fit reports as "gain".
+CIRCUIT_DC_GAIN = "circuit_dc_gain"
+#: Units of the derived quantities (TransferFunction.quantities(), dc_gain renamed).
+QUANTITY_UNITS = {CIRCUIT_DC_GAIN: "", "tau": "s", "f0": "Hz", "Q": "", "zeta": "", "tau1": "s",
+                  "tau2": "s", "tau_dominant": "s"}
 #: How many transfer functions the form keeps (the fit revisits the same values often).
 CACHE_SIZE = 64
 #: How many step responses (per set of times) the form keeps.
@@ -125,7 +128,9 @@ def circuit_form(circuit: Circuit, unknowns: Sequence[str], time_unit: float,
         return [{n: float(s[n]) for n in unknowns} for s in starts]
 
     def derived(**shape: float) -> dict[str, float]:
-        return tf_of(shape).quantities()
+        q = tf_of(shape).quantities()
+        q[CIRCUIT_DC_GAIN] = q.pop("dc_gain")
+        return q
 
     specs = tuple(ParamSpec(n, circuit.part(n).unit, "ratio", f"{circuit.part(n).kind} {n}")
                   for n in unknowns)

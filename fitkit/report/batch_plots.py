@@ -170,7 +170,8 @@ def _distribution_figure(rows: pd.DataFrame, name: str, unit: str,
     ax_rows.set_xlim(x_lo, x_hi)
     ax_rows.xaxis.set_major_formatter(EngFormatter(unit=unit) if unit else EngFormatter())
     label = label_for(name)
-    ax_rows.set_xlabel(f"{name}" + (f" ({label})" if label else "") + (f" [{unit}]" if unit else ""))
+    # the tick labels carry the unit with its prefix ("100 nF"); the axis label names the quantity
+    ax_rows.set_xlabel(f"{name}" + (f" ({label})" if label else ""))
 
     handles = [Line2D([], [], linestyle="none", marker=FORM_MARKERS[i % len(FORM_MARKERS)],
                       color=FORM_SHADES[i % len(FORM_SHADES)], label=f"{f} ({int(np.sum(models == f))})")

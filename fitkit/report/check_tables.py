@@ -16,6 +16,9 @@ import math
 from typing import Any
 
 from ..units import format_interval, format_value
+from .check_text import (SUSPECT_DELTA_MEANING, TIE_MEANING, output_unit_of, percent_text, rank_mark,
+                         summary_after_banner)
+from .quantities import unique_lines
 
 #: Columns of the check CSV (see check_result_csv).
 CHECK_CSV_COLUMNS = ("kind", "name", "value", "ci95_low", "ci95_high", "unit", "limit_low", "limit_high",
@@ -55,14 +58,14 @@ def check_records(result) -> list[dict[str, Any]]:
         rows.append(dict(kind="part", name=c.part, value=_number(c.value), ci95_low=lo, ci95_high=hi,
                          unit=c.unit, limit_low=_number(c.low), limit_high=_number(c.high),
                          nominal=_number(c.nominal), verdict=c.verdict,
-                         note=f"tolerance {c.tolerance}; interval widened by the other parts' tolerances"
+                         note=f"tolerance {percent_text(c.tolerance)}; interval widened by the other parts' tolerances"
                          + (f"; {c.note}" if c.note else "")))
     for rank, s in enumerate(result.suspects, start=1):
         lo, hi = _pair(s.ci95)
         rows.append(dict(kind="suspect", name=s.part, value=_number(s.value), ci95_low=lo, ci95_high=hi,
                          unit=s.unit, limit_low=None, limit_high=None, nominal=_number(s.nominal),
-                         verdict=("leading suspect" if s.tied else f"rank {rank}"),
-                         note=f"evidence {s.evidence:.1f}; {s.pattern}"))
+                         verdict=f"rank {rank_mark(rank, s, result)}",
+                         note=f"ΔAICc {s.evidence:.1f}; {s.pattern}"))
     return rows
 
 
@@ -122,7 +125,7 @@ def check_html_sections(result) -> list[tuple[str, str]]:
     suspects, the capture against the envelope and what would resolve an inconclusive
     check. Every text from files is escaped."""
     d = result.design
-    summary = (f'<p class="check-summary">{_e(result.summary)}</p>'
+    summary = (f'<p class="check-summary">{_e(summary_after_banner(result))}</p>'
                f"<p>Design: {_e(d.name)}" + (f" ({_e(d.path)})" if d.path else "") + ". Model driven by "
                + ("the measured input" if result.measured_input else "an ideal step (no input channel)") + ".</p>")
     sections = [("Board check", summary)]
@@ -132,7 +135,8 @@ def check_html_sections(result) -> list[tuple[str, str]]:
                 for q in result.quantities]
         sections.append(("Behaviour against limits", _table(
             "check-behaviour", ["quantity", "measured", "95 % interval", "allowed range", "from", "verdict"], rows)))
-    rows = [(c.verdict.replace(" ", "-"), [c.part, _v(c.nominal, c.unit), c.tolerance, _v(c.value, c.unit),
+    rows = [(c.verdict.replace(" ", "-"), [c.part, _v(c.nominal, c.unit), percent_text(c.tolerance),
+                                            _v(c.value, c.unit),
                                             _iv(c.judged_interval, c.unit), c.verdict, c.note])
             for c in result.components]
     sections.append(("Parts against tolerances", _table(
@@ -142,26 +146,26 @@ def check_html_sections(result) -> list[tuple[str, str]]:
     if result.suspects:
         named = {id(s) for s in named_suspects(result)}
         rows = [("named" if id(s) in named else "other",
-                 [str(i) + (" (leader)" if s.tied else ""), s.part,
+                 [rank_mark(i, s, result), s.part,
                   _v(s.value, s.unit) if s.value is not None else "(values exchanged)", _iv(s.ci95, s.unit),
                   f"{s.evidence:.1f}", s.pattern]) for i, s in enumerate(result.suspects, start=1)]
         intro = ("<p>The board passes; these single-part explanations are for reference.</p>"
-                 if result.verdict == "pass" else "<p>Most likely first. Evidence: AICc above the best, "
-                 "scaled for correlated noise; below 2 is equally good.</p>")
+                 if result.verdict == "pass" else "<p>Most likely first.</p>")
+        intro += f"<p>{_e(SUSPECT_DELTA_MEANING)}; {_e(TIE_MEANING)}.</p>"
         notes = "".join(f"<li>{_e(m)}</li>" for m in (result.diagnosis.messages if result.diagnosis else ()))
         sections.append(("Suspects", intro + _table(
-            "check-suspects", ["rank", "part", "implied value", "95 % interval", "evidence", "pattern"], rows)
+            "check-suspects", ["rank", "part", "implied value", "95 % interval", "ΔAICc", "pattern"], rows)
             + (f"<ul>{notes}</ul>" if notes else "")))
     env, cmp_ = result.envelope, result.envelope_comparison
     text = (f"<p>{env.trials} boards drawn {_e(env.distribution)}, plus {env.corners} worst-case corners.")
     if cmp_ is not None:
         text += (f" {100 * cmp_.fraction_outside:.1f} % of {cmp_.n_samples} samples lie outside by more than "
-                 f"3 noise sigma ({_e(format_value(cmp_.margin, 'V'))}); largest excursion "
-                 f"{_e(format_value(cmp_.max_excursion, 'V'))}.")
+                 f"3 noise sigma ({_e(format_value(cmp_.margin, output_unit_of(result)))}); largest excursion "
+                 f"{_e(format_value(cmp_.max_excursion, output_unit_of(result)))}.")
     sections.append(("Tolerance envelope", text + "</p>"))
     if result.resolve:
         sections.append(("To resolve", "<ul>" + "".join(f"<li>{_e(r)}</li>" for r in result.resolve) + "</ul>"))
-    more = [w for w in result.warnings if w not in result.fit.warnings]
+    more = [w for w in unique_lines(result.warnings) if w not in result.fit.warnings]
     if more:
         sections.append(("Check warnings", '<ul class="warnings">' + "".join(f"<li>{_e(w)}</li>" for w in more)
                          + "</ul>"))

@@ -30,8 +30,9 @@ from ..atomic import write_text_atomic
 from ..capture import Capture, Provenance
 from ..errors import OptionError
 from ..results import FitResult
-from .quantities import (QuantityRow, criterion_name, format_quantity, interval_text, is_reportable,
-                         quantity_rows, runner_up, stderr_text, value_text)
+from .quantities import (COMPARISON_RMS, COMPARISON_RMS_MEANING, FINAL_RMS, QuantityRow, criterion_name,
+                         delta_meaning, delta_name, format_quantity, interval_text, is_reportable, quantity_rows,
+                         runner_up_text, set_aside_lines, stderr_text, unique_lines, value_text)
 
 # Our own sober, printable style, scoped to the report's container.
 _CSS = """
@@ -137,13 +138,12 @@ def _summary(result: FitResult) -> str:
                       + f"output {channels['output']!r}"))
     if result.selection_reason:
         items.append(("why this form", result.selection_reason))
-    other = runner_up(result)
-    if other is not None:
-        crit = criterion_name(result)
-        if other.converged and other.delta is not None and math.isfinite(other.delta):
-            items.append(("runner-up", f"{other.model} ({crit} higher by {other.delta:.1f})"))
-        else:
-            items.append(("runner-up", f"{other.model} (did not converge)"))
+    aside = set_aside_lines(result)
+    if aside:
+        items.append(("set aside", "; ".join(aside)))
+    runner = runner_up_text(result)
+    if runner:
+        items.append(("runner-up", runner))
     if result.warnings:
         n = len(result.warnings)
         items.append(("warnings", f"{n} warning{'s' if n > 1 else ''}, listed below the diagnostics"))
@@ -156,7 +156,7 @@ def _selection_table(result: FitResult) -> str:
         return '<h2>Candidate forms</h2><p class="none">The form was named, not selected.</p>'
     crit = criterion_name(result)
     head = (f"<tr><th>form</th><th>converged</th><th>parameters</th><th>{_e(crit)}</th>"
-            f"<th>difference from chosen</th><th>RMS residual</th><th>note</th></tr>")
+            f"<th>{_e(delta_name(result))}</th><th>{_e(COMPARISON_RMS)}</th><th>set aside because</th></tr>")
     lines = []
     for c in result.selection:
         css = ' class="chosen"' if c.model == result.model else ""
@@ -166,9 +166,10 @@ def _selection_table(result: FitResult) -> str:
                      f'<td class="num">{f"{c.criterion:.1f}" if ok else "-"}</td>'
                      f'<td class="num">{f"{c.delta:+.1f}" if ok and math.isfinite(c.delta) else "-"}</td>'
                      f'<td class="num">{_e(format_quantity(c.rms_residual, result.output_unit, 3)) if ok else "-"}</td>'
-                     f"<td>{_e(c.note)}</td></tr>")
+                     f"<td>{_e('' if css or c.note == 'chosen' else c.note)}</td></tr>")
+    notes = f"<p>{_e(delta_meaning(result))}. {_e(COMPARISON_RMS_MEANING)}.</p>"
     return (f'<h2>Candidate forms</h2><table class="selection"><thead>{head}</thead>'
-            f"<tbody>{''.join(lines)}</tbody></table>")
+            f"<tbody>{''.join(lines)}</tbody></table>{notes}")
 
 
 def _diagnostics_table(result: FitResult) -> str:
@@ -182,7 +183,7 @@ def _diagnostics_table(result: FitResult) -> str:
     ratio = d.rms_residual / d.noise_rms if d.noise_rms and math.isfinite(d.noise_rms) else float("nan")
     rows = [
         ("samples fitted", f"{d.n_samples} (effective {num(d.effective_samples, '.0f')})"),
-        ("RMS residual", format_quantity(d.rms_residual, result.output_unit, 3)),
+        (FINAL_RMS, format_quantity(d.rms_residual, result.output_unit, 3)),
         ("noise estimate (RMS)", format_quantity(d.noise_rms, result.output_unit, 3)),
         ("residual / noise", num(ratio, ".2f")),
         ("residual lag-1 correlation", num(d.residual_lag1, ".2f")),
@@ -199,7 +200,7 @@ def _diagnostics_table(result: FitResult) -> str:
 def _warnings_list(result: FitResult) -> str:
     if not result.warnings:
         return '<h2>Warnings</h2><p class="none">None.</p>'
-    items = "".join(f"<li>{_e(w)}</li>" for w in result.warnings)
+    items = "".join(f"<li>{_e(w)}</li>" for w in unique_lines(result.warnings))
     return f'<h2>Warnings</h2><ul class="warnings">{items}</ul>'
 
 

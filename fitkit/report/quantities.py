@@ -22,6 +22,15 @@ from ..units import format_value
 #: Text shown instead of a number when the data do not determine a quantity.
 NOT_DETERMINED = "not determined"
 
+#: The two residual RMS figures of a fit, named apart in every report: the candidate
+#: forms' (from the fits that compared them, whose bins are coarser on a long record)
+#: and the chosen form's final fit (Diagnostics). Both are per sample, in the output's unit.
+COMPARISON_RMS = "comparison RMS residual"
+FINAL_RMS = "final fit RMS residual"
+COMPARISON_RMS_MEANING = ("comparison RMS residual: per sample, from the fits that compared the forms (a long "
+                          "record averaged into coarser bins); with correlated noise it can exceed the "
+                          f"{FINAL_RMS} shown below")
+
 # Trade names used in results -> plain words. Unknown names get no label.
 LABELS: dict[str, str] = {
     "baseline": "output level before the edge",
@@ -35,7 +44,7 @@ LABELS: dict[str, str] = {
     "tau3": "third time constant",
     "tau4": "fourth time constant",
     "tau5": "fifth time constant",
-    "tz": "zero time constant",
+    "tau_z": "zero time constant",
     "tau_dominant": "dominant time constant",
     "f0": "natural frequency",
     "omega0": "natural angular frequency",
@@ -44,6 +53,7 @@ LABELS: dict[str, str] = {
     "fd": "damped (ringing) frequency",
     "damped_frequency": "damped (ringing) frequency",
     "gain": "DC gain (output step / input step)",
+    "circuit_dc_gain": "DC gain the circuit's fitted parts give (its topology may fix it); measured: gain",
     "bandwidth_3db": "-3 dB bandwidth",
     "rise_time": "10-90 % rise time",
     "overshoot": "overshoot",
@@ -185,23 +195,59 @@ def stderr_text(est: Estimate) -> str:
     return format_quantity(est.stderr, est.unit, 2)
 
 
+def set_aside(result: FitResult) -> list:
+    """The candidate forms set aside before the comparison, in the order tried: those
+    that did not converge and those the engine noted a reason against (a parameter
+    not determined, a value outside the form's range). Their ``note`` says why."""
+    return [c for c in result.selection if c.model != result.model and (not c.converged or _noted(c))]
+
+
 def runner_up(result: FitResult):
-    """The best candidate form other than the chosen one, or None.
+    """The best candidate form among those compared with the chosen one (converged,
+    not set aside, lowest ΔAICc), or None when every other candidate was set aside."""
+    rest = [c for c in result.selection if c.model != result.model and c.converged and not _noted(c)
+            and c.delta is not None and math.isfinite(c.delta)]
+    return min(rest, key=lambda c: c.delta) if rest else None
 
-    Candidates that converged come first; among them those without a note
-    (the engine notes why it set a candidate aside: a parameter not
-    determined, a value outside the form's range) before those with one; then
-    by ``delta``, the criterion difference from the chosen form.
-    """
-    others = [c for c in result.selection if c.model != result.model]
-    if not others:
-        return None
 
-    def key(c):
-        delta = c.delta if c.delta is not None and math.isfinite(c.delta) else math.inf
-        return (not c.converged, bool(c.note.strip()), delta)
+def _noted(c) -> bool:
+    return bool(c.note.strip()) and c.note != "chosen"
 
-    return sorted(others, key=key)[0]
+
+def delta_name(result: FitResult) -> str:
+    """The one name of the criterion difference in every report: "ΔAICc"."""
+    return "Δ" + criterion_name(result)
+
+
+def delta_meaning(result: FitResult, against: str = "the chosen form's") -> str:
+    """What the difference is and which way is worse, said once per report."""
+    crit = criterion_name(result)
+    return f"{delta_name(result)}: {crit} minus {against}; bigger = worse fit"
+
+
+def runner_up_text(result: FitResult) -> str:
+    """The runner-up as a reader needs it: the form, its ΔAICc and, when it fits
+    better than the chosen form, why it was not chosen. "" when there is none."""
+    from ..fitting.selection import MARGIN
+
+    other = runner_up(result)
+    if other is None:
+        return ""
+    text = f"{other.model}, {delta_name(result)} {other.delta:+.1f}"
+    if other.delta < 0:
+        text += (f": fits better by {-other.delta:.1f}, less than the {MARGIN:g} a form must gain to replace "
+                 f"a simpler one, so {result.model} is kept")
+    return text
+
+
+def set_aside_lines(result: FitResult) -> list[str]:
+    """One line per candidate set aside: "form: why"."""
+    return [f"{c.model}: {c.note if c.converged else 'did not converge'}" for c in set_aside(result)]
+
+
+def unique_lines(lines) -> list[str]:
+    """The lines in order, each once (a warning raised at two stages is shown once)."""
+    return list(dict.fromkeys(str(line) for line in lines))
 
 
 def criterion_name(result: FitResult) -> str:

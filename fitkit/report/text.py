@@ -14,8 +14,9 @@ import math
 from typing import Sequence
 
 from ..results import FitResult
-from .quantities import (NOT_DETERMINED, QuantityRow, criterion_name, format_quantity, interval_text,
-                         is_reportable, quantity_rows, runner_up, value_text)
+from .quantities import COMPARISON_RMS, COMPARISON_RMS_MEANING, FINAL_RMS
+from .quantities import (NOT_DETERMINED, QuantityRow, delta_meaning, delta_name, format_quantity, interval_text,
+                         is_reportable, quantity_rows, runner_up_text, set_aside_lines, unique_lines, value_text)
 
 _SECTION_TITLES = {"parameter": "Fitted parameters", "derived": "Derived quantities",
                    "component": "Component values"}
@@ -56,7 +57,7 @@ def render_fit_text(result: FitResult, quiet: bool = False) -> str:
     if notes:
         blocks.append(notes)
     if result.warnings:
-        blocks.append("Warnings\n" + "\n".join(f"{_INDENT}! {w}" for w in result.warnings))
+        blocks.append("Warnings\n" + "\n".join(f"{_INDENT}! {w}" for w in unique_lines(result.warnings)))
     return "\n\n".join(blocks) + "\n"
 
 
@@ -122,22 +123,16 @@ def _header(result: FitResult) -> str:
         lines.append(("drive", f"square wave, edges every {format_quantity(period, 's')} "
                                f"({format_quantity(1.0 / period, 'Hz')}) on the file's time axis; if the "
                                "generator was set to another frequency, give --drive-frequency"))
-    other = runner_up(result)
-    if other is not None:
-        lines.append(("runner-up", _candidate_phrase(other, criterion_name(result))))
+    for i, line in enumerate(set_aside_lines(result)):
+        lines.append(("set aside" if i == 0 else "", line))
+    runner = runner_up_text(result)
+    if runner:
+        lines.append(("runner-up", runner))
     verdict = result.extra.get("verdict") if result.extra else None
     if verdict:
         lines.append(("verdict", str(verdict.get("overall", verdict)) if isinstance(verdict, dict)
                       else str(verdict)))
     return "Step-response fit\n" + "\n".join(_align([[k, v] for k, v in lines]))
-
-
-def _candidate_phrase(cand, crit: str) -> str:
-    if not cand.converged:
-        return f"{cand.model} (did not converge)"
-    if cand.delta is None or not math.isfinite(cand.delta):
-        return cand.model
-    return f"{cand.model} ({crit} {cand.delta:+.1f} against the chosen form)"
 
 
 def _quantity_table(title: str, rows: Sequence[QuantityRow], preferred: dict | None = None,
@@ -164,15 +159,16 @@ def _quantity_table(title: str, rows: Sequence[QuantityRow], preferred: dict | N
 
 
 def _candidates_table(result: FitResult) -> str:
-    crit = criterion_name(result)
-    table = [["form", "parameters", f"delta {crit}", "RMS residual", "note"]]
+    table = [["form", "parameters", delta_name(result), COMPARISON_RMS, "set aside because"]]
     for cand in result.selection:
         chosen = " (chosen)" if cand.model == result.model else ""
         delta = (f"{cand.delta:+.1f}" if cand.converged and cand.delta is not None
                  and math.isfinite(cand.delta) else "-")
         rms = format_quantity(cand.rms_residual, result.output_unit, 3) if cand.converged else "did not converge"
-        table.append([cand.model + chosen, str(cand.n_parameters), delta, rms, cand.note or ""])
-    return "Candidate forms\n" + "\n".join(_align(table))
+        note = "" if chosen or cand.note == "chosen" else cand.note
+        table.append([cand.model + chosen, str(cand.n_parameters), delta, rms, note])
+    notes = [f"{_INDENT}{delta_meaning(result)}", f"{_INDENT}{COMPARISON_RMS_MEANING}"]
+    return "Candidate forms\n" + "\n".join(_align(table) + notes)
 
 
 def _diagnostics_block(result: FitResult) -> str:
@@ -189,7 +185,7 @@ def _diagnostics_block(result: FitResult) -> str:
     rows = [
         ["samples fitted", f"{d.n_samples}{eff}"],
         *([["binned", str(result.extra["binning"])]] if result.extra.get("binning") else []),
-        ["residual RMS", rms],
+        [FINAL_RMS, rms],
         ["residual lag-1 correlation", f"{d.residual_lag1:.2f}" if math.isfinite(d.residual_lag1) else "n/a"],
         ["interval correction", d.correction or "none"],
         ["interval widening", widening],
@@ -235,4 +231,4 @@ def _circuit_notes(result: FitResult) -> str:
     chain = extra.get("chain_effect")
     if chain and chain.get("messages"):
         lines += ["measurement chain"] + [_INDENT + m for m in chain["messages"]]
-    return ("Circuit notes\n" + "\n".join(lines)) if lines else ""
+    return ("Circuit notes\n" + "\n".join(_INDENT + line for line in lines)) if lines else ""

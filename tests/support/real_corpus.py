@@ -26,7 +26,7 @@ import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from reference_paths import REAL_CAPTURES
+from support.reference_paths import REAL_CAPTURES
 
 
 @dataclass(frozen=True)

@@ -3,7 +3,7 @@ out for developers and CI. Tests that need it skip, naming this path, when it is
 
 from pathlib import Path
 
-REFERENCE = Path(__file__).resolve().parents[2] / "shared" / "reference"
+REFERENCE = Path(__file__).resolve().parents[3] / "shared" / "reference"
 REAL_CAPTURES = REFERENCE / "real-captures"
 NIST_STRD = REFERENCE / "nist-strd"
 
