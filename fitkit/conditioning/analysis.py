@@ -22,6 +22,7 @@ from ..results import json_number
 from ..units import format_value
 from .edges import (Edge, EdgeSearch, detect_edges, edge_sharpness, forced_edge, is_two_level,
                     pulse_leading_edges)
+from .glitches import lone_spikes, repaired
 from .levels import StateLevels, state_levels
 from .metrics import StepMetrics, step_metrics
 from .noise import NoiseEstimate, estimate_noise
@@ -204,6 +205,15 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
                                     path=capture.provenance.path or None,
                                     hint="remove or crop the rows with gaps before conditioning")
     out_noise = estimate_noise(out_ch.values)
+    spikes = lone_spikes(out_ch.values, out_noise.rms)
+    if spikes.size:
+        out_ch = replace(out_ch, values=repaired(out_ch.values, spikes))
+        if edge_ch.name == out_ch.name:
+            edge_ch = out_ch
+        at = ", ".join(format_value(float(capture.time[i]), "s") for i in spikes[:5])
+        decisions.append(f"{spikes.size} lone one-sample spike(s) in {out_ch.name!r} (at {at}) replaced by the "
+                         "mean of their neighbours: a glitch, not a response")
+    spike_note = decisions[-1] if spikes.size else ""
     edge_noise = out_noise if edge_ch is out_ch else estimate_noise(edge_ch.values)
     search, levels, neighbours = _edge_search(capture, edge_ch, edge_noise, edge_time)
     edges = search.edges
@@ -246,7 +256,7 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
     segments = tuple(replace(s, flags=s.flags + segment_flags(s, m, clipped=clipped, pulse=pulses,
                                                              first=i == 0 and s.averaged_edges == 1))
                      for i, (s, m) in enumerate(zip(segments, metrics)))
-    flags: list[str] = []
+    flags: list[str] = [spike_note] if spike_note else []
     if repeated:
         flags.append(f"{repeated} samples repeat the previous time stamp (times rounded in the file?); "
                      "edge and metric times are only as fine as the printed times")

@@ -100,7 +100,7 @@ def _tail_settled(t: np.ndarray, y: np.ndarray, tolerance: float) -> bool:
     return not (change > tolerance and abs(slope) > 4 * se)
 
 
-def _baseline_noise(t: np.ndarray, y: np.ndarray, quantised: bool) -> float:
+def _baseline_noise(t: np.ndarray, y: np.ndarray, quantised: bool, floor: float = 0.0) -> float:
     """Spread of the pre-edge samples about a straight line (V); NaN for under 32 samples.
 
     A window that starts at the capture's first sample can still hold the
@@ -114,7 +114,10 @@ def _baseline_noise(t: np.ndarray, y: np.ndarray, quantised: bool) -> float:
     first two thirds are measured on their own as well, and count when the
     whole is more than NOISE_BLOCKS_DISAGREE times noisier: the onset is known
     only to within 5 % of the step, so the last samples before it can hold the
-    start of a slowly leaving response.
+    start of a slowly leaving response. A part stands in for the whole only
+    down to ``floor`` (V: the channel's sample-to-sample estimate, which
+    band-limited noise can only lower): a stretch of identical rounded values
+    is not a measurement of the noise.
     """
     if y.size < 32:
         return float("nan")
@@ -129,13 +132,13 @@ def _baseline_noise(t: np.ndarray, y: np.ndarray, quantised: bool) -> float:
     head = max(32, (2 * y.size) // 3)
     whole, first = spread(t, y), spread(t[:head], y[:head])
     if whole > NOISE_BLOCKS_DISAGREE * first:  # the last third moves: signal, not noise
-        whole = first
+        whole = max(first, floor)
     n_blocks = int(min(NOISE_BLOCKS, y.size // NOISE_BLOCK_SAMPLES))
     if n_blocks < 2:
         return whole
     spreads = [spread(t[b], y[b]) for b in np.array_split(np.arange(y.size), n_blocks)]
     quietest = min(spreads)
-    return quietest if max(spreads) > NOISE_BLOCKS_DISAGREE * quietest else whole
+    return max(quietest, floor) if max(spreads) > NOISE_BLOCKS_DISAGREE * quietest else whole
 
 
 def describe_window(time: np.ndarray, output: np.ndarray, input: np.ndarray | None,
@@ -157,7 +160,8 @@ def describe_window(time: np.ndarray, output: np.ndarray, input: np.ndarray | No
     n_final = max(1, int(round(FINAL_FRACTION * post_y.size)))
     final = float(np.mean(post_y[-n_final:]))
 
-    noise = _baseline_noise(t[:pre_stop], y[:pre_stop], quantisation_step is not None)
+    floor = channel_noise if math.isfinite(channel_noise) else 0.0
+    noise = _baseline_noise(t[:pre_stop], y[:pre_stop], quantisation_step is not None, floor)
     if not np.isfinite(noise):
         noise = channel_noise
     if quantisation_step is not None and not noise >= quantisation_step / math.sqrt(12.0):

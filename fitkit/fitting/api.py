@@ -124,6 +124,8 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
     if candidates is None:
         chosen, scores, reason, sel_warn = _with_dead_time(chosen, scores, reason, sel_warn, cands, trial,
                                                          dt, select_kwargs)
+        chosen, scores, reason, sel_warn = _rescued(chosen, scores, reason, sel_warn, cands, trial,
+                                                    dt, select_kwargs)
     final = chosen.fit
     if coarse:
         refit = fit_form(segments, chosen.form, **kwargs)
@@ -407,6 +409,59 @@ def _with_dead_time(chosen: Candidate, scores, reason: str, sel_warn: list[str],
     rescored.append(CandidateScore(model=cand.form.name, converged=True, n_parameters=cand.fit.n_parameters,
                                    criterion=crit, delta=0.0, rms_residual=rms_residual(cand.fit), note="chosen"))
     return cand, tuple(rescored), reason, list(sel_warn) + [note]
+
+
+#: Forms fitted only when the usual candidates leave the capture undescribed (residuals far above
+#: the noise): a zero in the left half-plane (more overshoot than the poles give), a lead or lag
+#: network, a fourth pole. They then compete by the same rules, among those that describe it.
+RESCUE_CANDIDATES = ("underdamped-zero", "pole-zero", "four-real-pole")
+
+
+def _rescued(chosen: Candidate, scores, reason: str, sel_warn: list[str], cands: list[Candidate],
+             segments: Sequence[StepSegment], dt: float, kwargs: dict):
+    """When the chosen form does not describe the capture, the rarer forms of RESCUE_CANDIDATES are
+    fitted too; the one with the lowest AICc among those that are admissible and describe the
+    capture is chosen (said in the reason). They join ``cands`` either way, so a refusal can name
+    them as what would work."""
+    noise = capture_noise(segments)
+    if chosen.fit is None or assess(chosen.fit, noise, chosen.fit.correction.lag1).describes_data:
+        return chosen, scores, reason, sel_warn
+    tried = {c.form.name for c in cands}
+    describing = []
+    for name in RESCUE_CANDIDATES:
+        if name in tried or name not in FORMS:
+            continue
+        form = FORMS[name]
+        try:
+            ff = fit_form(segments, form, **kwargs)
+        except FitError:
+            continue
+        if not ff.converged:
+            continue
+        shape, _ = shape_estimates(ff, "covariance")
+        ok, why = admissibility(form, shape, dt)
+        cand = Candidate(form, ff, shape, ok, why)
+        cands.append(cand)
+        if ok and assess(ff, noise, ff.correction.lag1).describes_data:
+            describing.append(cand)
+    if not describing:
+        return chosen, scores, reason, sel_warn
+    inflation = min(c.fit.correction.variance_ratio for c in cands if c.admissible and c.fit is not None)
+    best = min(describing, key=lambda c: c.fit.aicc(inflation))
+    crit = best.fit.aicc(inflation)
+    ratio = assess(chosen.fit, noise, chosen.fit.correction.lag1).misfit_ratio
+    reason = (f"{best.form.name}: the usual candidates do not describe the capture ({chosen.form.name} left "
+              f"residuals {ratio:.1f} times the noise); of the forms tried then, it describes it with the "
+              f"lowest {CRITERION}")
+    rescored = [dataclasses.replace(sc, delta=sc.criterion - crit, note="" if sc.note == "chosen" else sc.note)
+                for sc in scores]
+    for c in cands:
+        if c.form.name in RESCUE_CANDIDATES and c.fit is not None:
+            c_crit = c.fit.aicc(inflation)
+            rescored.append(CandidateScore(model=c.form.name, converged=True, n_parameters=c.fit.n_parameters,
+                                           criterion=c_crit, delta=c_crit - crit, rms_residual=rms_residual(c.fit),
+                                           note="chosen" if c is best else c.note))
+    return best, tuple(rescored), reason, list(sel_warn)
 
 
 def _alternative_forms(chosen: Form, candidates: Sequence[Candidate],
