@@ -333,5 +333,6 @@ def _summary(verdict: str, quantities, diagnosis: Diagnosis | None, design: Desi
     if diagnosis is not None and verdict != "pass" and diagnosis.suspects:
         lead = [s for s in diagnosis.suspects if s.tied]
         text = " or ".join(s.part + (f" {_fmt(s.value, s.unit)}" if s.value is not None else "") for s in lead)
-        bits.append(f"suspect {text}: {lead[0].pattern}")
+        bits.append(f"suspect {text}: {lead[0].pattern}" if lead else
+                    "no single part or swap explains the capture")
     return "; ".join(bits)

@@ -80,6 +80,12 @@ class HypothesisFit:
         return math.sqrt(self.rss / self.n) if self.n and math.isfinite(self.rss) else math.inf
 
 
+def unexplained(part: str) -> HypothesisFit:
+    """The single-part hypothesis of ``part`` when no fit of it could be made: it does not
+    explain the capture (ranked last, no value)."""
+    return HypothesisFit("single part", (part,), {}, {}, math.inf, 0, 0, None, runaway=True)
+
+
 def _residual_sum(result: FitResult) -> tuple[float, int]:
     """RSS (V^2) and samples of a FitResult's fitted segments."""
     rss = float(sum(np.sum((s.data - s.fitted) ** 2) for s in result.segments))

@@ -11,6 +11,8 @@ inconclusive check; warnings last.
 
 from __future__ import annotations
 
+import math
+
 from ..units import format_interval, format_value
 
 QUANTITY_WORDS = {"tau": "time constant", "f0": "natural frequency", "Q": "quality factor", "gain": "DC gain"}
@@ -65,9 +67,11 @@ def render_check_text(result) -> str:
         lines.append(title + " (evidence: AICc above the best, scaled for correlated noise;"
                      " below 2 = equally good; '=' marks the tied leaders)")
         for i, s in enumerate(result.suspects, start=1):
-            value = f"{_v(s.value, s.unit)} {_iv(s.ci95, s.unit)}" if s.value is not None else "(values exchanged)"
+            value = (f"{_v(s.value, s.unit)} {_iv(s.ci95, s.unit)}" if s.value is not None
+                     else "(values exchanged)" if s.kind == "swap" else "-")
             lead = "=" if s.tied else " "
-            lines.append(f"  {i:>2}{lead} {s.part:<12} {value:<40} evidence {s.evidence:8.1f}   {s.pattern}")
+            evidence = f"{s.evidence:8.1f}" if math.isfinite(s.evidence) else f"{'-':>8}"
+            lines.append(f"  {i:>2}{lead} {s.part:<12} {value:<40} evidence {evidence}   {s.pattern}")
         if result.diagnosis is not None:
             lines += [f"  - {m}" for m in result.diagnosis.messages]
         lines.append("")
