@@ -105,6 +105,9 @@ class FitDiagnostics:
     residual_lag1 is the lag-1 autocorrelation of the residuals.
     ci_widening is the factor applied to covariance intervals to account for
     correlated residuals (1.0 when none), described in ``correction``.
+    n_parameters: the parameters the engine fitted (shape, levels, edge times and
+    delays), the count its criterion uses (fitkit.fitting.information.corrected_aic);
+    every caller that scores fits reads it here.
     """
 
     n_samples: int
@@ -116,9 +119,11 @@ class FitDiagnostics:
     correction: str
     structured_residual: bool = False
     criterion_name: str = "AICc"
+    n_parameters: int = 0
 
     def to_dict(self) -> dict[str, Any]:
-        return {"n_samples": self.n_samples, "rms_residual": json_number(self.rms_residual),
+        return {"n_samples": self.n_samples, "n_parameters": self.n_parameters,
+                "rms_residual": json_number(self.rms_residual),
                 "noise_rms": json_number(self.noise_rms), "residual_lag1": json_number(self.residual_lag1),
                 "effective_samples": json_number(self.effective_samples),
                 "ci_widening": json_number(self.ci_widening), "correction": self.correction,

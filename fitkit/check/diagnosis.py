@@ -43,6 +43,7 @@ from ..circuits import identifiability
 from ..circuits.preferred import candidates_around
 from ..conditioning.segment import StepSegment
 from ..errors import FitError
+from ..fitting.api import capture_noise
 from ..fitting.information import has_measured_input
 from ..results import Estimate, json_number
 from .design import Design, PartSpec
@@ -179,13 +180,13 @@ def _eng(v: float, unit: str = "") -> str:
 
 
 def _noise(fits: Sequence[HypothesisFit], segments: Sequence[StepSegment]) -> float:
-    """The output noise (V) of the engine's fit diagnostics, else the segments' median estimate."""
+    """The output noise (V) of the engine's fit diagnostics, else the engine's own
+    estimate from the segments (fitkit.fitting.api.capture_noise)."""
     for h in fits:
         d = h.result.diagnostics if h.result is not None else None
         if d is not None and math.isfinite(d.noise_rms) and d.noise_rms > 0:
             return float(d.noise_rms)
-    values = sorted(s.noise_rms for s in segments if math.isfinite(s.noise_rms) and s.noise_rms > 0)
-    return values[len(values) // 2] if values else math.nan
+    return capture_noise(segments)
 
 
 def _evidence_scale(fits: Sequence[HypothesisFit]) -> float:

@@ -32,7 +32,7 @@ import numpy as np
 from ..conditioning.segment import StepSegment
 from ..errors import CircuitError, FitError
 from ..fitting import fit_segments
-from ..fitting.information import corrected_aic
+from ..fitting.information import corrected_aic, residual_sum
 from ..part_values.direct import direct_fits, scaled_circuit_form
 from ..part_values.problem import prepare_problem
 from ..results import Estimate, FitResult
@@ -86,12 +86,6 @@ def unexplained(part: str) -> HypothesisFit:
     return HypothesisFit("single part", (part,), {}, {}, math.inf, 0, 0, None, runaway=True)
 
 
-def _residual_sum(result: FitResult) -> tuple[float, int]:
-    """RSS (V^2) and samples of a FitResult's fitted segments."""
-    rss = float(sum(np.sum((s.data - s.fitted) ** 2) for s in result.segments))
-    return rss, int(sum(s.data.size for s in result.segments))
-
-
 def _ran_away(design: Design, estimates: Mapping[str, Estimate]) -> bool:
     for part, est in estimates.items():
         nominal = design.parts[part].nominal if part in design.parts else None
@@ -116,9 +110,8 @@ def fit_fixed(design: Design, segments: Sequence[StepSegment], values: Mapping[s
                                   correlation="off", derived=False, file=file)
     except FIT_ERRORS:
         return None
-    rss, n = _residual_sum(result)
-    k = result.selection[0].n_parameters if result.selection else len(result.parameters) - 1
-    return HypothesisFit(kind, tuple(parts), dict(values), {}, rss, n, k, result)
+    rss, n = residual_sum(result)
+    return HypothesisFit(kind, tuple(parts), dict(values), {}, rss, n, result.diagnostics.n_parameters, result)
 
 
 def fit_free(design: Design, segments: Sequence[StepSegment], free: Sequence[str],

@@ -310,7 +310,8 @@ def _diagnostics(ff: FormFit, segments: Sequence[StepSegment]):
         correction += f"; intervals widened up to x{widening:.2f}"
     diag = FitDiagnostics(n_samples=fit.n, rms_residual=rms, noise_rms=expected, residual_lag1=corr.lag1,
                           effective_samples=fit.n / corr.variance_ratio, ci_widening=widening,
-                          correction=correction, structured_residual=structured, criterion_name=CRITERION)
+                          correction=correction, structured_residual=structured, criterion_name=CRITERION,
+                          n_parameters=ff.n_parameters)
     return diag, warnings, adequacy
 
 
