@@ -278,12 +278,12 @@ def _default_limits(envelope: Envelope, measured: bool) -> dict[str, tuple[float
 def _fitted_edge(fit: FitResult, index: int, seg) -> tuple[float, float, float | None]:
     """(edge time s, baseline V, output step V or None) of edge ``index`` as the
     behavioural fit placed it; the conditioning's values where the fit has none."""
-    edges = fit.extra.get("edges", ()) if isinstance(fit.extra, dict) else ()
+    edges = fit.details.edges
     levels = edges[index] if index < len(edges) else {}
 
     def value(name: str):
-        v = levels.get(name, {}).get("value") if isinstance(levels.get(name), dict) else None
-        return float(v) if v is not None and math.isfinite(v) else None
+        est = levels.get(name)
+        return float(est.value) if est is not None and math.isfinite(est.value) else None
 
     t0, baseline, step = value("t0"), value("baseline"), value("step")
     return (seg.edge_time if t0 is None else t0, seg.baseline if baseline is None else baseline, step)

@@ -273,23 +273,27 @@ def _clean_roots(r: np.ndarray) -> np.ndarray:
 UNEVEN_DIRECT = 64
 #: Points per unit of scaled time (and at least this many in all) of that grid.
 UNEVEN_GRID_DENSITY = 1000
+#: ... and at most this many (times spanning more than UNEVEN_GRID_MAX / UNEVEN_GRID_DENSITY
+#: time scales, a response far slower or faster than its record, take one expm per sample).
+UNEVEN_GRID_MAX = 200_000
 
 
 def _propagate(M: np.ndarray, tau: np.ndarray, n: int) -> np.ndarray:
     """States x(tau) (rows) of x' = A x + B, x(0) = 0, with M = [[A, B], [0, 0]].
 
     Evenly spaced times are propagated by powers of one step's matrix exponential.
-    More than UNEVEN_DIRECT uneven times (tau >= 0, in units of the time scale)
-    are read off a cubic spline through an even grid from 0 with at least
-    UNEVEN_GRID_DENSITY points per unit: the states are smooth for tau >= 0 and
+    More than UNEVEN_DIRECT uneven times (tau >= 0, in units of the time scale,
+    spanning at most UNEVEN_GRID_MAX / UNEVEN_GRID_DENSITY units) are read off a
+    cubic spline through an even grid from 0 with UNEVEN_GRID_DENSITY points per
+    unit (at least that many in all): the states are smooth for tau >= 0 and
     the spline's error is of order h^4 / 384 times the fourth derivative, h <= 1/1000
     (de Boor, A Practical Guide to Splines, 1978, ch. IV), where one matrix
     exponential per sample cost seconds per fit."""
     steps = np.diff(tau)
     even = tau.size > 2 and np.allclose(steps, steps[0], rtol=1e-9, atol=0) and steps[0] > 0
-    if not even and tau.size > UNEVEN_DIRECT and tau.min() >= 0 and tau.max() > 0:
+    points = int(max(UNEVEN_GRID_DENSITY * tau.max(), UNEVEN_GRID_DENSITY)) + 1 if tau.size else 0
+    if not even and UNEVEN_DIRECT < tau.size and points <= UNEVEN_GRID_MAX and tau.min() >= 0 and tau.max() > 0:
         from scipy.interpolate import CubicSpline
-        points = int(max(UNEVEN_GRID_DENSITY * tau.max(), UNEVEN_GRID_DENSITY)) + 1
         grid = np.linspace(0.0, float(tau.max()), points)
         return CubicSpline(grid, _propagate(M, grid, n), axis=0)(tau)
     if not even:
