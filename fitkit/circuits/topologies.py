@@ -108,10 +108,6 @@ TOPOLOGIES: dict[str, Topology] = {t.name: t for t in (
 )}
 
 
-def topology_names() -> tuple[str, ...]:
-    return tuple(TOPOLOGIES)
-
-
 def get_topology(name: str) -> Topology:
     """The library entry ``name``; CircuitError naming the choices when unknown."""
     key = name.strip().lower()
