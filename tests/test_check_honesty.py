@@ -133,3 +133,17 @@ def test_output_only_capture_is_not_given_a_measured_input():
     only = Capture.from_arrays(cap.time, {"output": cap.channel("output").values})
     r = check_capture(only, loads_design(SK_DESIGN_TOML), envelope_trials=20)
     assert not r.measured_input and r.channels["input"] is None
+
+
+def test_an_equal_stage_buffered_rc_is_fitted_with_real_poles_and_never_fails_nominal():
+    # two buffered equal RC stages: H = 1 / (1 + s RC)^2, a double real pole, Q = 1/2 exactly
+    # (second-order algebra: Q = sqrt(a2) / a1 = RC / 2RC); the second-order form let noise carry
+    # Q above 1/2 and fail a nominal board; the two-real-pole form keeps Q <= 1/2
+    design = design_for("rc-buffered-2")
+    values = design.nominal_values()
+    cap = simulate_board("rc-buffered-2", values, seed=11, bits=8)
+    only = Capture.from_arrays(cap.time, {"output": cap.channel("output").values})
+    r = check_capture(only, design, envelope_trials=20)
+    assert r.fit.model == "two-real-pole"
+    assert r.fit.quantity("Q").value <= 0.5 + 1e-12
+    assert r.verdict != "fail" and not any(c.verdict == "outside" for c in r.components)
