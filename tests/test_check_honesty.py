@@ -147,3 +147,19 @@ def test_an_equal_stage_buffered_rc_is_fitted_with_real_poles_and_never_fails_no
     assert r.fit.model == "two-real-pole"
     assert r.fit.quantity("Q").value <= 0.5 + 1e-12
     assert r.verdict != "fail" and not any(c.verdict == "outside" for c in r.components)
+
+
+def test_a_decade_low_capacitor_of_a_ringing_rlc_is_found_from_either_side():
+    # series RLC, output across C, C a decade low: f0 = 1 / (2 pi sqrt(L C)) rises sqrt(10) x
+    # (textbook second-order algebra); the single-part fit from nominal C can climb to a local
+    # minimum above nominal, so both decades are tried, and C1 alone at 0.1 x nominal leads
+    design = design_for("rlc-series-c")
+    values = design.nominal_values()
+    values["C1"] *= 0.1
+    cap = simulate_board("rlc-series-c", values, seed=217, bits=12)
+    only = Capture.from_arrays(cap.time, {"output": cap.channel("output").values})
+    r = check_capture(only, design, envelope_trials=20)
+    lead = r.suspects[0]
+    assert lead.parts == ("C1",) and lead.tied
+    assert lead.ci95[0] <= values["C1"] <= lead.ci95[1] or abs(lead.value / values["C1"] - 1) < 0.02
+    assert "a decade low" in lead.pattern

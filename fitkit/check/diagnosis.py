@@ -160,9 +160,9 @@ def fault_pattern(spec: PartSpec, value: float, ci95: tuple[float, float] | None
     for g in on_grid:
         if math.isclose(g, below, rel_tol=1e-9) or math.isclose(g, above, rel_tol=1e-9):
             word = "up" if g > spec.nominal else "down"
-            return f"the neighbouring {spec.series} value {word} ({_eng(g)}): a wrong-value part"
+            return f"the neighbouring {spec.series} value {word} ({_eng(g, UNITS[spec.kind])}): a wrong-value part"
     if on_grid:
-        return f"another {spec.series} value ({_eng(on_grid[0])}): a wrong-value part"
+        return f"another {spec.series} value ({_eng(on_grid[0], UNITS[spec.kind])}): a wrong-value part"
     pct = 100 * (ratio - 1)
     return f"drifted {pct:+.0f} % beyond tolerance, off the {spec.series} grid (ageing or damage)"
 

@@ -147,15 +147,17 @@ def fit_free(design: Design, segments: Sequence[StepSegment], free: Sequence[str
 def fit_single(design: Design, segments: Sequence[StepSegment], part: str, measured: bool,
                noise: float, explained_ratio: float, file: str = "") -> HypothesisFit | None:
     """One part free, the others at nominal: from the nominal value first, then, when
-    that does not explain the capture, from a decade off in the direction the fit
-    moved (a decade-off part is the commonest assembly fault, and the fit can stop in
-    a nearer local minimum on the way)."""
+    that does not explain the capture, from a decade off on either side, the side the
+    fit moved to first (a decade-off part is the commonest assembly fault, and the fit
+    can stop in a nearer local minimum on the way, on either side: a series RLC with C
+    a decade low rings faster, and a fit from nominal C can climb to a local minimum
+    above it)."""
     nominal = design.parts[part].nominal
     best = fit_free(design, segments, [part], [{part: nominal}], measured, kind="single part", file=file)
     if best is not None and not best.runaway and best.rms <= explained_ratio * noise:
         return best
-    moved_down = best is not None and best.values.get(part, nominal) < nominal
-    factors = (0.1,) if moved_down else (10.0,) if best is not None and not best.runaway else (0.1, 10.0)
+    moved_up = best is not None and not best.runaway and best.values.get(part, nominal) > nominal
+    factors = (10.0, 0.1) if moved_up else (0.1, 10.0)
     for factor in factors:
         other = fit_free(design, segments, [part], [{part: nominal * factor}], measured, kind="single part",
                          file=file)
