@@ -204,16 +204,17 @@ def choose(args) -> tuple[list[tuple], int]:
     full = grid()
     pool = [c for c in (covering(args.nominal_repeats) if args.cover else full) if c[3] in kinds]
     chosen = random.Random(args.seed).sample(pool, min(args.sample, len(pool))) if args.sample else pool
+    chosen = list(enumerate(chosen))[args.start:]
     return (chosen[:args.limit] if args.limit else chosen), len(full)
 
 
-def run_cells(cells: list[tuple], seed: int, workers: int, budget: float, log: Path) -> list[dict]:
-    """Check every cell (on ``workers`` processes), one JSON line per cell appended to ``log``
-    as it ends; the cell's seed is its index, so the rows do not depend on the workers."""
+def run_cells(cells: list[tuple[int, tuple]], seed: int, workers: int, budget: float, log: Path) -> list[dict]:
+    """Check every (index, cell) (on ``workers`` processes), one JSON line per cell appended to
+    ``log`` as it ends; a cell's seed is its index among the chosen cells, so the rows do not
+    depend on the workers or on where a run started (--start)."""
     rows, start = [], time.perf_counter()
-    log.write_text("")
     with tempfile.TemporaryDirectory() as tmp, ProcessPoolExecutor(max_workers=workers) as pool:
-        pending = {pool.submit(run_cell, cell, 1000 * seed + i, Path(tmp)) for i, cell in enumerate(cells)}
+        pending = {pool.submit(run_cell, cell, 1000 * seed + i, Path(tmp)) for i, cell in cells}
         for done in as_completed(pending):
             row = done.result()
             rows.append(row)
@@ -264,6 +265,8 @@ def main() -> None:
     parser.add_argument("--nominal-repeats", type=int, default=1,
                         help="nominal boards per topology and capture kind in the covering subset")
     parser.add_argument("--sample", type=int, default=0, help="check a random sample of this many cells (0: all)")
+    parser.add_argument("--start", type=int, default=0,
+                        help="skip the first N chosen cells (continue a run; the rows log is appended to)")
     parser.add_argument("--limit", type=int, default=0, help="check only the first N chosen cells (0: all)")
     parser.add_argument("--budget", type=float, default=0.0, help="stop after this many seconds (0: none)")
     parser.add_argument("--workers", type=int, default=1, help="processes checking cells at once")
@@ -274,7 +277,12 @@ def main() -> None:
     out = ROOT / "benchmarks" / "results"
     out.mkdir(parents=True, exist_ok=True)
     start = time.perf_counter()
-    rows = run_cells(cells, args.seed, max(args.workers, 1), args.budget, out / "check.rows.jsonl")
+    log = out / "check.rows.jsonl"
+    if not args.start:
+        log.write_text("")
+    rows = run_cells(cells, args.seed, max(args.workers, 1), args.budget, log)
+    if args.start:   # the report covers every row of the log: the earlier part of the run too
+        rows = [json.loads(line) for line in log.read_text().splitlines() if line.strip()]
     print("\n".join(write_report(rows, n_grid, time.perf_counter() - start, max(args.workers, 1), args.cover)))
 
 
