@@ -2,9 +2,16 @@
 kind x time unit x ADC bits, plus nominal boards of each kind.
 
     python benchmarks/bench_check.py                 # the full grid (hours on two cores)
+    python benchmarks/bench_check.py --cover         # a covering subset: every level of every factor
+    python benchmarks/bench_check.py --cover --workers 2
     python benchmarks/bench_check.py --sample 24     # a reproducible random sample of the grid
     python benchmarks/bench_check.py --sample 24 --budget 240   # ... stopping after 240 s
     python benchmarks/bench_check.py --kinds "measured input,output only" --sample 40
+
+The covering subset keeps every board (topology x part x fault, swaps, nominal)
+in every capture kind, and rotates the time unit and the ADC bits across those
+cells, so every level of every factor appears and each capture kind sees every
+time unit and both bit depths; it is a sixth of the full grid.
 
 Faults: a decade low, the neighbouring E24 value up, drifted 30 % low, and two
 parts of one kind with different nominal values swapped. Capture kinds: a
@@ -17,7 +24,10 @@ circuit textbooks simulated with scipy.signal.lsim, 3 mV rms band-limited
 noise), independent of fitkit's circuit code.
 
 Figures per capture kind: the share of faulty boards whose wrong part is the
-first suspect or a tied leader (or whose swap is named), the share whose
+first suspect (alone or first of tied leaders), whose wrong part is first or
+tied with the first where the two are interchangeable at this node (the same
+response for any value of one; fitkit.check.ties), and whose wrong part is
+among the tied leaders at all (or whose swap is named); the share whose
 implied value's 95 % interval holds the truth, the share of nominal boards
 that fail or list a part outside, the number of reported values at a search
 bound, and the mean seconds per check. Writes benchmarks/results/check.json
@@ -34,6 +44,7 @@ import random
 import sys
 import tempfile
 import time
+from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
 
 import numpy as np
@@ -47,6 +58,7 @@ from test_check_diagnosis import design_for, faulty_value  # noqa: E402
 
 from fitkit.check import check_capture  # noqa: E402
 from fitkit.check.hypotheses import PLAUSIBLE_SPAN  # noqa: E402
+from fitkit.check.ties import tie_reason  # noqa: E402
 from fitkit.circuits import TOPOLOGIES  # noqa: E402
 from fitkit.io import load_capture  # noqa: E402
 
@@ -57,18 +69,32 @@ BITS = (8, 12)
 NOISE = 3e-3
 
 
-def grid() -> list[tuple]:
-    """Every cell: (topology, fault, parts, capture kind, time unit, bits)."""
-    cells = []
+def boards(nominal_repeats: int = 1) -> list[tuple]:
+    """Every board: (topology, fault, parts); faulty ones, then ``nominal_repeats`` nominal
+    ones per topology (each checked on its own noise)."""
+    out = []
     for topo, t in TOPOLOGIES.items():
         parts = [(p, k) for p, k, _, _ in t.parts if k != "amplifier"]
         design = design_for(topo)
-        faulty = [(f, (p,)) for p, _ in parts for f in FAULTS[:3]]
-        faulty += [("swap", (a, b)) for (a, ka), (b, kb) in itertools.combinations(parts, 2)
-                   if ka == kb and abs(design.parts[a].nominal / design.parts[b].nominal - 1) > 0.01]
-        for (fault, which), kind, unit, bits in itertools.product(faulty + [("nominal", ())], KINDS, UNITS, BITS):
-            cells.append((topo, fault, which, kind, unit, bits))
-    return cells
+        out += [(topo, f, (p,)) for p, _ in parts for f in FAULTS[:3]]
+        out += [(topo, "swap", (a, b)) for (a, ka), (b, kb) in itertools.combinations(parts, 2)
+                if ka == kb and abs(design.parts[a].nominal / design.parts[b].nominal - 1) > 0.01]
+        out += [(topo, "nominal", ())] * nominal_repeats
+    return out
+
+
+def grid() -> list[tuple]:
+    """Every cell: (topology, fault, parts, capture kind, time unit, bits)."""
+    return [(*board, kind, unit, bits) for board, kind, unit, bits in itertools.product(boards(), KINDS, UNITS, BITS)]
+
+
+def covering(nominal_repeats: int = 1) -> list[tuple]:
+    """Every board in every capture kind; the time unit and the bits rotated across the cells
+    (board b in kind k: unit (b + k) mod 3, bits (b div 3 + k) mod 2), so each kind meets
+    every unit, both bit depths and every pair of them."""
+    units = list(UNITS)
+    return [(*board, kind, units[(b + k) % len(units)], BITS[(b // len(units) + k) % len(BITS)])
+            for b, board in enumerate(boards(nominal_repeats)) for k, kind in enumerate(KINDS)]
 
 
 def board_values(topo: str, fault: str, which: tuple) -> dict[str, float]:
@@ -131,12 +157,26 @@ def run_cell(cell: tuple, seed: int, folder: Path) -> dict:
     leaders = [s for s in r.suspects if s.tied]
     if fault == "swap":
         out["leads"] = any(s.kind == "swap" and set(s.parts) == set(which) for s in leaders)
+        out["first"] = out["interchangeable"] = bool(leaders) and leaders[0].kind == "swap" \
+            and set(leaders[0].parts) == set(which)
         return out
     part = which[0]
     lead = next((s for s in leaders if s.parts == (part,)), None)
     out["leads"] = lead is not None
+    out["first"] = bool(leaders) and leaders[0].parts == (part,)
+    out["interchangeable"] = out["first"] or (lead is not None and _interchangeable_with_first(
+        design_for(topo), leaders[0], part, r.measured_input))
     out["holds"] = bool(lead is not None and lead.ci95 and lead.ci95[0] <= values[part] <= lead.ci95[1])
     return out
+
+
+def _interchangeable_with_first(design, first, part: str, measured: bool) -> bool:
+    """The right part is tied with the first leader, and the two give the same response for
+    any value of one (fitkit.check.ties): no capture of this node can tell them apart."""
+    if first.kind != "single part" or first.value is None:
+        return False
+    reason = tie_reason(design, first.parts[0], first.value, part, measured)
+    return bool(reason is not None and reason.interchangeable)
 
 
 def summarise(rows: list[dict]) -> dict:
@@ -147,7 +187,9 @@ def summarise(rows: list[dict]) -> dict:
         single = [r for r in faulty if r["cell"][1] != "swap"]
         nominal = [r for r in mine if r["cell"][1] == "nominal"]
         share = lambda xs, key: (sum(bool(x.get(key)) for x in xs) / len(xs)) if xs else None  # noqa: E731
-        table[kind] = {"faulty": len(faulty), "right_part_leads": share(faulty, "leads"),
+        table[kind] = {"faulty": len(faulty), "right_part_first": share(faulty, "first"),
+                       "right_part_first_or_interchangeable": share(faulty, "interchangeable"),
+                       "right_part_among_tied_leaders": share(faulty, "leads"),
                        "interval_holds_truth": share(single, "holds"), "nominal": len(nominal),
                        "nominal_flagged": share(nominal, "flagged"),
                        "values_at_bound": sum(r["at_bound"] for r in mine),
@@ -156,45 +198,92 @@ def summarise(rows: list[dict]) -> dict:
     return table
 
 
+def choose(args) -> tuple[list[tuple], int]:
+    """(cells to check in order, size of the full grid) for the command's options."""
+    kinds = [k.strip() for k in args.kinds.split(",")]
+    full = grid()
+    pool = [c for c in (covering(args.nominal_repeats) if args.cover else full) if c[3] in kinds]
+    chosen = random.Random(args.seed).sample(pool, min(args.sample, len(pool))) if args.sample else pool
+    chosen = list(enumerate(chosen))[args.start:]
+    return (chosen[:args.limit] if args.limit else chosen), len(full)
+
+
+def run_cells(cells: list[tuple[int, tuple]], seed: int, workers: int, budget: float, log: Path) -> list[dict]:
+    """Check every (index, cell) (on ``workers`` processes), one JSON line per cell appended to
+    ``log`` as it ends; a cell's seed is its index among the chosen cells, so the rows do not
+    depend on the workers or on where a run started (--start)."""
+    rows, start = [], time.perf_counter()
+    with tempfile.TemporaryDirectory() as tmp, ProcessPoolExecutor(max_workers=workers) as pool:
+        pending = {pool.submit(run_cell, cell, 1000 * seed + i, Path(tmp)) for i, cell in cells}
+        for done in as_completed(pending):
+            row = done.result()
+            rows.append(row)
+            with log.open("a") as f:
+                f.write(json.dumps(row) + "\n")
+            if budget and time.perf_counter() - start > budget:
+                for other in pending:
+                    other.cancel()
+                break
+    return rows
+
+
+def write_report(rows: list[dict], n_grid: int, elapsed: float, workers: int, cover: bool) -> list[str]:
+    table = summarise(rows)
+    out = ROOT / "benchmarks" / "results"
+    (out / "check.json").write_text(json.dumps({"grid_cells": n_grid, "covering_subset": cover, "checked": len(rows),
+                                                "seconds": elapsed, "workers": workers,
+                                                "by_capture_kind": table, "rows": rows}, indent=2))
+    pct = lambda x: "-" if x is None else f"{x:.0%}"  # noqa: E731
+    per = elapsed * workers / max(len(rows), 1)
+    lines = ["# Board-check study", "",
+             f"{len(rows)} of {n_grid} grid cells checked ({'covering subset' if cover else 'grid'}) in "
+             f"{elapsed:.0f} s on {workers} worker(s) ({per:.1f} worker-s a check; the full grid would take "
+             f"about {n_grid * per / 3600:.1f} worker-hours at that rate).", "",
+             "| capture | faulty | right part first | first or interchangeable tie | among tied leaders | "
+             "interval holds truth | nominal | nominal flagged | values at a bound | errors | s per check |",
+             "| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |"]
+    lines += [f"| {k} | {r['faulty']} | {pct(r['right_part_first'])} | "
+              f"{pct(r['right_part_first_or_interchangeable'])} | {pct(r['right_part_among_tied_leaders'])} | "
+              f"{pct(r['interval_holds_truth'])} | {r['nominal']} | {pct(r['nominal_flagged'])} | "
+              f"{r['values_at_bound']} | {r['errors']} | "
+              f"{'-' if r['seconds_per_check'] is None else format(r['seconds_per_check'], '.1f')} |"
+              for k, r in table.items()]
+    misses = [r for r in rows if r.get("leads") is False or r.get("holds") is False or r.get("flagged")
+              or "error" in r]
+    lines += ["", "Misses (faulty boards not led by their part or whose interval misses the truth, "
+              "nominal boards flagged, errors):", ""]
+    lines += [f"- {' / '.join(r['cell'])}: " + (r.get("error") or f"{r.get('verdict')}"
+              + ("" if r.get("leads", True) else ", not a leader")
+              + ("" if r.get("holds", True) else ", interval misses the truth")) for r in misses] or ["- none"]
+    (out / "check.md").write_text("\n".join(lines) + "\n")
+    return lines
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--cover", action="store_true", help="the covering subset instead of the full grid")
+    parser.add_argument("--nominal-repeats", type=int, default=1,
+                        help="nominal boards per topology and capture kind in the covering subset")
     parser.add_argument("--sample", type=int, default=0, help="check a random sample of this many cells (0: all)")
+    parser.add_argument("--start", type=int, default=0,
+                        help="skip the first N chosen cells (continue a run; the rows log is appended to)")
+    parser.add_argument("--limit", type=int, default=0, help="check only the first N chosen cells (0: all)")
     parser.add_argument("--budget", type=float, default=0.0, help="stop after this many seconds (0: none)")
+    parser.add_argument("--workers", type=int, default=1, help="processes checking cells at once")
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--kinds", default=",".join(KINDS), help="capture kinds, comma-separated")
     args = parser.parse_args()
-    kinds = [k.strip() for k in args.kinds.split(",")]
-    cells = grid()
-    pool = [c for c in cells if c[3] in kinds]
-    chosen = random.Random(args.seed).sample(pool, min(args.sample, len(pool))) if args.sample else pool
-    rows, start = [], time.perf_counter()
-    with tempfile.TemporaryDirectory() as tmp:
-        for i, cell in enumerate(chosen):
-            if args.budget and time.perf_counter() - start > args.budget:
-                break
-            rows.append(run_cell(cell, 1000 * args.seed + i, Path(tmp)))
-    elapsed = time.perf_counter() - start
-    table = summarise(rows)
+    cells, n_grid = choose(args)
     out = ROOT / "benchmarks" / "results"
     out.mkdir(parents=True, exist_ok=True)
-    (out / "check.json").write_text(json.dumps({"grid_cells": len(cells), "checked": len(rows), "seconds": elapsed,
-                                                "by_capture_kind": table, "rows": rows}, indent=2))
-    pct = lambda x: "-" if x is None else f"{x:.0%}"  # noqa: E731
-    lines = ["# Board-check study", "",
-             f"{len(rows)} of {len(cells)} grid cells checked in {elapsed:.0f} s "
-             f"({elapsed / max(len(rows), 1):.1f} s a check; the full grid would take about "
-             f"{len(cells) * elapsed / max(len(rows), 1) / 3600:.1f} h at that rate).", "",
-             "| capture | faulty | right part leads | interval holds truth | nominal | nominal flagged | "
-             "values at a bound | errors | s per check |", "| --- | --- | --- | --- | --- | --- | --- | --- | --- |"]
-    lines += [f"| {k} | {r['faulty']} | {pct(r['right_part_leads'])} | {pct(r['interval_holds_truth'])} | "
-              f"{r['nominal']} | {pct(r['nominal_flagged'])} | {r['values_at_bound']} | {r['errors']} | "
-              f"{'-' if r['seconds_per_check'] is None else format(r['seconds_per_check'], '.1f')} |"
-              for k, r in table.items()]
-    misses = [r for r in rows if r.get("leads") is False or r.get("flagged") or "error" in r]
-    lines += ["", "Misses (faulty boards not led by their part, nominal boards flagged, errors):", ""]
-    lines += [f"- {' / '.join(r['cell'])}: {r.get('error') or r.get('verdict')}" for r in misses] or ["- none"]
-    (out / "check.md").write_text("\n".join(lines) + "\n")
-    print("\n".join(lines))
+    start = time.perf_counter()
+    log = out / "check.rows.jsonl"
+    if not args.start:
+        log.write_text("")
+    rows = run_cells(cells, args.seed, max(args.workers, 1), args.budget, log)
+    if args.start:   # the report covers every row of the log: the earlier part of the run too
+        rows = [json.loads(line) for line in log.read_text().splitlines() if line.strip()]
+    print("\n".join(write_report(rows, n_grid, time.perf_counter() - start, max(args.workers, 1), args.cover)))
 
 
 if __name__ == "__main__":

@@ -72,7 +72,7 @@ t3 = time.perf_counter()
 tau = r.parameters.get("tau")
 print(json.dumps({"module_import_s": t1 - t0, "load_s": t2 - t1, "fit_s": t3 - t2, "model": r.model,
                   "tau": tau and tau.value, "tau_stderr": tau and tau.stderr,
-                  "bin_size": r.extra.get("bin_size")}))
+                  "bin_size": r.details.bin_size}))
 """
 
 READ_CSV_CHILD = r"""

@@ -114,6 +114,9 @@ class FitDiagnostics:
     residual_lag1 is the lag-1 autocorrelation of the residuals.
     ci_widening is the factor applied to covariance intervals to account for
     correlated residuals (1.0 when none), described in ``correction``.
+    n_parameters: the parameters the engine fitted (shape, levels, edge times and
+    delays), the count its criterion uses (fitkit.fitting.information.corrected_aic);
+    every caller that scores fits reads it here.
     """
 
     n_samples: int
@@ -125,9 +128,11 @@ class FitDiagnostics:
     correction: str
     structured_residual: bool = False
     criterion_name: str = "AICc"
+    n_parameters: int = 0
 
     def to_dict(self) -> dict[str, Any]:
-        return {"n_samples": self.n_samples, "rms_residual": json_number(self.rms_residual),
+        return {"n_samples": self.n_samples, "n_parameters": self.n_parameters,
+                "rms_residual": json_number(self.rms_residual),
                 "noise_rms": json_number(self.noise_rms), "residual_lag1": json_number(self.residual_lag1),
                 "effective_samples": json_number(self.effective_samples),
                 "ci_widening": json_number(self.ci_widening), "correction": self.correction,
@@ -196,12 +201,127 @@ class FittedSegment:
         return self.data - self.fitted
 
 
+def _units_swapped(d: Any, unit: str) -> Any:
+    """A JSON-ready structure with every ``"unit": "V"`` entry changed to ``unit``."""
+    if isinstance(d, dict):
+        return {k: (unit if k == "unit" and v == "V" else _units_swapped(v, unit)) for k, v in d.items()}
+    if isinstance(d, list):
+        return [_units_swapped(v, unit) for v in d]
+    return d
+
+
+@dataclass(frozen=True)
+class ChannelRoles:
+    """Which channel drove the model and which was fitted, and why (plain words)."""
+
+    input: str | None
+    output: str
+    why: tuple[str, ...] = ()
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"input": self.input, "output": self.output, "why": list(self.why)}
+
+
+@dataclass(frozen=True)
+class FitDetails:
+    """How the engine made a fit, as the reports show it.
+
+    form_summary: the form's one-line description.
+    mode: "measured input" (the input channel drives the model) or "ideal step".
+    edges: per edge fitted jointly, its level estimates by name ("t0" s,
+        "baseline" and "step" in the output unit, "gain").
+    bin_size: the widest bin of samples averaged into one fitted point (1: none).
+    binning: plain words on that binning ("" when no samples were averaged).
+    output_unit: the fitted channel's unit ("V", "counts", or "").
+    channels: the channels' roles (None when the fit was given segments, not a capture).
+    drive_period: seconds between the drive's edges of a square wave (None otherwise).
+    """
+
+    form_summary: str = ""
+    mode: str = ""
+    edges: tuple[Mapping[str, Estimate], ...] = ()
+    bin_size: int = 1
+    binning: str = ""
+    output_unit: str = "V"
+    channels: ChannelRoles | None = None
+    drive_period: float | None = None
+
+    def with_output_unit(self, unit: str) -> "FitDetails":
+        swap = (lambda e: dataclasses.replace(e, unit=unit) if e.unit == "V" else e)  # noqa: E731
+        return dataclasses.replace(self, output_unit=unit,
+                                   edges=tuple({k: swap(e) for k, e in edge.items()} for edge in self.edges))
+
+    def to_dict(self) -> dict[str, Any]:
+        d: dict[str, Any] = {"form_summary": self.form_summary,
+                             "edges": [{k: e.to_dict() for k, e in edge.items()} for edge in self.edges],
+                             "mode": self.mode, "bin_size": self.bin_size}
+        if self.binning:
+            d["binning"] = self.binning
+        if self.output_unit != "V":
+            d["output_unit"] = self.output_unit
+        if self.channels is not None:
+            d["channels"] = self.channels.to_dict()
+        if self.drive_period is not None:
+            d["drive_period"] = json_number(self.drive_period)
+        return d
+
+
+@dataclass(frozen=True)
+class CircuitDetails:
+    """What a fit in part values (fitkit.part_values) adds, as JSON-ready parts.
+
+    circuit: its name; unknowns: the parts asked for; held: known parts (SI).
+    solutions: every set of part values that fits (dicts: "values", ...), best first.
+    identifiability, preferred, determination, chain_effect, measurement_chain,
+    behavioural_route, routes_comparison: the part fit's own reports (dicts).
+    routes_agree: whether the behavioural and the direct route agree (None: one route).
+    level_model: plain words on the levels fitted.
+    rss (V^2), aicc, n_samples, n_parameters: the best direct fit's score.
+    """
+
+    circuit: str
+    form_summary: str
+    unknowns: tuple[str, ...] = ()
+    held: Mapping[str, Any] = field(default_factory=dict)
+    solutions: tuple[Mapping[str, Any], ...] = ()
+    identifiability: Mapping[str, Any] = field(default_factory=dict)
+    preferred: Mapping[str, Any] = field(default_factory=dict)
+    determination: Mapping[str, Any] = field(default_factory=dict)
+    chain_effect: Mapping[str, Any] | None = None
+    measurement_chain: Mapping[str, Any] = field(default_factory=dict)
+    behavioural_route: Mapping[str, Any] | None = None
+    routes_agree: bool | None = None
+    routes_comparison: Mapping[str, Any] = field(default_factory=dict)
+    level_model: str = ""
+    rss: float = float("nan")
+    aicc: float = float("nan")
+    n_samples: int = 0
+    n_parameters: int = 0
+
+    def with_output_unit(self, unit: str) -> "CircuitDetails":
+        route = None if self.behavioural_route is None else _units_swapped(dict(self.behavioural_route), unit)
+        return dataclasses.replace(self, behavioural_route=route)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"form_summary": self.form_summary, "circuit": self.circuit, "unknowns": list(self.unknowns),
+                "held": dict(self.held), "solutions": [dict(s) for s in self.solutions],
+                "identifiability": dict(self.identifiability), "preferred": dict(self.preferred),
+                "determination": dict(self.determination), "chain_effect": self.chain_effect,
+                "measurement_chain": dict(self.measurement_chain), "behavioural_route": self.behavioural_route,
+                "routes_agree": self.routes_agree, "routes_comparison": dict(self.routes_comparison),
+                "level_model": self.level_model, "rss": json_number(self.rss), "aicc": json_number(self.aicc),
+                "n_samples": self.n_samples, "n_parameters": self.n_parameters}
+
+
 @dataclass(frozen=True)
 class FitResult:
     """Everything a fit found: the chosen form, parameters, derived quantities,
     selection evidence, diagnostics and warnings.
 
-    ``components`` is filled when a circuit was given (part name -> Estimate).
+    ``components`` is filled when a circuit was given (part name -> Estimate),
+    with ``circuit`` (CircuitDetails) saying how; ``details`` (FitDetails) says
+    how the engine made the fit. Reports read both by attribute; the JSON puts
+    them under "extra".
     """
 
     file: str
@@ -214,7 +334,8 @@ class FitResult:
     segments: tuple[FittedSegment, ...] = ()
     warnings: tuple[str, ...] = ()
     components: Mapping[str, Estimate] = field(default_factory=dict)
-    extra: Mapping[str, Any] = field(default_factory=dict)
+    details: FitDetails = field(default_factory=FitDetails)
+    circuit: CircuitDetails | None = None
     #: whether the form describes the capture (see fitkit.fitting.adequacy); None when not assessed
     adequacy: Adequacy | None = None
 
@@ -239,19 +360,19 @@ class FitResult:
     @property
     def output_unit(self) -> str:
         """Unit of the fitted output channel ("V", "counts", or "" when the file gave none)."""
-        return str(self.extra.get("output_unit", "V"))
+        return self.details.output_unit
 
     def with_binning(self, n_samples: int) -> "FitResult":
         """The same result saying how ``n_samples`` raw samples were averaged into the
-        points fitted (extra["binning"]), when they were."""
-        bin_size = int(self.extra.get("bin_size", 1) or 1)
+        points fitted (details.binning), when they were."""
+        bin_size = int(self.details.bin_size or 1)
         fitted = self.diagnostics.n_samples if self.diagnostics is not None else None
         if bin_size <= 1 or not fitted or fitted >= n_samples:
             return self
         text = (f"{n_samples:,} samples averaged into {fitted:,} bins of up to {bin_size:,} samples "
                 "(narrow at each edge, wider where the response is slow; each bin's model is the mean "
                 "of the model over its samples)")
-        return dataclasses.replace(self, extra=dict(self.extra, binning=text))
+        return dataclasses.replace(self, details=dataclasses.replace(self.details, binning=text))
 
     def with_output_unit(self, unit: str) -> "FitResult":
         """The same result with its levels (baseline, step, residuals) in ``unit``
@@ -262,19 +383,12 @@ class FitResult:
         def swap(e: Estimate) -> Estimate:
             return dataclasses.replace(e, unit=unit) if e.unit == "V" else e
 
-        def swap_dict(d: Any) -> Any:
-            if isinstance(d, dict):
-                return {k: (unit if k == "unit" and v == "V" else swap_dict(v)) for k, v in d.items()}
-            if isinstance(d, list):
-                return [swap_dict(v) for v in d]
-            return d
-
-        extra = swap_dict(dict(self.extra))
-        extra["output_unit"] = unit
         rms = f" {unit} rms" if unit else " rms"
         warnings = tuple(w.replace(" V rms", rms) for w in self.warnings)
         return dataclasses.replace(self, parameters={k: swap(v) for k, v in self.parameters.items()},
-                                   derived={k: swap(v) for k, v in self.derived.items()}, extra=extra,
+                                   derived={k: swap(v) for k, v in self.derived.items()},
+                                   details=self.details.with_output_unit(unit),
+                                   circuit=None if self.circuit is None else self.circuit.with_output_unit(unit),
                                    warnings=warnings)
 
     def to_dict(self) -> dict[str, Any]:
@@ -302,8 +416,9 @@ class FitResult:
         }
         if self.components:
             d["components"] = table(self.components)
-        if self.extra:
-            d["extra"] = dict(self.extra)
+        extra = {**self.details.to_dict(), **({} if self.circuit is None else self.circuit.to_dict())}
+        if extra != FitDetails().to_dict():
+            d["extra"] = extra
         if self.adequacy is not None:
             d["adequacy"] = self.adequacy.to_dict()
         return d

@@ -31,7 +31,9 @@ def test_output_only_wrong_part_ladder_leads_with_c22_near_its_real_value(output
     assert r.verdict == "fail" and not r.measured_input
     leaders = [s for s in r.suspects if s.tied]
     c22 = next(s for s in r.suspects if s.part == "C22")
-    assert c22.tied and c22 in leaders                      # R21 a decade low looks the same: a tie
+    # an equal-stage ladder: R21 x m and C22 x m give the same H(s) (a2 = m R^2 C^2,
+    # a1 = RC (1 + 2m); circuit algebra), so from the output alone the honest answer is a tie
+    assert c22.tied and c22 in leaders and {s.part for s in leaders} <= {"C22", "R21"}
     assert abs(c22.value / 9.71e-9 - 1) < 0.10
     assert c22.ci95[0] <= 9.71e-9 <= c22.ci95[1]
     assert "a decade low" in c22.pattern

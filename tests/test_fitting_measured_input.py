@@ -86,7 +86,7 @@ def test_measured_input_intervals_cover_the_truth_over_200_captures():
     for _ in range(n):
         seg = _segment(t, _noisy(rng, pad), _noisy(rng, out))
         r = fit_segments([seg], "first-order", intervals="covariance", derived=False)
-        assert r.extra["mode"] == "measured input"
+        assert r.details.mode == "measured input"
         hits["tau"] += r.parameters["tau"].contains(TAU)
         hits["gain"] += r.parameters["gain"].contains(1.0)
         z_tau.append((r.parameters["tau"].value - TAU) / r.parameters["tau"].stderr)
@@ -159,6 +159,6 @@ def test_demo_truth_from_the_measured_input_is_inside_the_interval(name, model, 
     truth = json.loads((DEMO / "truth.json").read_text())["captures"][name]["from_measured_input_pad"][key]
     truth = truth[0] if isinstance(truth, list) else truth
     r = fit_capture(load_capture(str(DEMO / name)), model=model)
-    assert r.extra["mode"] == "measured input"
+    assert r.details.mode == "measured input"
     est = r.parameters.get(quantity) or r.derived[quantity]
     assert est.contains(truth), (est.value, est.ci95, truth)

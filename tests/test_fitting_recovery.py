@@ -121,11 +121,11 @@ def test_measured_input_removes_the_bias_of_a_slow_source_edge():
     from fitkit.conditioning import analyse_steps
     segs = analyse_steps(cap, input="vin", output="vout").segments
     measured = fit_segments(segs, "first-order")
-    assert measured.extra["mode"] == "measured input"
+    assert measured.details.mode == "measured input"
     assert measured.parameters["tau"].contains(tau)
     assert measured.parameters["tau"].value == pytest.approx(tau, rel=0.01)
     ideal = fit_segments(segs, "first-order", measured_input=False)
-    assert ideal.extra["mode"] == "ideal step"
+    assert ideal.details.mode == "ideal step"
     assert not ideal.parameters["tau"].contains(tau)
     assert ideal.parameters["tau"].value > 1.1 * tau  # biased long by the slow edge
 
@@ -141,9 +141,9 @@ def test_joint_fit_of_square_wave_shares_tau_and_keeps_per_edge_levels():
     assert len(segs) >= 6
     r = fit_segments(segs, "first-order")
     assert r.parameters["tau"].contains(tau)
-    edges = r.extra["edges"]
+    edges = r.details.edges
     assert len(edges) == len(segs)
-    steps = [e["step"]["value"] for e in edges]
+    steps = [e["step"].value for e in edges]
     assert all(abs(abs(s) - 2.0) < 0.02 for s in steps) and min(steps) < 0 < max(steps)
     # one shared tau is better determined than from a single edge
     single = fit_segments(segs[:1], "first-order")
@@ -178,7 +178,7 @@ def test_long_capture_is_bin_averaged_and_still_covers_the_truth():
     seg = simulated_segment(first_order_tf(tau), dt=tau / 20000, n_before=20000, n_after=180000, rng=rng,
                             noise=0.05, simulator=lambda tf, t: 1 - np.exp(-t / tau))
     r = fit_segments([seg], "first-order")
-    assert r.extra["bin_size"] > 1
+    assert r.details.bin_size > 1
     assert r.parameters["tau"].contains(tau)
     # the interval is as narrow as the full-resolution Cramer-Rao scale: noise/sqrt(n) order
     assert r.parameters["tau"].stderr / tau < 5 * 0.05 / math.sqrt(180000) * 3
@@ -195,8 +195,8 @@ def test_fit_capture_runs_conditioning_and_fits_averaged_or_single_edges():
     averaged = fit_capture(cap, model="first-order", average=True)
     single = fit_capture(cap, model="first-order", edge_time=30e-6)
     assert every.file == "bench.csv"
-    assert len(averaged.extra["edges"]) == 2 < len(every.extra["edges"])  # one per direction
-    assert len(single.extra["edges"]) == 1
+    assert len(averaged.details.edges) == 2 < len(every.details.edges)  # one per direction
+    assert len(single.details.edges) == 1
     for r in (every, averaged, single):
         assert r.parameters["tau"].contains(tau)
         assert r.derived["step"].value == pytest.approx(1.0, rel=0.02)  # gain x input step (1 V)
@@ -250,7 +250,7 @@ def test_binned_high_q_record_without_noise_gives_q_exactly():
                             rng=np.random.default_rng(5), noise=0.0)
     seg = dataclasses.replace(seg, noise_rms=1e-6)
     r = fit_segments([seg], "underdamped", intervals="covariance")
-    assert r.extra["bin_size"] > 1
+    assert r.details.bin_size > 1
     assert abs(r.parameters["Q"].value / q - 1) < 2e-6
     assert abs(r.parameters["f0"].value / f0 - 1) < 1e-8
 

@@ -149,7 +149,7 @@ def test_a_long_capture_fitted_on_bins_says_so():
     v = np.where(t > 2e-3, 1 - np.exp(-np.clip(t - 2e-3, 0, None) / 2e-3), 0.0)
     cap = fitkit.Capture.from_arrays(t, {"out": v + 0.01 * np.random.default_rng(2).standard_normal(n)})
     result = fitkit.fit_capture(cap, model="first-order")
-    note = result.extra["binning"]
+    note = result.details.binning
     assert "averaged into" in note and result.diagnostics.n_samples < n
     from fitkit.report.text import render_fit_text
     assert "binned" in render_fit_text(result)

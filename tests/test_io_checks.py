@@ -10,7 +10,8 @@ import numpy as np
 import pytest
 
 from fitkit.errors import CaptureError
-from fitkit.io import load_capture, robust_noise_sigma
+from fitkit.conditioning.noise import noise_from_differences as robust_noise_sigma
+from fitkit.io import load_capture
 from fitkit.io.checks import longest_run_at, rounded_uniform_grid
 
 RNG = np.random.default_rng(20240301)

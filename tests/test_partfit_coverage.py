@@ -39,7 +39,7 @@ def test_direct_and_behavioural_intervals_cover_the_truth():
         res = fit_circuit(cap, circuit, intervals="covariance")
         est = res.components["C1"]
         direct_hits += est.contains(C)
-        r1 = res.extra["behavioural_route"]["solutions"][0]
+        r1 = res.circuit.behavioural_route["solutions"][0]
         lo, hi = r1["ci95"]["C1"]
         behavioural_hits += lo <= C <= hi
         log_errors.append(math.log(est.value / C))

@@ -40,8 +40,8 @@ def test_partly_determined_fits_what_it_can_and_never_reports_the_rest():
         est = res.components[part]
         assert not est.determined and math.isnan(est.value) and est.ci95 is None
     assert any("supply the value of R1" in w for w in res.warnings)
-    assert res.extra["identifiability"]["combinations"] == ["R1*C1"]
-    assert set(res.extra["preferred"]) == {"R2"}     # no preferred value for an unmeasured part
+    assert res.circuit.identifiability["combinations"] == ["R1*C1"]
+    assert set(res.circuit.preferred) == {"R2"}     # no preferred value for an unmeasured part
 
 
 def test_rc_ladder_with_r1_unknown_too_holds_one_part_and_marks_it():

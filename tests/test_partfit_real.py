@@ -45,8 +45,8 @@ def test_the_fast_pole_is_poorly_determined_and_said_so(result):
     fast, slow = result.derived["tau2"], result.derived["tau1"]
     width = lambda e: (e.ci95[1] - e.ci95[0]) / e.value
     assert width(fast) > 3 * width(slow)          # the fast time constant is the weak one
-    poor = [p for p, d in result.extra["determination"].items() if d["status"] == "poorly determined"]
-    assert poor, result.extra["determination"]
+    poor = [p for p, d in result.circuit.determination.items() if d["status"] == "poorly determined"]
+    assert poor, result.circuit.determination
     for part in poor:
         est = result.components[part]
         assert est.stderr / est.value > POORLY_DETERMINED
@@ -55,8 +55,8 @@ def test_the_fast_pole_is_poorly_determined_and_said_so(result):
 
 
 def test_both_quadratic_roots_listed_and_routes_agree(result):
-    sols = result.extra["solutions"]
+    sols = result.circuit.solutions
     assert len(sols) == 2
     assert sols[0]["design_distance"] <= sols[1]["design_distance"]
-    assert result.extra["routes_agree"] is True
-    assert result.extra["mode"] == "measured input"   # the DAC channel drives the model
+    assert result.circuit.routes_agree is True
+    assert result.details.mode == "measured input"   # the DAC channel drives the model

@@ -28,7 +28,7 @@ def near_truth(est, truth, k=3.0):
 
 def routes_agree_within_intervals(result):
     """Each route's value inside the other's 95 % interval, checked here from the raw numbers."""
-    r1 = result.extra["behavioural_route"]["solutions"]
+    r1 = result.circuit.behavioural_route["solutions"]
     for part, est in result.components.items():
         if not est.determined:
             continue
@@ -53,12 +53,12 @@ def test_rc_low_pass_with_probe_loading_gives_c():
     tau_true = R * Rp / (R + Rp) * (C + Cp)
     assert near_truth(res.derived["tau"], tau_true)
     routes_agree_within_intervals(res)
-    assert res.extra["routes_agree"] is True
+    assert res.circuit.routes_agree is True
     # the probe's 12 pF on 4.7 nF raises tau by 12/4700 = 0.26 %, its 10 MOhm lowers the gain 0.1 %
-    shifts = res.extra["chain_effect"]["shifts"]["probe"]
+    shifts = res.circuit.chain_effect["shifts"]["probe"]
     assert shifts["tau"] == pytest.approx((C + Cp) / C * Rp / (R + Rp) - 1, rel=1e-3)
     # nearest preferred values against the eseries package (IEC 60063)
-    pref = res.extra["preferred"]["C1"]
+    pref = res.circuit.preferred["C1"]
     for series, es in (("E12", eseries.E12), ("E24", eseries.E24), ("E96", eseries.E96)):
         assert pref[series] == pytest.approx(eseries.find_nearest(es, c1.value), rel=1e-9)
     json.dumps(res.to_dict(), allow_nan=False)
@@ -89,7 +89,7 @@ def test_ladder_reports_both_roots_and_ranks_by_design():
     circuit = topology("rc-ladder-2", R1="10k", R2="10k", C1="?", C2="?")
     res = fit_circuit(cap, circuit, design_values={"C1": 10e-9, "C2": 22e-9})
     assert near_truth(res.components["C1"], C1) and near_truth(res.components["C2"], C2)
-    sols = res.extra["solutions"]
+    sols = res.circuit.solutions
     assert len(sols) == 2
     # the other root of the quadratic (same a1, a2): C2' = a2 / (R^2 C1'), with
     # R C1' + 2 R C2' = a1 solved by hand for the truth's a1, a2
@@ -116,7 +116,7 @@ def test_sallen_key_with_resistors_known_gives_capacitors():
     circuit = topology("sallen-key-low-pass", R1="10k", R2="10k", C1="?", C2="?")
     res = fit_circuit(cap, circuit)
     assert near_truth(res.components["C1"], C1) and near_truth(res.components["C2"], C2)
-    assert len(res.extra["solutions"]) == 1          # a2 and a1 fix C2, then C1: one solution
+    assert len(res.circuit.solutions) == 1          # a2 and a1 fix C2, then C1: one solution
     q = res.derived["Q"]
     assert abs(q.value - math.sqrt(R1 * R2 * C1 * C2) / (C2 * (R1 + R2))) < 3 * q.stderr
     routes_agree_within_intervals(res)
@@ -129,7 +129,7 @@ def test_ladder_driven_by_measured_input():
                          noise=0.003, bits=12, seed=4, with_input=True)
     circuit = topology("rc-ladder-2", R1="10k", R2="10k", C1="?", C2="?")
     res = fit_circuit(cap, circuit, design_values={"C1": 100e-9, "C2": 10e-9})
-    assert res.extra["mode"] == "measured input"
+    assert res.details.mode == "measured input"
     assert "gain" in res.parameters
     assert near_truth(res.components["C1"], C1) and near_truth(res.components["C2"], C2)
 
@@ -141,7 +141,7 @@ def test_more_coefficients_than_unknowns_uses_weighted_least_squares():
     cap = step_capture(rc_ladder_tf(R, C1, R, C2), t_end=3e-3, n=800, noise=0.003, bits=12, seed=6)
     res = fit_circuit(cap, topology("rc-ladder-2", R1="10k", R2="10k", C1="10n", C2="?"))
     assert near_truth(res.components["C2"], C2)
-    assert "weighted least squares" in res.extra["behavioural_route"]["method"]
+    assert "weighted least squares" in res.circuit.behavioural_route["method"]
     routes_agree_within_intervals(res)
 
 
@@ -154,6 +154,6 @@ def test_source_resistance_is_in_the_model_and_its_shift_reported():
     circuit = topology("rc-low-pass", R1="10k", C1="?").with_chain(MeasurementChain(source_resistance=Rs))
     res = fit_circuit(cap, circuit)
     assert near_truth(res.components["C1"], C)
-    assert res.extra["chain_effect"]["shifts"]["source"]["tau"] == pytest.approx(Rs / R, rel=1e-6)
+    assert res.circuit.chain_effect["shifts"]["source"]["tau"] == pytest.approx(Rs / R, rel=1e-6)
     bare = fit_circuit(cap, topology("rc-low-pass", R1="10k", C1="?"))
     assert bare.components["C1"].value == pytest.approx(C * (R + Rs) / R, rel=0.01)

@@ -41,8 +41,7 @@ needs_chromium = pytest.mark.skipif(CHROMIUM is None, reason="chromium is not in
 def result():
     return make_result("underdamped", n_edges=2, undetermined=("zeta",),
                        components={"R1": (4.7e3, "Ohm"), "C1": (10e-9, "F")},
-                       warnings=("the capture ends 0.4 ms after the last edge; settling time is a lower bound",),
-                       extra={"verdict": "inconclusive"})
+                       warnings=("the capture ends 0.4 ms after the last edge; settling time is a lower bound",))
 
 
 @pytest.fixture(scope="module")
@@ -56,7 +55,7 @@ def capture(result):
 
 @pytest.fixture(scope="module")
 def page(result, capture):
-    return render_html_report(result, capture)
+    return render_html_report(result, capture, verdict="inconclusive")
 
 
 class _Collector(html.parser.HTMLParser):
@@ -164,7 +163,8 @@ def test_chromium_harness_sees_console_errors(tmp_path):
 
 @needs_chromium
 def test_report_renders_in_chromium(tmp_path, result, capture):
-    path = write_html_report(result, tmp_path / "board_017.html", capture_provenance=capture)
+    path = write_html_report(result, tmp_path / "board_017.html", capture_provenance=capture,
+                             verdict="inconclusive")
     out = _chromium(tmp_path, path.as_uri(), "--enable-logging=stderr", "--v=0", "--dump-dom")
     assert out.returncode == 0, out.stderr[-2000:]
     assert _console_lines(out.stderr) == []
@@ -189,9 +189,8 @@ def test_report_renders_in_chromium(tmp_path, result, capture):
 
 @pytest.mark.parametrize("verdict,shown", [({"overall": "fail"}, "Verdict: FAIL"), ("pass", "Verdict: PASS"),
                                            (None, None)])
-def test_verdict_banner_from_result_extra(verdict, shown):
-    extra = {} if verdict is None else {"verdict": verdict}
-    page = render_html_report(make_result("first-order", extra=extra), figure_format="png")
+def test_verdict_banner_from_the_check(verdict, shown):
+    page = render_html_report(make_result("first-order"), verdict=verdict, figure_format="png")
     if shown is None:
         assert "Verdict:" not in page
     else:

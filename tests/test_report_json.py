@@ -23,7 +23,7 @@ def validator():
 @pytest.mark.parametrize("model", FORM_NAMES)
 def test_every_form_validates(validator, model):
     result = make_result(model, undetermined=("step",), components={"R1": (1e3, "Ohm")},
-                         warnings=("a warning",), extra={"verdict": "pass"})
+                         warnings=("a warning",))
     data = json.loads(fit_result_json(result))
     validator.validate(data)
     assert data["parameters"]["step"]["determined"] is False
@@ -57,8 +57,7 @@ def test_schema_rejects_broken_records(validator):
 
 def test_every_stable_key_is_documented():
     schema = fit_result_schema()
-    record_keys = set(make_result("underdamped", components={"C1": (1e-9, "F")},
-                                  extra={"verdict": "fail"}).to_dict())
+    record_keys = set(make_result("underdamped", components={"C1": (1e-9, "F")}).to_dict())
     assert record_keys <= set(schema["properties"])
     for key, spec in schema["properties"].items():
         assert len(spec.get("description", "")) > 20, key

@@ -111,11 +111,6 @@ def test_result_without_selection_or_diagnostics_still_renders():
     assert "tau" in text
 
 
-def test_verdict_from_a_check_appears_in_the_header():
-    text = render_fit_text(make_result("first-order", extra={"verdict": {"overall": "fail"}}))
-    assert re.search(r"verdict\s+fail", text.split("\n\n")[0])
-
-
 def test_micro_prefix_written_as_micro_sign():
     text = render_fit_text(make_result("first-order"))
     tau = next(line for line in text.splitlines() if line.strip().startswith("tau "))

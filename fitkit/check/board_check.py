@@ -123,14 +123,23 @@ class CheckResult:
                                                   "notes": suspect_notes(self)})
 
 
-def behavioural_form(design: Design, measured_input: bool) -> str:
-    """The step-response form matching the design's order and kind."""
+def behavioural_form(design: Design, measured_input: bool, envelope: Envelope | None = None) -> str:
+    """The step-response form matching the design's order and kind.
+
+    A second-order all-pole stage whose every board in the tolerance envelope
+    has Q <= 1/2 (real poles: zeta >= 1, the standard second-order result) is
+    fitted with the two-real-pole form, whose Q cannot leave that range (an
+    equal-stage buffered RC sits at Q = 1/2 exactly, where the second-order
+    form lets noise carry Q above it); any other second-order stage with the
+    second-order form."""
     tf = transfer_function(analysed_circuit(design.circuit, measured_input))
     zeros_at_origin = len(tf.num) > 1 and tf.num[-1] == 0
     if tf.order == 1:
         return "first-order-decay" if zeros_at_origin or abs(tf.dc_gain) < 1e-9 else "first-order"
     if tf.order == 2 and len(tf.num) == 1:
-        return "second-order"
+        q_range = envelope.ranges.get("Q") if envelope is not None else None
+        real_poles = q_range is not None and q_range[1] <= 0.5 * (1 + 1e-9)
+        return "two-real-pole" if real_poles else "second-order"
     return "auto"
 
 
@@ -149,10 +158,10 @@ def check_capture(capture: Capture, design: Design | str | Path, *, input: str |
     segments = analysis.segments
     measured = has_measured_input(segments)
     warnings = list(analysis.flags)
-    fit, estimates = _behaviour(design, segments, measured, file, warnings)
     span = _record_after_edge(segments)
     envelope = tolerance_envelope(design, np.linspace(0.0, span, ENVELOPE_POINTS), trials=envelope_trials,
                                   seed=seed, measured_input=measured)
+    fit, estimates = _behaviour(design, segments, measured, file, warnings, envelope)
     limits = _default_limits(envelope, measured)
     design_limits = resolve_limits(design, envelope.nominal_quantities)
     limits.update(design_limits)
@@ -178,12 +187,12 @@ def check_capture(capture: Capture, design: Design | str | Path, *, input: str |
                         "why": [d for d in analysis.decisions if "channel" in d]})
 
 
-def _behaviour(design: Design, segments, measured: bool, file: str, warnings: list[str]):
+def _behaviour(design: Design, segments, measured: bool, file: str, warnings: list[str], envelope: Envelope):
     """The behavioural fit, made exactly as `fitkit fit --form FORM` makes it (the same
     engine call, measured-input mode when the capture has an input channel), with the
     form the design's order calls for; (FitResult, estimates judged)."""
     from ..fitting import fit_segments
-    form = behavioural_form(design, measured)
+    form = behavioural_form(design, measured, envelope)
     try:
         fit = fit_segments(segments, form, file=file)
     except FitkitError as exc:
@@ -278,12 +287,12 @@ def _default_limits(envelope: Envelope, measured: bool) -> dict[str, tuple[float
 def _fitted_edge(fit: FitResult, index: int, seg) -> tuple[float, float, float | None]:
     """(edge time s, baseline V, output step V or None) of edge ``index`` as the
     behavioural fit placed it; the conditioning's values where the fit has none."""
-    edges = fit.extra.get("edges", ()) if isinstance(fit.extra, dict) else ()
+    edges = fit.details.edges
     levels = edges[index] if index < len(edges) else {}
 
     def value(name: str):
-        v = levels.get(name, {}).get("value") if isinstance(levels.get(name), dict) else None
-        return float(v) if v is not None and math.isfinite(v) else None
+        est = levels.get(name)
+        return float(est.value) if est is not None and math.isfinite(est.value) else None
 
     t0, baseline, step = value("t0"), value("baseline"), value("step")
     return (seg.edge_time if t0 is None else t0, seg.baseline if baseline is None else baseline, step)
@@ -333,5 +342,6 @@ def _summary(verdict: str, quantities, diagnosis: Diagnosis | None, design: Desi
     if diagnosis is not None and verdict != "pass" and diagnosis.suspects:
         lead = [s for s in diagnosis.suspects if s.tied]
         text = " or ".join(s.part + (f" {_fmt(s.value, s.unit)}" if s.value is not None else "") for s in lead)
-        bits.append(f"suspect {text}: {lead[0].pattern}")
+        bits.append(f"suspect {text}: {lead[0].pattern}" if lead else
+                    "no single part or swap explains the capture")
     return "; ".join(bits)

@@ -25,8 +25,9 @@ The scheme, in the order it runs (the fits are the engine's, hypotheses.py):
    are then fitted, and the best pair is shown when the capture determines
    both parts and it is decisively better.
 
-A fit whose part ran beyond any plausible value (hypotheses.PLAUSIBLE_SPAN)
-"does not explain the capture" and reports no value. Patterns of real
+A hypothesis whose fit fails, or whose part ran beyond any plausible value
+(hypotheses.PLAUSIBLE_SPAN), "does not explain the capture" and reports no
+value: a bound of the search is never reported as a measurement. Patterns of real
 assembly faults are read from the implied value against the nominal value
 (``fault_pattern``).
 """
@@ -42,11 +43,13 @@ from ..circuits import identifiability
 from ..circuits.preferred import candidates_around
 from ..conditioning.segment import StepSegment
 from ..errors import FitError
+from ..fitting.api import capture_noise
 from ..fitting.information import has_measured_input
 from ..results import Estimate, json_number
 from .design import Design, PartSpec
-from .hypotheses import (HypothesisFit, final_intervals, fit_fixed, fit_free, fit_single,
+from .hypotheses import (HypothesisFit, final_intervals, fit_fixed, fit_free, fit_single, unexplained,
                          within_tolerance_refit)
+from .ties import tie_reason, tie_sentence
 
 #: Scaled AICc difference within which hypotheses are equally good (Burnham and
 #: Anderson, Model Selection and Multimodel Inference, 2002: differences below 2
@@ -178,13 +181,13 @@ def _eng(v: float, unit: str = "") -> str:
 
 
 def _noise(fits: Sequence[HypothesisFit], segments: Sequence[StepSegment]) -> float:
-    """The output noise (V) of the engine's fit diagnostics, else the segments' median estimate."""
+    """The output noise (V) of the engine's fit diagnostics, else the engine's own
+    estimate from the segments (fitkit.fitting.api.capture_noise)."""
     for h in fits:
         d = h.result.diagnostics if h.result is not None else None
         if d is not None and math.isfinite(d.noise_rms) and d.noise_rms > 0:
             return float(d.noise_rms)
-    values = sorted(s.noise_rms for s in segments if math.isfinite(s.noise_rms) and s.noise_rms > 0)
-    return values[len(values) // 2] if values else math.nan
+    return capture_noise(segments)
 
 
 def _evidence_scale(fits: Sequence[HypothesisFit]) -> float:
@@ -209,11 +212,7 @@ def _single_hypotheses(design: Design, segments, measured: bool, noise: float, f
             undetermined.append(part)
             continue
         h = fit_single(design, segments, part, measured, noise, EXPLAINED_RATIO, file)
-        if h is None:
-            messages.append(f"{design.label(part)} alone: the engine's fit did not converge")
-            undetermined.append(part)
-        else:
-            fits.append(h)
+        fits.append(h if h is not None else unexplained(part))
     fits.sort(key=_rank_key)
     for i, h in enumerate(fits[:REFINED_SINGLES]):
         spec = design.parts[h.parts[0]]
@@ -279,10 +278,7 @@ def diagnose(design: Design, segments: Sequence[StepSegment], *, file: str = "",
             leaders.extend(p for p in h.parts if p not in leaders)
         against = factor * (nominal.aicc - h.aicc) if nominal is not None else math.nan
         suspects.append(_suspect(design, h, evidence, against, tied, noise))
-    tied_names = [s.part for s in suspects if s.tied]
-    if len(tied_names) > 1:
-        messages.append(f"cannot tell {' from '.join(tied_names)} from this capture; measure one of them "
-                        "in circuit (or capture the input pad too) to decide")
+    messages += _tie_messages(design, [h for h, s in zip(hyps, suspects) if s.tied], measured)
     if undetermined:
         messages.append("this capture cannot determine " + ", ".join(design.label(p) for p in undetermined)
                         + " on its own")
@@ -290,6 +286,23 @@ def diagnose(design: Design, segments: Sequence[StepSegment], *, file: str = "",
                  for h in hyps if h.kind == "single part"}
     return Diagnosis(tuple(suspects), nominal, tuple(leaders), explained, noise, tuple(undetermined),
                      estimates, tuple(messages), tuple(hyps))
+
+
+def _tie_messages(design: Design, tied: Sequence[HypothesisFit], measured: bool) -> list[str]:
+    """Why the tied leaders tie: one sentence per other single-part leader against the first
+    (ties.py), or one sentence naming them when they are not all single parts."""
+    if len(tied) < 2:
+        return []
+    names = " from ".join("+".join(design.label(p) for p in h.parts) for h in tied)
+    first = tied[0]
+    if first.kind != "single part" or any(h.kind != "single part" for h in tied[1:]):
+        return [f"cannot tell {names} from this capture; measure one of the parts in circuit to decide"]
+    out = [f"cannot tell {names} from this capture"]
+    for h in tied[1:]:
+        reason = tie_reason(design, first.parts[0], first.values[first.parts[0]], h.parts[0], measured)
+        if reason is not None:
+            out.append(tie_sentence(design, reason))
+    return out
 
 
 def _try_pairs(design: Design, segments, singles, hyps: list[HypothesisFit], factor: float, measured: bool,
@@ -310,7 +323,7 @@ def _try_pairs(design: Design, segments, singles, hyps: list[HypothesisFit], fac
 def _no_value(design: Design, part: str) -> Estimate:
     """A part whose fit ran away: no value, no interval."""
     return Estimate(part, math.nan, None, None, UNITS[design.parts[part].kind],
-                    "the fit ran beyond any plausible value", False)
+                    "changing it alone does not explain the capture", False)
 
 
 def _suspect(design: Design, h: HypothesisFit, evidence: float, against: float, tied: bool,
@@ -328,7 +341,7 @@ def _suspect(design: Design, h: HypothesisFit, evidence: float, against: float, 
     unit = UNITS[spec.kind]
     if h.runaway:
         return Suspect(label, h.parts, h.kind, None, None, spec.nominal, unit, evidence, against, h.rms,
-                       "does not explain the capture (the fit ran beyond any plausible value)", False, False)
+                       f"does not explain the capture: no value of {label} alone reproduces it", False, False)
     est = h.estimates[first]
     pattern = fault_pattern(spec, est.value, est.ci95) if explains or tied else \
         "does not explain the capture (residual above the noise)"

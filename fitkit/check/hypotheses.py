@@ -32,7 +32,7 @@ import numpy as np
 from ..conditioning.segment import StepSegment
 from ..errors import CircuitError, FitError
 from ..fitting import fit_segments
-from ..fitting.information import corrected_aic
+from ..fitting.information import corrected_aic, residual_sum
 from ..part_values.direct import direct_fits, scaled_circuit_form
 from ..part_values.problem import prepare_problem
 from ..results import Estimate, FitResult
@@ -80,10 +80,10 @@ class HypothesisFit:
         return math.sqrt(self.rss / self.n) if self.n and math.isfinite(self.rss) else math.inf
 
 
-def _residual_sum(result: FitResult) -> tuple[float, int]:
-    """RSS (V^2) and samples of a FitResult's fitted segments."""
-    rss = float(sum(np.sum((s.data - s.fitted) ** 2) for s in result.segments))
-    return rss, int(sum(s.data.size for s in result.segments))
+def unexplained(part: str) -> HypothesisFit:
+    """The single-part hypothesis of ``part`` when no fit of it could be made: it does not
+    explain the capture (ranked last, no value)."""
+    return HypothesisFit("single part", (part,), {}, {}, math.inf, 0, 0, None, runaway=True)
 
 
 def _ran_away(design: Design, estimates: Mapping[str, Estimate]) -> bool:
@@ -110,9 +110,8 @@ def fit_fixed(design: Design, segments: Sequence[StepSegment], values: Mapping[s
                                   correlation="off", derived=False, file=file)
     except FIT_ERRORS:
         return None
-    rss, n = _residual_sum(result)
-    k = result.selection[0].n_parameters if result.selection else len(result.parameters) - 1
-    return HypothesisFit(kind, tuple(parts), dict(values), {}, rss, n, k, result)
+    rss, n = residual_sum(result)
+    return HypothesisFit(kind, tuple(parts), dict(values), {}, rss, n, result.diagnostics.n_parameters, result)
 
 
 def fit_free(design: Design, segments: Sequence[StepSegment], free: Sequence[str],
@@ -148,15 +147,17 @@ def fit_free(design: Design, segments: Sequence[StepSegment], free: Sequence[str
 def fit_single(design: Design, segments: Sequence[StepSegment], part: str, measured: bool,
                noise: float, explained_ratio: float, file: str = "") -> HypothesisFit | None:
     """One part free, the others at nominal: from the nominal value first, then, when
-    that does not explain the capture, from a decade off in the direction the fit
-    moved (a decade-off part is the commonest assembly fault, and the fit can stop in
-    a nearer local minimum on the way)."""
+    that does not explain the capture, from a decade off on either side, the side the
+    fit moved to first (a decade-off part is the commonest assembly fault, and the fit
+    can stop in a nearer local minimum on the way, on either side: a series RLC with C
+    a decade low rings faster, and a fit from nominal C can climb to a local minimum
+    above it)."""
     nominal = design.parts[part].nominal
     best = fit_free(design, segments, [part], [{part: nominal}], measured, kind="single part", file=file)
     if best is not None and not best.runaway and best.rms <= explained_ratio * noise:
         return best
-    moved_down = best is not None and best.values.get(part, nominal) < nominal
-    factors = (0.1,) if moved_down else (10.0,) if best is not None and not best.runaway else (0.1, 10.0)
+    moved_up = best is not None and not best.runaway and best.values.get(part, nominal) > nominal
+    factors = (10.0, 0.1) if moved_up else (0.1, 10.0)
     for factor in factors:
         other = fit_free(design, segments, [part], [{part: nominal * factor}], measured, kind="single part",
                          file=file)

@@ -101,15 +101,6 @@ class CoefficientJacobian:
     num_degree: int
     den_degree: int
 
-    def relative(self) -> tuple[np.ndarray, tuple[str, ...]]:
-        """d ln|coefficient| / d ln(part value) for the non-zero coefficients, with their labels.
-
-        Scale-free, so its singular values compare across coefficients of different units.
-        """
-        keep = self.values != 0
-        rel = self.jacobian[keep] / np.abs(self.values[keep])[:, None]
-        return rel, tuple(l for l, k in zip(self.labels, keep) if k)
-
     def to_dict(self) -> dict[str, Any]:
         return {"unknowns": list(self.unknowns), "point": [json_number(v) for v in self.point],
                 "labels": list(self.labels), "values": [json_number(v) for v in self.values],

@@ -126,52 +126,30 @@ def _written(option: str, path: str, write: Callable[[], Any]) -> None:
 
 
 def write_outputs(request: OutputRequest, result: Any, capture: Any = None) -> list[str]:
-    """Write every requested file for a FitResult or a CheckResult; returns their paths.
+    """Write every requested file for a result (FitResult, CheckResult, ...: its renderer,
+    fitkit.report.renderers); returns their paths.
 
     ``capture``: the Capture read, for the report's provenance section.
     """
-    from ..results import FitResult
-    is_fit = isinstance(result, FitResult)
+    from ..report.renderers import renderer_for
+    renderer = renderer_for(result)
     if request.plot_path:
         path = request.plot_path
-        _written("--plot", path, lambda: _plot(result, path, is_fit))
+        _written("--plot", path, lambda: renderer.plot(result, path))
     if request.report_path:
         path = request.report_path
-        if is_fit:
-            from ..report.html import write_html_report
-            _written("--report", path, lambda: write_html_report(result, path, capture_provenance=capture))
-        else:
-            from ..report.check_tables import write_check_report
-            _written("--report", path, lambda: write_check_report(result, path, capture_provenance=capture))
+        _written("--report", path, lambda: renderer.html(result, path, capture))
     if request.csv_path:
         from ..atomic import write_text_atomic
-        if is_fit:
-            from ..report.csv_out import fit_result_csv
-            text = fit_result_csv(result)
-        else:
-            from ..report.check_tables import check_result_csv
-            text = check_result_csv(result)
+        text = renderer.csv(result)
         _written("--csv", request.csv_path, lambda: write_text_atomic(request.csv_path, text))
     return [p for _, p in request.files()]
 
 
-def _plot(result: Any, path: str, is_fit: bool) -> None:
-    from ..report.check_plots import plot_check
-    from ..report.plots import plot_fit
-    if is_fit:
-        plot_fit(result, path=path)
-    else:
-        plot_check(result, path=path)
-
-
 def quiet_text(result: Any) -> str:
     """The --quiet text: one line per quantity (fit), or the verdict and suspects (check)."""
-    from ..results import FitResult
-    if isinstance(result, FitResult):
-        from ..report.text import render_fit_text
-        return render_fit_text(result, quiet=True)
-    from ..report.check_tables import render_check_quiet
-    return render_check_quiet(result)
+    from ..report.renderers import renderer_for
+    return renderer_for(result).quiet(result)
 
 
 def emit_result(request: OutputRequest, result: Any, capture: Any, as_json: bool) -> None:
@@ -184,10 +162,5 @@ def emit_result(request: OutputRequest, result: Any, capture: Any, as_json: bool
     elif request.quiet:
         click.echo(quiet_text(result), nl=False)
     else:
-        from ..results import FitResult
-        if isinstance(result, FitResult):
-            from ..report.text import render_fit_text
-            click.echo(render_fit_text(result), nl=False)
-        else:
-            from ..report.check_text import render_check_text
-            click.echo(render_check_text(result))
+        from ..report.renderers import renderer_for
+        click.echo(renderer_for(result).text(result), nl=False)

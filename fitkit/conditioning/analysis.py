@@ -240,7 +240,7 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
                          "found in the record")
     segments = cut_segments(time, out_ch.values, in_values, edges, channel_noise=out_noise.rms,
                             quantisation_step=out_noise.quantisation_step, settling_band=settling_band,
-                            bounds=bounds)
+                            bounds=bounds, sample_interval=dt)
     if average and len(edges) > 1:
         segments = average_segments(segments, edges, sample_interval=dt, settling_band=settling_band)
         counts = ", ".join(f"{s.averaged_edges} {'rising' if s.direction > 0 else 'falling'}" for s in segments)

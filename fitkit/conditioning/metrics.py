@@ -228,7 +228,7 @@ def step_metrics(segment: StepSegment, *, reference_levels: tuple[float, float] 
     r = (segment.output[first_post:] - segment.baseline) / step
     r_raw = r
     final_n = (segment.final - segment.baseline) / step
-    dt = float(np.median(np.diff(segment.time))) if segment.time.size > 1 else float("nan")
+    dt = segment.sample_interval
     noise_n = abs(segment.noise_rms / step) if np.isfinite(segment.noise_rms) else 0.0
     width = 1
     if noise_n > 0.002:

@@ -105,7 +105,7 @@ def segment_flags(segment: StepSegment, metrics: StepMetrics, *,
                      "square-wave frequency)")
     transition = metrics.transition_time
     kind = "rise" if metrics.rise_time is not None else "fall" if metrics.fall_time is not None else "decay"
-    dt = float(np.median(np.diff(segment.time))) if segment.time.size > 1 else float("nan")
+    dt = segment.sample_interval
     if not pulse and metrics.samples_across_transition is not None \
             and metrics.samples_across_transition < MIN_TRANSITION_SAMPLES:
         flags.append(f"{where}: only {metrics.samples_across_transition:.1f} samples across the "

@@ -7,6 +7,7 @@ time, not relative to the edge), levels in volts.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -50,6 +51,9 @@ class StepSegment:
         or "output peak excursion".
     settled: False when the output was still moving at the end of the window
         (``final`` is then the mean of the last samples, not the settled level).
+    sample_interval: seconds between samples, as the reader knew it
+        (Capture.sample_interval, passed on by conditioning); a segment built by
+        hand gets its own time axis's median interval (NaN below two samples).
     """
 
     start: int
@@ -71,6 +75,12 @@ class StepSegment:
     step_size: float = float("nan")
     step_source: str = "output levels"
     settled: bool = True
+    sample_interval: float = float("nan")
+
+    def __post_init__(self) -> None:
+        if not math.isfinite(self.sample_interval):
+            t = np.asarray(self.time, dtype=float)
+            object.__setattr__(self, "sample_interval", float(np.median(np.diff(t))) if t.size > 1 else math.nan)
 
     @property
     def step(self) -> float:

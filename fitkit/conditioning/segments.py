@@ -144,12 +144,13 @@ def _baseline_noise(t: np.ndarray, y: np.ndarray, quantised: bool, floor: float 
 def describe_window(time: np.ndarray, output: np.ndarray, input: np.ndarray | None,
                     start: int, stop: int, edge: Edge, *, channel_noise: float,
                     quantisation_step: float | None, settling_band: float,
-                    averaged_edges: int = 1) -> StepSegment:
+                    averaged_edges: int = 1, sample_interval: float = math.nan) -> StepSegment:
     """A StepSegment for one edge's window capture[start:stop], with its levels measured.
 
     ``time``, ``output``, ``input`` are whole capture arrays (the segment holds
     views into them); ``edge`` indices are capture indices. ``channel_noise`` (V)
     is used when the pre-edge baseline is too short to measure the noise.
+    ``sample_interval`` (s): the capture's, carried on the segment.
     """
     t, y = time[start:stop], output[start:stop]
     u = None if input is None else input[start:stop]
@@ -199,13 +200,13 @@ def describe_window(time: np.ndarray, output: np.ndarray, input: np.ndarray | No
                        input_before=input_before, input_after=input_after, noise_rms=noise,
                        quantisation_step=quantisation_step, averaged_edges=averaged_edges,
                        returns_to_baseline=bool(returns), step_size=float(step_size),
-                       step_source=source, settled=bool(settled))
+                       step_source=source, settled=bool(settled), sample_interval=sample_interval)
 
 
 def cut_segments(time: np.ndarray, output: np.ndarray, input: np.ndarray | None,
                  edges: Sequence[Edge], *, channel_noise: float, quantisation_step: float | None,
-                 settling_band: float, bounds: Sequence[tuple[int, int]] | None = None
-                 ) -> tuple[StepSegment, ...]:
+                 settling_band: float, bounds: Sequence[tuple[int, int]] | None = None,
+                 sample_interval: float = math.nan) -> tuple[StepSegment, ...]:
     """One StepSegment per edge (see the module docstring for the windows).
 
     ``bounds`` gives the (start, stop) of each window when already known.
@@ -214,7 +215,7 @@ def cut_segments(time: np.ndarray, output: np.ndarray, input: np.ndarray | None,
         bounds = window_bounds(time, edges)
     return tuple(describe_window(time, output, input, start, stop, edge,
                                  channel_noise=channel_noise, quantisation_step=quantisation_step,
-                                 settling_band=settling_band)
+                                 settling_band=settling_band, sample_interval=sample_interval)
                  for edge, (start, stop) in zip(edges, bounds))
 
 
@@ -271,7 +272,7 @@ def average_segments(segments: Sequence[StepSegment], edges: Sequence[Edge], *,
         avg = describe_window(t_avg, out_sum / n, None if in_sum is None else in_sum / n,
                               0, grid.size, pseudo, channel_noise=noise,
                               quantisation_step=None, settling_band=settling_band,
-                              averaged_edges=n)
+                              averaged_edges=n, sample_interval=sample_interval)
         result.append(replace(avg, start=first_seg.start, stop=first_seg.stop,
                               noise_rms=noise))
     result.sort(key=lambda s: s.edge_time)

@@ -21,7 +21,8 @@ from ..errors import FitError, FitkitError
 from ..units import format_value
 from ..forms import FORMS, delayed, get_form, pulse_response
 from ..forms.base import Form
-from ..results import CandidateScore, Estimate, FitDiagnostics, FitResult, FittedSegment
+from ..results import (CandidateScore, ChannelRoles, Estimate, FitDetails, FitDiagnostics, FitResult,
+                       FittedSegment)
 from .adequacy import assess
 from .engine import FormFit, fit_form, sample_interval
 from .information import has_measured_input
@@ -233,13 +234,10 @@ def _fit_analysis(capture: Capture, analysis, *, model, edge_time, average, cand
             raise FitError(err.message, path=path, hint=err.hint) from None
         raise
     from ..conditioning.drive_period import period_of_edges
-    roles = {"input": analysis.input_channel, "output": analysis.output_channel,
-             "why": [d for d in analysis.decisions if "channel" in d]}
-    extra = {**result.extra, "channels": roles}
-    period = period_of_edges(analysis.edges)
-    if period is not None:
-        extra["drive_period"] = period
-    return dataclasses.replace(result, extra=extra)
+    roles = ChannelRoles(analysis.input_channel, analysis.output_channel,
+                         tuple(d for d in analysis.decisions if "channel" in d))
+    details = dataclasses.replace(result.details, channels=roles, drive_period=period_of_edges(analysis.edges))
+    return dataclasses.replace(result, details=details)
 
 
 #: The forms tried for a stated pulse drive without a drive channel (each as its pulse response).
@@ -283,17 +281,17 @@ def _build(cand: Candidate, scores: tuple, reason: str, warnings: list[str], fil
         reason = (f"{ff.form.name} fitted best of the forms tried, but does not describe the capture"
                   if len(scores) > 1 else f"{ff.form.name} was asked for, but does not describe the capture")
     fitted = _fitted_segments(ff)
-    edges = [{k: v.to_dict() for k, v in level_estimates(ff, i).items()} for i in range(len(segments))]
+    edges = tuple(level_estimates(ff, i) for i in range(len(segments)))
     seen: list[str] = []
     for w in warnings + diag_warn:
         if w not in seen:
             seen.append(w)
-    extra = {"form_summary": ff.form.summary, "edges": edges,
-             "mode": "measured input" if ff.joint.measured_input else "ideal step",
-             "bin_size": max(d.bin_size for d in ff.joint.data)}
+    details = FitDetails(form_summary=ff.form.summary, edges=edges,
+                         mode="measured input" if ff.joint.measured_input else "ideal step",
+                         bin_size=max(d.bin_size for d in ff.joint.data))
     return FitResult(file=file, model=ff.form.name, parameters=params, derived=derived, selection=scores,
                      selection_reason=reason, diagnostics=diagnostics, segments=fitted,
-                     warnings=tuple(seen), extra=extra, adequacy=adequacy)
+                     warnings=tuple(seen), details=details, adequacy=adequacy)
 
 
 def _add_gain(ff: FormFit, params: dict[str, Estimate], derived: dict[str, Estimate]) -> None:
@@ -344,7 +342,8 @@ def _diagnostics(ff: FormFit, segments: Sequence[StepSegment]):
         correction += f"; intervals widened up to x{widening:.2f}"
     diag = FitDiagnostics(n_samples=fit.n, rms_residual=rms, noise_rms=expected, residual_lag1=corr.lag1,
                           effective_samples=fit.n / corr.variance_ratio, ci_widening=widening,
-                          correction=correction, structured_residual=structured, criterion_name=CRITERION)
+                          correction=correction, structured_residual=structured, criterion_name=CRITERION,
+                          n_parameters=ff.n_parameters)
     return diag, warnings, adequacy
 
 

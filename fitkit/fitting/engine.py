@@ -118,9 +118,9 @@ def make_scaling(segments: Sequence[StepSegment], form: Form, measured_input: bo
 
 
 def sample_interval(segments: Sequence[StepSegment]) -> float:
-    """Median sample interval of the first segment (s), NaN with fewer than two samples."""
-    d = np.diff(np.asarray(segments[0].time, dtype=float))
-    return float(np.median(d)) if d.size else math.nan
+    """The first segment's sample interval (s; StepSegment.sample_interval, the capture's),
+    NaN with fewer than two samples."""
+    return float(segments[0].sample_interval)
 
 
 def to_internal(joint: JointModel, physical: Mapping[str, float]) -> dict[str, float]:

@@ -27,6 +27,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import linalg
 
+from ..conditioning.noise import noise_from_differences
 from .block_jacobian import edge_columns
 from .joint_model import JointModel
 from .measured_input import superposition_adjoint, superposition_kernel
@@ -51,12 +52,10 @@ def input_noise_autocovariance(joint: JointModel, i: int) -> np.ndarray:
         m = min(model_rho.size, n)
         gamma[:m] = var * model_rho[:m]
         return gamma
-    diffs = np.diff(d.u)
-    if diffs.size:
-        # white noise: var(diff) = 2 var(noise); the median absolute deviation
-        # ignores the edge itself (1.4826 MAD = sigma for Gaussian noise)
-        mad = float(np.median(np.abs(diffs - np.median(diffs))))
-        gamma[0] = (1.4826 * mad) ** 2 / 2.0
+    # white noise from the first differences (the one estimator; its median ignores the edge itself)
+    sigma = noise_from_differences(d.u)
+    if np.isfinite(sigma):
+        gamma[0] = sigma ** 2
     return gamma
 
 

@@ -150,7 +150,7 @@ def whitening_applies(joint: JointModel, min_points: int = MIN_WHITENING_POINTS)
         if d.bin_size != 1 or d.y.size < MIN_PIECE_POINTS:
             return False
         dt = np.diff(np.asarray(seg.time, dtype=float))
-        step = float(np.median(dt))
+        step = float(seg.sample_interval)
         if not step > 0 or float(np.max(np.abs(dt - step))) > UNIFORM_TOLERANCE * step:
             return False
     return True

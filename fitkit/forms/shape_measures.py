@@ -30,11 +30,12 @@ def after_edge(t_rel: np.ndarray, y_norm: np.ndarray) -> tuple[np.ndarray, np.nd
 
 
 def noise_level(y: np.ndarray) -> float:
-    """Robust noise standard deviation from successive differences (MAD / 0.6745 / sqrt 2)."""
-    d = np.diff(np.asarray(y, dtype=float))
-    if d.size < 2:
-        return 0.0
-    return float(np.median(np.abs(d - np.median(d))) / 0.6745 / math.sqrt(2.0))
+    """Noise standard deviation of a normalised trace for starting guesses: the one
+    estimator (fitkit.conditioning.noise.noise_from_differences), 0.0 where it has no
+    answer (fewer than three samples), so a guess's noise floor stays a number."""
+    from ..conditioning.noise import noise_from_differences
+    sigma = noise_from_differences(y)
+    return sigma if math.isfinite(sigma) else 0.0
 
 
 def crossing_time(t: np.ndarray, y: np.ndarray, level: float, rising: bool = True) -> float:

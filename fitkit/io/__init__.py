@@ -18,14 +18,13 @@ from ..capture import Capture
 from ..errors import OptionError
 from ..units import BASE_UNITS, parse_value, unit_scale
 from .binary import read_npz, read_parquet, save_npz, save_parquet
-from .checks import robust_noise_sigma
 from .delimited import read_delimited
 from .join import INPUT_KEY, OUTPUT_KEY, join_input_output
 from .sniff import read_head
 
 TEXT_SUFFIXES = (".csv", ".txt", ".tsv", ".dat", ".asc", ".prn")
 
-__all__ = ["load_capture", "check_read_options", "checked_numbers", "save_npz", "save_parquet", "robust_noise_sigma", "join_input_output",
+__all__ = ["load_capture", "check_read_options", "checked_numbers", "save_npz", "save_parquet", "join_input_output",
            "INPUT_KEY", "OUTPUT_KEY"]
 
 
@@ -122,7 +121,8 @@ def check_read_options(*, path=None, second_path=None, encoding=None, time_unit=
     from numbers import Integral
 
     from ..errors import ArgumentError
-    from .layouts import COUNT_WORDS, time_factor
+    from .layouts import time_factor
+    from .unit_cells import COUNT_WORDS
     for name, value in (("path", path), ("second_path", second_path)):
         if value is not None and not isinstance(value, (str, os.PathLike)):
             raise ArgumentError(f"load_capture: {name} must be a file path (str or Path), "

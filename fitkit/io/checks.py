@@ -1,4 +1,4 @@
-"""Checks run on every capture after reading, and a robust noise estimate.
+"""Checks run on every capture after reading.
 
 Each check either raises a CaptureError (the capture cannot be used) or
 returns plain-words warnings that the reader attaches to the Capture. All
@@ -7,7 +7,7 @@ times in seconds, values in the channel's SI unit (volts for voltage channels).
 
 from __future__ import annotations
 
-from typing import Callable, Sequence
+from typing import Callable
 
 import numpy as np
 
@@ -21,27 +21,6 @@ NONUNIFORM_SPREAD = 0.01
 #: most this fraction of the rows and at most MAX_DROPPED_ROWS rows.
 MAX_DROPPED_FRACTION = 0.01
 MAX_DROPPED_ROWS = 10
-
-
-def robust_noise_sigma(values: Sequence[float] | np.ndarray) -> float:
-    """Robust estimate of the white-noise standard deviation of a trace.
-
-    Uses the median absolute deviation of first differences:
-    ``sigma = 1.4826 * MAD(diff(values)) / sqrt(2)``. Differencing removes slow
-    signal (steps, exponentials), and the median ignores the few large
-    differences at the edges. 1.4826 makes the MAD of a Gaussian equal its
-    standard deviation; the difference of two independent samples has variance
-    2 sigma^2, hence the sqrt(2). Returns 0.0 for a noiseless (or quantised and
-    mostly constant) trace and NaN for fewer than three finite samples.
-    Same unit as ``values``.
-    """
-    v = np.asarray(values, dtype=float)
-    v = v[np.isfinite(v)]
-    if v.size < 3:
-        return float("nan")
-    d = np.diff(v)
-    mad = np.median(np.abs(d - np.median(d)))
-    return float(1.4826 * mad / np.sqrt(2.0))
 
 
 def first_nonincreasing(time: np.ndarray, steps: np.ndarray | None = None) -> int | None:

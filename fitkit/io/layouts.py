@@ -17,7 +17,7 @@ from ..errors import CaptureError, OptionError
 from ..units import unit_scale
 from . import metadata as md
 from .sniff import TextSample, TextShape, is_comment
-from .unit_cells import COUNT_WORDS, INDEX_WORDS, clean_unit as _clean_unit, looks_like_unit  # noqa: F401
+from .unit_cells import COUNT_WORDS, INDEX_WORDS, clean_unit, looks_like_unit
 
 TIME_NAMES = {"time", "t", "zeit", "temps", "tiempo", "seconds", "sec", "timestamp", "time stamp",
               "elapsed time", "relative time", "x axis", "horizontal"}
@@ -36,19 +36,19 @@ def split_name_unit(name: str) -> tuple[str, str]:
     """('Time', 's') from 'Time (s)', 'Time [s]' or 'Time/s'; the unit is '' when none is written."""
     m = _NAME_UNIT.match(name)
     if m and m.group(1):
-        return m.group(1).strip(), _clean_unit(m.group(2))
+        return m.group(1).strip(), clean_unit(m.group(2))
     m = _NAME_TIME_SUFFIX.match(name.strip())
     if m:
         return m.group(1), m.group(2)
     m = _NAME_SLASH.match(name)
     if m and m.group(1) and looks_like_unit(m.group(2)):
-        return m.group(1).strip(), _clean_unit(m.group(2))
+        return m.group(1).strip(), clean_unit(m.group(2))
     return name.strip(), ""
 
 
 def time_factor(unit: str) -> float | None:
     """Seconds per unit of a time column ('ms' -> 1e-3), None if not a time unit."""
-    u = _clean_unit(unit)
+    u = clean_unit(unit)
     if not u:
         return None
     factor, si = unit_scale(u)
@@ -202,7 +202,7 @@ def _time_column_factor(shape: TextShape, j: int, t_unit: str, given: bool, head
         raise CaptureError(f"time column unit {t_unit!r} is not a time unit", path=path,
                            hint="give the unit with --time-unit (s, ms, us, ns)")
     if f is not None:
-        decisions.append(f"time unit: {_clean_unit(t_unit)}" + (" (given)" if given else ""))
+        decisions.append(f"time unit: {clean_unit(t_unit)}" + (" (given)" if given else ""))
         return f
     v = _numbers(shape, j, shape.decimal)
     step = (v[-1] - v[0]) / (len(v) - 1) if len(v) >= 2 and v[-1] > v[0] else None
@@ -256,7 +256,7 @@ def _names_and_units(shape: TextShape, meta: dict[str, str]) -> tuple[dict[int, 
         urow = shape.header_rows[1]
         for j in cols:
             if j < len(urow) and urow[j]:
-                units[j] = _clean_unit(urow[j])
+                units[j] = clean_unit(urow[j])
         for j, key in enumerate(row):  # e.g. start time and increment beside the channels
             if j not in cols and key and j < len(urow) and urow[j]:
                 meta.setdefault(key, urow[j])
@@ -348,7 +348,7 @@ def _channel_plans(shape: TextShape, channel_cols: list[int], names: dict[int, s
     plans: list[ChannelPlan] = []
     for k, j in enumerate(channel_cols, start=1):
         name = names.get(j) or source_name or f"ch{k}"
-        src_unit = _clean_unit(value_unit or units.get(j) or vertical_units or "")
+        src_unit = clean_unit(value_unit or units.get(j) or vertical_units or "")
         counts = None
         raw_counts = src_unit.lower() in COUNT_WORDS or (not src_unit and _integers(shape, j))
         if vertical_scale is not None:

@@ -23,7 +23,7 @@ from ..capture import Capture
 from ..circuits import Circuit, measurement_chain_effect, nearest_preferred
 from ..conditioning.segment import StepSegment
 from ..errors import CircuitError, FitError
-from ..results import Estimate, FitResult, json_number
+from ..results import CircuitDetails, Estimate, FitResult, json_number
 from .behavioural import RouteOne, route_one
 from ..fitting.information import has_measured_input
 from .direct import DirectFit, direct_fits
@@ -79,10 +79,10 @@ def fit_circuit_segments(segments: Sequence[StepSegment], circuit: Circuit, *,
     Estimate (value, stderr, ci95, unit "Ohm"/"F"/"H", determined) per
     unknown part (undetermined ones: value NaN, determined=False);
     ``parameters`` the levels of the first edge; ``derived`` tau / f0 / Q /
-    DC gain of the fitted circuit with propagated intervals; ``extra``:
-    "solutions", "identifiability", "preferred", "chain_effect",
-    "behavioural_route", "routes_agree", "determination", "rss" (V^2),
-    "aicc", "n_samples", "n_parameters", "level_model".
+    DC gain of the fitted circuit with propagated intervals; ``circuit`` (a
+    fitkit.results.CircuitDetails): solutions, identifiability, preferred,
+    chain_effect, behavioural_route, routes_agree, determination, rss (V^2),
+    aicc, n_samples, n_parameters, level_model.
     Raises CircuitError when no unknown can be determined, FitError when no fit converges.
     """
     segments = tuple(segments)
@@ -258,26 +258,23 @@ def _assemble(fits: list[DirectFit], r1: RouteOne | None, problem: PartProblem, 
             seen.append(w)
     level_model = ("per-edge baseline and one shared gain, driven by the measured input" if measured
                    else "per-edge baseline and step, ideal step")
-    extra = dict(res.extra)
-    extra.update({
-        "form_summary": f"circuit {problem.circuit.name}: parts {', '.join(problem.fitted)} fitted directly",
-        "circuit": problem.circuit.name,
-        "unknowns": list(problem.unknowns),
-        "held": {n: json_number(v) for n, v in problem.held.items()},
-        "solutions": solutions,
-        "identifiability": problem.report.to_dict(),
-        "preferred": preferred,
-        "determination": determination,
-        "chain_effect": chain_effect,
-        "measurement_chain": chain.to_dict(),
-        "behavioural_route": None if r1 is None else r1.to_dict(),
-        "routes_agree": agree,
-        "routes_comparison": agree_detail,
-        "level_model": level_model + "; levels are not tied to the circuit's DC gain, so only the shape "
-                       "and timing of the response inform the parts",
-        "rss": json_number(best.rss), "aicc": json_number(best.aicc),
-        "n_samples": best.n_points, "n_parameters": best.n_parameters,
-    })
+    details = CircuitDetails(
+        circuit=problem.circuit.name,
+        form_summary=f"circuit {problem.circuit.name}: parts {', '.join(problem.fitted)} fitted directly",
+        unknowns=tuple(problem.unknowns),
+        held={n: json_number(v) for n, v in problem.held.items()},
+        solutions=tuple(solutions),
+        identifiability=problem.report.to_dict(),
+        preferred=preferred,
+        determination=determination,
+        chain_effect=chain_effect,
+        measurement_chain=chain.to_dict(),
+        behavioural_route=None if r1 is None else r1.to_dict(),
+        routes_agree=agree,
+        routes_comparison=agree_detail,
+        level_model=level_model + "; levels are not tied to the circuit's DC gain, so only the shape "
+                    "and timing of the response inform the parts",
+        rss=best.rss, aicc=best.aicc, n_samples=best.n_points, n_parameters=best.n_parameters)
     return replace(res, model="circuit:" + problem.circuit.name, parameters=parameters,
-                   components=components, warnings=tuple(seen), extra=extra,
+                   components=components, warnings=tuple(seen), circuit=details,
                    selection_reason=f"parts of circuit {problem.circuit.name} fitted directly")

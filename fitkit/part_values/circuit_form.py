@@ -56,12 +56,6 @@ def normalisation_kind(tf: TransferFunction) -> str:
     return "fixed"
 
 
-def step_response_any_shape(tf: TransferFunction, t: np.ndarray) -> np.ndarray:
-    """Unit-step response for a time array of any shape (seconds): TransferFunction.step_response
-    (partial fractions for simple poles, the matrix exponential for repeated ones)."""
-    return tf.step_response(np.asarray(t, dtype=float))
-
-
 def circuit_form(circuit: Circuit, unknowns: Sequence[str], time_unit: float,
                  starts: Sequence[Mapping[str, float]], name: str) -> Form:
     """The circuit as a Form with the ``unknowns`` as shape parameters (SI values).
@@ -111,7 +105,7 @@ def circuit_form(circuit: Circuit, unknowns: Sequence[str], time_unit: float,
         y = responses.get(key)
         if y is None:
             tf = tf_of(shape)
-            y = step_response_any_shape(tf, t_rel * time_unit) / scale_of(tf)
+            y = tf.step_response(t_rel * time_unit) / scale_of(tf)
             responses[key] = y
             if len(responses) > RESPONSE_CACHE_SIZE:
                 responses.popitem(last=False)

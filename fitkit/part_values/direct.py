@@ -31,7 +31,7 @@ from ..conditioning.segment import StepSegment
 from ..errors import FitError
 from ..fitting import fit_segments
 from ..fitting.engine import make_scaling
-from ..fitting.information import corrected_aic, has_measured_input
+from ..fitting.information import corrected_aic, has_measured_input, residual_sum
 from ..results import FitResult
 from .circuit_form import circuit_form
 from .problem import PartProblem
@@ -60,14 +60,6 @@ class DirectFit:
         return corrected_aic(self.rss, self.n_points, self.n_parameters)
 
 
-def _n_parameters(n_parts: int, n_edges: int, measured_input: bool, result: FitResult) -> int:
-    if result.selection:
-        return result.selection[0].n_parameters
-    if measured_input:
-        return n_parts + 1 + n_edges
-    return n_parts + n_edges * (3 if "t0" in result.parameters else 2)
-
-
 def direct_fits(segments: Sequence[StepSegment], problem: PartProblem, starts: Sequence[Mapping[str, float]],
                 *, measured_input: bool | None = None, intervals: str = "auto", file: str = "",
                 warnings: Sequence[str] = ()) -> tuple[list[DirectFit], list[str]]:
@@ -89,10 +81,8 @@ def direct_fits(segments: Sequence[StepSegment], problem: PartProblem, starts: S
         values = {n: result.parameters[n].value for n in problem.fitted}
         if any(all(abs(math.log(values[n] / f.values[n])) < SAME_SOLUTION for n in values) for f in fits):
             continue
-        rss = float(sum(np.sum((s.data - s.fitted) ** 2) for s in result.segments))
-        n_points = int(sum(s.data.size for s in result.segments))
-        k = _n_parameters(len(problem.fitted), len(segments), measured, result)
-        fits.append(DirectFit(start, result, rss, n_points, k))
+        rss, n_points = residual_sum(result)
+        fits.append(DirectFit(start, result, rss, n_points, result.diagnostics.n_parameters))
     return fits, notes
 
 

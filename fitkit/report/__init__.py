@@ -36,6 +36,7 @@ _LAZY = {
     "write_check_report": "check_tables",
     "render_check_text": "check_text",
     "plot_check": "check_plots",
+    "renderer_for": "renderers",
 }
 
 __all__ = list(_LAZY)

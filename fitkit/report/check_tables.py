@@ -17,7 +17,7 @@ from typing import Any
 
 from ..units import format_interval, format_value
 from .check_text import (SUSPECT_DELTA_MEANING, TIE_MEANING, output_unit_of, percent_text, rank_mark,
-                         summary_after_banner)
+                         shows_suspects, summary_after_banner)
 from .quantities import unique_lines
 
 #: Columns of the check CSV (see check_result_csv).
@@ -65,7 +65,7 @@ def check_records(result) -> list[dict[str, Any]]:
         rows.append(dict(kind="suspect", name=s.part, value=_number(s.value), ci95_low=lo, ci95_high=hi,
                          unit=s.unit, limit_low=None, limit_high=None, nominal=_number(s.nominal),
                          verdict=f"rank {rank_mark(rank, s, result)}",
-                         note=f"ΔAICc {s.evidence:.1f}; {s.pattern}"))
+                         note=(f"ΔAICc {s.evidence:.1f}; " if math.isfinite(s.evidence) else "") + s.pattern))
     return rows
 
 
@@ -143,14 +143,15 @@ def check_html_sections(result) -> list[tuple[str, str]]:
         "check-parts", ["part", "nominal", "tolerance", "implied value", "judged interval", "verdict", "note"],
         rows) + "<p>Each part alone, the others at nominal; judged on the 95 % interval widened by the "
                 "other parts' tolerances.</p>"))
-    if result.suspects:
+    if result.suspects and shows_suspects(result):
         named = {id(s) for s in named_suspects(result)}
         rows = [("named" if id(s) in named else "other",
                  [rank_mark(i, s, result), s.part,
-                  _v(s.value, s.unit) if s.value is not None else "(values exchanged)", _iv(s.ci95, s.unit),
-                  f"{s.evidence:.1f}", s.pattern]) for i, s in enumerate(result.suspects, start=1)]
-        intro = ("<p>The board passes; these single-part explanations are for reference.</p>"
-                 if result.verdict == "pass" else "<p>Most likely first.</p>")
+                  _v(s.value, s.unit) if s.value is not None else "(values exchanged)" if s.kind == "swap"
+                  else "-", _iv(s.ci95, s.unit),
+                  f"{s.evidence:.1f}" if math.isfinite(s.evidence) else "-", s.pattern])
+                for i, s in enumerate(result.suspects, start=1)]
+        intro = "<p>Most likely first.</p>"
         intro += f"<p>{_e(SUSPECT_DELTA_MEANING)}; {_e(TIE_MEANING)}.</p>"
         notes = "".join(f"<li>{_e(m)}</li>" for m in (result.diagnosis.messages if result.diagnosis else ()))
         sections.append(("Suspects", intro + _table(

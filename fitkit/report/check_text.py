@@ -11,6 +11,7 @@ inconclusive check; warnings last.
 
 from __future__ import annotations
 
+import math
 import re
 
 from ..units import format_interval, format_value
@@ -100,8 +101,10 @@ def render_check_text(result) -> str:
         lines.append(title)
         lines.append(f"  rank  {'part':<12} {'implied value, 95 % interval':<40} {'ΔAICc':>8}   pattern")
         for i, s in enumerate(result.suspects, start=1):
-            value = f"{_v(s.value, s.unit)} {_iv(s.ci95, s.unit)}" if s.value is not None else "(values exchanged)"
-            lines.append(f"  {rank_mark(i, s, result):<5} {s.part:<12} {value:<40} {s.evidence:8.1f}   {s.pattern}")
+            value = (f"{_v(s.value, s.unit)} {_iv(s.ci95, s.unit)}" if s.value is not None
+                     else "(values exchanged)" if s.kind == "swap" else "-")
+            delta = f"{s.evidence:8.1f}" if math.isfinite(s.evidence) else f"{'-':>8}"
+            lines.append(f"  {rank_mark(i, s, result):<5} {s.part:<12} {value:<40} {delta}   {s.pattern}")
         lines.append(f"  ({SUSPECT_DELTA_MEANING}; {TIE_MEANING})")
         if result.diagnosis is not None:
             lines += [f"  - {m}" for m in result.diagnosis.messages]

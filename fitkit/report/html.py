@@ -10,8 +10,7 @@ chosen form and why, the figure, the tables of parameters, derived quantities
 and components with 95 % intervals, the candidate forms (selection evidence),
 diagnostics, warnings and the input file's provenance.
 
-Extension points for check mode: ``verdict`` (or ``result.extra["verdict"]``)
-shows a verdict banner, ``extra_sections`` adds (heading, HTML) sections such
+Extension points for check mode: ``verdict`` shows a verdict banner, ``extra_sections`` adds (heading, HTML) sections such
 as the tolerance table and the suspects, and ``plot_options`` is passed to
 report.plots.plot_fit (``envelope=``, ``notes=``).
 """
@@ -83,8 +82,6 @@ def _e(value: Any) -> str:
 
 
 def _verdict_of(result: FitResult, verdict: Any) -> str | None:
-    if verdict is None and result.extra:
-        verdict = result.extra.get("verdict")
     if isinstance(verdict, Mapping):
         verdict = verdict.get("overall", verdict.get("verdict"))
     return None if verdict in (None, "") else str(verdict)
@@ -132,10 +129,10 @@ def _summary(result: FitResult) -> str:
     if not result.describes_data:
         items.insert(0, ("NOT A MEASUREMENT", result.adequacy.finding))
         items += [("what would work", fix) for fix in result.adequacy.fixes]
-    channels = (result.extra or {}).get("channels")
-    if channels:
-        items.append(("channels", (f"input {channels['input']!r}, " if channels.get("input") else "no input, ")
-                      + f"output {channels['output']!r}"))
+    channels = result.details.channels
+    if channels is not None:
+        items.append(("channels", (f"input {channels.input!r}, " if channels.input else "no input, ")
+                      + f"output {channels.output!r}"))
     if result.selection_reason:
         items.append(("why this form", result.selection_reason))
     aside = set_aside_lines(result)

@@ -42,8 +42,9 @@ def render_fit_text(result: FitResult, quiet: bool = False) -> str:
     for kind in ("parameter", "derived", "component"):
         rows = [r for r in quantity_rows(result, skip_repeated=True) if r.kind == kind]
         if rows:
-            preferred = (result.extra or {}).get("preferred") if kind == "component" else None
-            determination = (result.extra or {}).get("determination") if kind == "component" else None
+            part_fit = result.circuit if kind == "component" else None
+            preferred = part_fit.preferred if part_fit is not None else None
+            determination = part_fit.determination if part_fit is not None else None
             title = _SECTION_TITLES[kind]
             if not result.describes_data:
                 title += " of the rejected fit (not measurements: no intervals)"
@@ -110,15 +111,15 @@ def _header(result: FitResult) -> str:
     lines = [("file", result.file or "(in memory)"), ("form", result.model or "(none)")]
     if result.selection_reason:
         lines.append(("why", result.selection_reason))
-    mode = (result.extra or {}).get("mode")
-    if mode:
-        n_edges = len((result.extra or {}).get("edges") or [])
-        lines.append(("mode", f"{mode}" + (f", {n_edges} edge(s) fitted jointly" if n_edges else "")))
-    channels = (result.extra or {}).get("channels")
-    if channels:
-        lines.append(("channels", (f"input {channels['input']!r}, " if channels.get("input") else "no input, ")
-                      + f"output {channels['output']!r}"))
-    period = (result.extra or {}).get("drive_period")
+    details = result.details
+    if details.mode:
+        n_edges = len(details.edges)
+        lines.append(("mode", details.mode + (f", {n_edges} edge(s) fitted jointly" if n_edges else "")))
+    channels = details.channels
+    if channels is not None:
+        lines.append(("channels", (f"input {channels.input!r}, " if channels.input else "no input, ")
+                      + f"output {channels.output!r}"))
+    period = details.drive_period
     if period:
         lines.append(("drive", f"square wave, edges every {format_quantity(period, 's')} "
                                f"({format_quantity(1.0 / period, 'Hz')}) on the file's time axis; if the "
@@ -128,10 +129,6 @@ def _header(result: FitResult) -> str:
     runner = runner_up_text(result)
     if runner:
         lines.append(("runner-up", runner))
-    verdict = result.extra.get("verdict") if result.extra else None
-    if verdict:
-        lines.append(("verdict", str(verdict.get("overall", verdict)) if isinstance(verdict, dict)
-                      else str(verdict)))
     return "Step-response fit\n" + "\n".join(_align([[k, v] for k, v in lines]))
 
 
@@ -184,7 +181,7 @@ def _diagnostics_block(result: FitResult) -> str:
                 and math.isfinite(d.ci_widening) else "n/a")
     rows = [
         ["samples fitted", f"{d.n_samples}{eff}"],
-        *([["binned", str(result.extra["binning"])]] if result.extra.get("binning") else []),
+        *([["binned", result.details.binning]] if result.details.binning else []),
         [FINAL_RMS, rms],
         ["residual lag-1 correlation", f"{d.residual_lag1:.2f}" if math.isfinite(d.residual_lag1) else "n/a"],
         ["interval correction", d.correction or "none"],
@@ -208,11 +205,11 @@ def _circuit_notes(result: FitResult) -> str:
     """For component fits (fitkit.part_values): other solutions, what one capture
     cannot determine, whether the two solving routes agree, and how much the
     measurement chain shifts the circuit's quantities. Empty for plain fits."""
-    extra = result.extra or {}
-    if not result.components:
+    part_fit = result.circuit
+    if not result.components or part_fit is None:
         return ""
     lines: list[str] = []
-    solutions = extra.get("solutions") or []
+    solutions = part_fit.solutions
     if len(solutions) > 1:
         lines += [f"other solutions that fit equally well ({len(solutions)} in all; the first is reported above)"]
         for sol in solutions[1:]:
@@ -220,15 +217,15 @@ def _circuit_notes(result: FitResult) -> str:
                                for n, v in sol.get("values", {}).items()
                                if v is not None and n in result.components)
             lines.append(_INDENT + values)
-    ident = extra.get("identifiability") or {}
+    ident = part_fit.identifiability
     if ident.get("undetermined"):
         lines += ["what one capture cannot determine"] + [_INDENT + m for m in ident.get("messages", [])]
-    if extra.get("routes_agree") is not None:
-        form = (extra.get("behavioural_route") or {}).get("form", "behavioural")
-        word = "agree" if extra["routes_agree"] else "DISAGREE"
+    if part_fit.routes_agree is not None:
+        form = (part_fit.behavioural_route or {}).get("form", "behavioural")
+        word = "agree" if part_fit.routes_agree else "DISAGREE"
         lines.append(f"two routes: the {form} fit mapped to parts and the direct fit {word} "
                      "within their 95 % intervals")
-    chain = extra.get("chain_effect")
+    chain = part_fit.chain_effect
     if chain and chain.get("messages"):
         lines += ["measurement chain"] + [_INDENT + m for m in chain["messages"]]
     return ("Circuit notes\n" + "\n".join(_INDENT + line for line in lines)) if lines else ""

@@ -141,7 +141,7 @@ def make_segments(model: str, *, n_edges: int = 1, baseline: float = 0.1, step: 
 
 def make_result(model: str = "underdamped", *, n_edges: int = 1, undetermined: tuple[str, ...] = (),
                 components: dict[str, tuple[float, str]] | None = None,
-                warnings: tuple[str, ...] = (), extra: dict | None = None,
+                warnings: tuple[str, ...] = (),
                 file: str = "bench/board_017.csv", seed: int = 0) -> FitResult:
     """A FitResult as the engine would fill it, for form ``model``.
 
@@ -174,7 +174,7 @@ def make_result(model: str = "underdamped", *, n_edges: int = 1, undetermined: t
                      selection_reason=f"{model} has the lowest AICc, lower than {others[0]} by 52.2 "
                                       "(margin required: 10)",
                      diagnostics=diag, segments=segments, warnings=tuple(warnings),
-                     components=comps, extra=dict(extra or {}))
+                     components=comps)
 
 
 # -- checks of the simulation the report tests rely on ---------------------------------
