@@ -303,3 +303,13 @@ def test_a_lone_glitch_is_repaired_and_said_so_but_an_edge_is_not_a_glitch(tmp_p
     r = fit_capture(load_capture(_write(tmp_path / "glitch.csv", t, {"out": out})))
     assert r.describes_data and _covers(r.parameters["tau"], tau)
     assert any("lone one-sample spike" in w for w in r.warnings)
+
+
+def test_a_misfit_where_the_fitted_form_has_settled_is_refused(tmp_path):
+    # the high-pass decay forced on an overdamped band-pass (output alone): the decay has settled
+    # where the data still move, so the misfit sits in the "quiet" part, not where the form moves
+    path = _rlc_across_r(tmp_path, 2000.0, 10e-3, 100e-9, with_input=False, seed=16, dt=0.5e-6)
+    r = fit_capture(load_capture(path), model="first-order-decay")
+    assert not r.describes_data
+    assert r.adequacy.misfit_ratio > 2.0
+    assert "where the fitted form has settled" in r.adequacy.finding
