@@ -147,7 +147,9 @@ def run_cell(cell: tuple, seed: int, folder: Path) -> dict:
     try:
         r = check_capture(capture, design_for(topo), envelope_trials=40, **roles)
     except Exception as exc:  # noqa: BLE001 - a study records every outcome
-        return {"cell": list(map(str, cell)), "error": f"{type(exc).__name__}: {exc}"}
+        # the message names the temporary file; the results keep only its name (no machine path)
+        message = str(exc).replace(f"{folder}/", "")
+        return {"cell": list(map(str, cell)), "error": f"{type(exc).__name__}: {message}"}
     out = {"cell": list(map(str, cell)), "seconds": time.perf_counter() - t0, "verdict": r.verdict,
            "at_bound": sum(1 for s in r.suspects if s.value is not None and s.nominal
                            and abs(math.log(s.value / s.nominal)) >= math.log(PLAUSIBLE_SPAN))}
