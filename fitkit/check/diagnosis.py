@@ -43,7 +43,7 @@ from ..circuits import identifiability
 from ..circuits.preferred import candidates_around
 from ..conditioning.segment import StepSegment
 from ..errors import FitError
-from ..fitting.api import capture_noise
+from ..fitting.adequacy import capture_noise
 from ..fitting.information import has_measured_input
 from ..results import Estimate, json_number
 from .design import Design, PartSpec

@@ -206,14 +206,15 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
                                     hint="remove or crop the rows with gaps before conditioning")
     out_noise = estimate_noise(out_ch.values)
     spikes = lone_spikes(out_ch.values, out_noise.rms)
+    spike_note = ""
     if spikes.size:
         out_ch = replace(out_ch, values=repaired(out_ch.values, spikes))
         if edge_ch.name == out_ch.name:
             edge_ch = out_ch
         at = ", ".join(format_value(float(capture.time[i]), "s") for i in spikes[:5])
-        decisions.append(f"{spikes.size} lone one-sample spike(s) in {out_ch.name!r} (at {at}) replaced by the "
-                         "mean of their neighbours: a glitch, not a response")
-    spike_note = decisions[-1] if spikes.size else ""
+        spike_note = (f"{spikes.size} lone one-sample spike(s) in {out_ch.name!r} (at {at}) replaced by the "
+                      "mean of their neighbours: a glitch, not a response")
+        decisions.append(spike_note)
     edge_noise = out_noise if edge_ch is out_ch else estimate_noise(edge_ch.values)
     search, levels, neighbours = _edge_search(capture, edge_ch, edge_noise, edge_time)
     edges = search.edges

@@ -25,6 +25,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
+import math
+
 import numpy as np
 
 from ..results import json_number
@@ -156,3 +158,21 @@ def state_levels(values: np.ndarray, *, quantisation_step: float | None = None) 
     amplitude = high - low
     return StateLevels(low, high, vmin, vmax, method,
                        _occupancy(sample, low, amplitude), _occupancy(sample, high, amplitude), peak_ratio)
+
+
+def drifts(t: np.ndarray, y: np.ndarray, tolerance: float) -> bool:
+    """True when a straight line through (t in s, y in V) changes by more than ``tolerance`` (V)
+    across the samples and its slope stands more than 4 standard errors from zero (a level that
+    is still moving, not noise about a level; common practice, no source). False under 3 samples."""
+    t = np.asarray(t, dtype=float)
+    y = np.asarray(y, dtype=float)
+    if y.size < 3:
+        return False
+    tc = t - t.mean()
+    sxx = float(tc @ tc)
+    if not sxx > 0:
+        return False
+    slope = float(tc @ (y - y.mean())) / sxx
+    resid = y - y.mean() - slope * tc
+    se = math.sqrt(float(resid @ resid) / max(y.size - 2, 1) / sxx)
+    return abs(slope) * float(t[-1] - t[0]) > tolerance and abs(slope) > 4 * se

@@ -25,6 +25,7 @@ import numpy as np
 
 from ..errors import ConditioningError
 from ..units import format_value
+from .levels import drifts
 from .metrics import StepMetrics
 from .segment import StepSegment
 
@@ -154,21 +155,9 @@ def begins_moving(segment: StepSegment) -> bool:
     edge time being its mid-level crossing without a drive channel) changes by more than
     MOVING_SIGMAS noise sigmas and MOVING_SHARE of the step."""
     n = segment.n_before_edge // 2
-    if n < 3:
-        return False
-    t = np.asarray(segment.time[:n], dtype=float)
-    y = np.asarray(segment.output[:n], dtype=float)
-    tc = t - t.mean()
-    sxx = float(tc @ tc)
-    if not sxx > 0:
-        return False
-    slope = float(tc @ (y - y.mean())) / sxx
-    resid = y - y.mean() - slope * tc
-    se = math.sqrt(float(resid @ resid) / max(n - 2, 1) / sxx)  # n >= 3
-    change = abs(slope) * float(t[-1] - t[0])
     noise = segment.noise_rms if math.isfinite(segment.noise_rms) else 0.0
     step = abs(segment.step_size) if math.isfinite(segment.step_size) else 0.0
-    return change > max(MOVING_SIGMAS * noise, MOVING_SHARE * step) and abs(slope) > 4 * se
+    return drifts(segment.time[:n], segment.output[:n], max(MOVING_SIGMAS * noise, MOVING_SHARE * step))
 
 
 def no_edge_error(channel: str, looked_for: str, path: str | None) -> ConditioningError:

@@ -16,6 +16,20 @@ import numpy as np
 from ..results import json_number
 
 
+#: A recorded drive "returns" when it ends within this share of its largest excursion from where
+#: it began (a pulse inside the window); an output likewise returns to its baseline.
+RETURN_FRACTION = 0.3
+
+
+def drive_returns(drive: np.ndarray | None, before: float | None, after: float | None) -> bool:
+    """True when a recorded drive (V) ends near where it began: a pulse inside the window, which
+    explains an output that returns to its baseline as well."""
+    if drive is None or before is None or after is None or not np.asarray(drive).size:
+        return False
+    excursion = float(np.max(np.abs(np.asarray(drive, dtype=float) - before)))
+    return abs(after - before) < RETURN_FRACTION * excursion
+
+
 @dataclass(frozen=True)
 class StepSegment:
     """One edge and the response around it.
@@ -90,6 +104,11 @@ class StepSegment:
     @property
     def n_points(self) -> int:
         return int(self.time.size)
+
+    @property
+    def drive_returns(self) -> bool:
+        """The recorded drive ends near where it began (see :func:`drive_returns`)."""
+        return drive_returns(self.input, self.input_before, self.input_after)
 
     @property
     def n_before_edge(self) -> int:

@@ -48,7 +48,8 @@ import numpy as np
 
 from .edges import Edge
 from .noise import robust_sigma
-from .segment import StepSegment
+from .levels import drifts
+from .segment import RETURN_FRACTION, StepSegment, drive_returns
 
 #: Part of the interval to the previous edge that a window reaches back.
 PRE_EDGE_FRACTION = 0.25
@@ -56,8 +57,6 @@ PRE_EDGE_FRACTION = 0.25
 FINAL_FRACTION = 0.2
 #: Part of the post-edge samples tested for a remaining drift: from .. to (fractions of the window).
 TAIL_SPAN = (0.6, 0.95)
-#: A final level within this share of the peak excursion counts as "back at the baseline".
-RETURN_FRACTION = 0.3
 #: The pre-edge noise is measured in up to this many blocks of at least this many samples (the quietest counts).
 NOISE_BLOCKS = 4
 NOISE_BLOCK_SAMPLES = 256
@@ -87,17 +86,7 @@ def window_bounds(time: np.ndarray, edges: Sequence[Edge]) -> list[tuple[int, in
 
 def _tail_settled(t: np.ndarray, y: np.ndarray, tolerance: float) -> bool:
     """False when a line through (t, y) changes by more than ``tolerance`` significantly."""
-    if y.size < 4:
-        return True
-    tc = t - t.mean()
-    sxx = float(np.dot(tc, tc))
-    if sxx <= 0:
-        return True
-    slope = float(np.dot(tc, y - y.mean()) / sxx)
-    resid = y - y.mean() - slope * tc
-    se = math.sqrt(float(np.dot(resid, resid)) / (y.size - 2) / sxx)
-    change = abs(slope) * float(t[-1] - t[0])
-    return not (change > tolerance and abs(slope) > 4 * se)
+    return y.size < 4 or not drifts(t, y, tolerance)
 
 
 def _baseline_noise(t: np.ndarray, y: np.ndarray, quantised: bool, floor: float = 0.0) -> float:
@@ -178,10 +167,8 @@ def describe_window(time: np.ndarray, output: np.ndarray, input: np.ndarray | No
     peak_excursion = float(excursion[k])
     returns = (abs(final - baseline) < RETURN_FRACTION * abs(peak_excursion)
                and abs(peak_excursion) > 6 * (noise if np.isfinite(noise) else 0.0))
-    if returns and u is not None and u.size and input_before is not None and input_after is not None:
-        # a drive that returns as well (a pulse inside the window) explains an output that does
-        drive_excursion = float(np.max(np.abs(u - input_before)))
-        returns = not abs(input_after - input_before) < RETURN_FRACTION * drive_excursion
+    # a drive that returns as well (a pulse inside the window) explains an output that does
+    returns = returns and not drive_returns(u, input_before, input_after)
     if returns:
         if input_before is not None and input_after is not None and input_after != input_before:
             step_size, source = input_after - input_before, "input step"

@@ -55,6 +55,13 @@ MIN_PART_POINTS = 8
 MOVING_FRACTION = 0.02
 
 
+def capture_noise(segments) -> float:
+    """The output noise of a capture (V rms) that residuals are compared with: the median of its
+    segments' estimates, NaN when none."""
+    noises = [s.noise_rms for s in segments if math.isfinite(s.noise_rms) and s.noise_rms > 0]
+    return float(np.median(noises)) if noises else math.nan
+
+
 def _rms(x: np.ndarray, counts: np.ndarray) -> float:
     """RMS per sample of bin-mean residuals ``x`` already scaled by sqrt(counts)."""
     n = float(np.sum(counts))

@@ -19,18 +19,20 @@ from ..conditioning.analysis import BELOW_ONE_CODE
 from ..conditioning.segment import StepSegment
 from ..errors import FitError, FitkitError
 from ..units import format_value
-from ..forms import FORMS, delayed, get_form, pulse_response
+from ..forms import FORMS, get_form, pulse_response
 from ..forms.base import Form
-from ..results import (CandidateScore, ChannelRoles, Estimate, FitDetails, FitDiagnostics, FitResult,
+from ..results import (ChannelRoles, Estimate, FitDetails, FitDiagnostics, FitResult,
                        FittedSegment)
-from .adequacy import assess
+from .adequacy import assess, capture_noise
 from .engine import FormFit, fit_form, sample_interval
+from .further_forms import rescued, with_dead_time
 from .information import has_measured_input
 from .estimates import derived_estimates, level_estimates, shape_estimates
 from .noise_record import NoiseRecord
+from .response_shape import moves_wrong_way, returns_to_baseline
 from .quantised import ROUNDED_GAUSSIAN, quantised_refit
-from .selection import (CRITERION, MARGIN, rms_residual, FALLBACK_CANDIDATES, Candidate, admissibility, choose,
-                        default_candidates, needs_fallback)
+from .selection import (CRITERION, FALLBACK_CANDIDATES, Candidate, admissibility, choose, default_candidates,
+                        needs_fallback)
 
 #: Above this many samples per segment, candidate forms are compared on bins
 #: of at most this many points per segment (see fit_segments).
@@ -95,7 +97,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         reason = f"{chosen_form.name} was asked for"
         return _build(cand, scores, reason, extra_warn + list(warnings), file, segments, derived)
     forms = [f if isinstance(f, Form) else get_form(f) for f in candidates] if candidates \
-        else default_candidates(_returns_to_baseline(segments), _moves_wrong_way(segments),
+        else default_candidates(returns_to_baseline(segments), moves_wrong_way(segments[:SELECTION_EDGES]),
                                 measured_input if measured_input is not None else has_measured_input(segments))
     cands: list[Candidate] = []
     queue = list(forms)
@@ -123,10 +125,10 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
             queue = [FORMS[n] for n in FALLBACK_CANDIDATES if n in FORMS and n not in tried]
     chosen, scores, reason, sel_warn = choose(cands, dt)
     if candidates is None:
-        chosen, scores, reason, sel_warn = _with_dead_time(chosen, scores, reason, sel_warn, cands, trial,
-                                                         dt, select_kwargs)
-        chosen, scores, reason, sel_warn = _rescued(chosen, scores, reason, sel_warn, cands, trial,
-                                                    dt, select_kwargs)
+        chosen, scores, reason, sel_warn = with_dead_time(chosen, scores, reason, sel_warn, cands, trial,
+                                                        dt, select_kwargs)
+        chosen, scores, reason, sel_warn = rescued(chosen, scores, reason, sel_warn, cands, trial,
+                                                   dt, select_kwargs)
     final = chosen.fit
     if coarse:
         refit = fit_form(segments, chosen.form, **kwargs)
@@ -240,16 +242,13 @@ def _fit_analysis(capture: Capture, analysis, *, model, edge_time, average, cand
     return dataclasses.replace(result, details=details)
 
 
-#: The forms tried for a stated pulse drive without a drive channel (each as its pulse response).
-PULSE_CANDIDATES = ("first-order", "two-real-pole", "underdamped", "three-real-pole")
-
-
 def _pulse_forms(model, candidates, width: float):
-    """(model, candidates) as responses to a pulse of ``width`` seconds (the width held)."""
+    """(model, candidates) as responses to a pulse of ``width`` seconds (the width held); the
+    candidates by default the usual low-pass forms (a pulse response comes back by itself)."""
     if model != "auto":
         return pulse_response(model if isinstance(model, Form) else get_form(model), width), candidates
-    names = candidates if candidates is not None else PULSE_CANDIDATES
-    return model, [pulse_response(n if isinstance(n, Form) else get_form(n), width) for n in names]
+    forms = candidates if candidates is not None else default_candidates(returns_to_baseline=False)
+    return model, [pulse_response(f if isinstance(f, Form) else get_form(f), width) for f in forms]
 
 
 # -- assembling the result ------------------------------------------------------
@@ -300,7 +299,7 @@ def _add_gain(ff: FormFit, params: dict[str, Estimate], derived: dict[str, Estim
     if seg.input_before is None or seg.input_after is None:
         return
     in_step = seg.input_after - seg.input_before
-    if in_step == 0 or _drive_returns(seg):  # no step to scale: the drive is a pulse inside the window
+    if in_step == 0 or seg.drive_returns:  # no step to scale: the drive is a pulse inside the window
         return
     if "gain" in params:  # measured-input mode: the step follows from the gain
         g = params["gain"]
@@ -312,12 +311,6 @@ def _add_gain(ff: FormFit, params: dict[str, Estimate], derived: dict[str, Estim
         ci = None if s.ci95 is None else tuple(sorted((s.ci95[0] / in_step, s.ci95[1] / in_step)))
         derived["gain"] = Estimate("gain", s.value / in_step, None if s.stderr is None else s.stderr / abs(in_step),
                                    ci, "", s.interval_method, s.determined)
-
-
-def capture_noise(segments: Sequence[StepSegment]) -> float:
-    """The output noise of a capture (V rms): the median of its segments' estimates, NaN when none."""
-    noises = [s.noise_rms for s in segments if math.isfinite(s.noise_rms) and s.noise_rms > 0]
-    return float(np.median(noises)) if noises else math.nan
 
 
 def _diagnostics(ff: FormFit, segments: Sequence[StepSegment]):
@@ -358,111 +351,6 @@ def _fitted_segments(ff: FormFit) -> tuple[FittedSegment, ...]:
     return tuple(out)
 
 
-def _with_dead_time(chosen: Candidate, scores, reason: str, sel_warn: list[str], cands: list[Candidate],
-                    segments: Sequence[StepSegment], dt: float, kwargs: dict):
-    """In measured-input mode, the chosen form behind a dead time when the data ask for it.
-
-    A logger that samples its output a period after its input, or a transport
-    delay, shifts the whole response; without a delay parameter a fit explains
-    the shift with a slower pole (a second time constant several times too
-    long). The delayed variant of the chosen form (and of its simpler
-    admissible rivals) is fitted; it is kept when it lowers the criterion by
-    more than the margin and its shape and delay are determined. The other
-    candidates' scores stay as they were.
-    """
-    if chosen.fit is None or not chosen.fit.joint.measured_input:
-        return chosen, scores, reason, sel_warn
-    inflation = min(c.fit.correction.variance_ratio for c in cands if c.admissible and c.fit is not None)
-    base = chosen.fit.aicc(inflation)
-    rivals = [chosen.form] + [c.form for c in cands if c.admissible and c.fit is not None and c is not chosen
-                              and c.fit.n_parameters <= chosen.fit.n_parameters]
-    best = None
-    for form in rivals:
-        wrapped = delayed(form)
-        try:
-            ff = fit_form(segments, wrapped, **kwargs)
-        except FitError:
-            continue
-        if not ff.converged:
-            continue
-        shape, _ = shape_estimates(ff, "covariance")
-        ok, _why = admissibility(wrapped, shape, dt)
-        delay = shape.get("delay")
-        if not ok or delay is None or delay.ci95 is None or not delay.ci95[0] > 0:
-            continue
-        crit = ff.aicc(inflation)
-        if crit < base - MARGIN and (best is None or crit < best[0]):
-            best = (crit, Candidate(wrapped, ff, shape, True, ""))
-    if best is None:
-        return chosen, scores, reason, sel_warn
-    crit, cand = best
-    delay = cand.shape["delay"]
-    reason = (f"{cand.form.name}: the response lags the measured input by a dead time "
-              f"({format_value(delay.value, 's')}), which lowers {CRITERION} by {base - crit:.1f} against "
-              f"{chosen.form.name} without it")
-    note = (f"a dead time of {format_value(delay.value, 's')} between the input and the output (a logger that "
-            "samples its output later than its input, or a transport delay) is fitted; a pole much faster "
-            "than it cannot be told from it")
-    rescored = [dataclasses.replace(sc, delta=sc.criterion - crit, note="" if sc.note == "chosen" else sc.note)
-                for sc in scores]
-    rescored.append(CandidateScore(model=cand.form.name, converged=True, n_parameters=cand.fit.n_parameters,
-                                   criterion=crit, delta=0.0, rms_residual=rms_residual(cand.fit), note="chosen"))
-    return cand, tuple(rescored), reason, list(sel_warn) + [note]
-
-
-#: Forms fitted only when the usual candidates leave the capture undescribed (residuals far above
-#: the noise): a zero in the left half-plane (more overshoot than the poles give), a lead or lag
-#: network, a fourth pole. They then compete by the same rules, among those that describe it.
-RESCUE_CANDIDATES = ("underdamped-zero", "pole-zero", "four-real-pole")
-
-
-def _rescued(chosen: Candidate, scores, reason: str, sel_warn: list[str], cands: list[Candidate],
-             segments: Sequence[StepSegment], dt: float, kwargs: dict):
-    """When the chosen form does not describe the capture, the rarer forms of RESCUE_CANDIDATES are
-    fitted too; the one with the lowest AICc among those that are admissible and describe the
-    capture is chosen (said in the reason). They join ``cands`` either way, so a refusal can name
-    them as what would work."""
-    noise = capture_noise(segments)
-    if chosen.fit is None or assess(chosen.fit, noise, chosen.fit.correction.lag1).describes_data:
-        return chosen, scores, reason, sel_warn
-    tried = {c.form.name for c in cands}
-    describing = []
-    for name in RESCUE_CANDIDATES:
-        if name in tried or name not in FORMS:
-            continue
-        form = FORMS[name]
-        try:
-            ff = fit_form(segments, form, **kwargs)
-        except FitError:
-            continue
-        if not ff.converged:
-            continue
-        shape, _ = shape_estimates(ff, "covariance")
-        ok, why = admissibility(form, shape, dt)
-        cand = Candidate(form, ff, shape, ok, why)
-        cands.append(cand)
-        if ok and assess(ff, noise, ff.correction.lag1).describes_data:
-            describing.append(cand)
-    if not describing:
-        return chosen, scores, reason, sel_warn
-    inflation = min(c.fit.correction.variance_ratio for c in cands if c.admissible and c.fit is not None)
-    best = min(describing, key=lambda c: c.fit.aicc(inflation))
-    crit = best.fit.aicc(inflation)
-    ratio = assess(chosen.fit, noise, chosen.fit.correction.lag1).misfit_ratio
-    reason = (f"{best.form.name}: the usual candidates do not describe the capture ({chosen.form.name} left "
-              f"residuals {ratio:.1f} times the noise); of the forms tried then, it describes it with the "
-              f"lowest {CRITERION}")
-    rescored = [dataclasses.replace(sc, delta=sc.criterion - crit, note="" if sc.note == "chosen" else sc.note)
-                for sc in scores]
-    for c in cands:
-        if c.form.name in RESCUE_CANDIDATES and c.fit is not None:
-            c_crit = c.fit.aicc(inflation)
-            rescored.append(CandidateScore(model=c.form.name, converged=True, n_parameters=c.fit.n_parameters,
-                                           criterion=c_crit, delta=c_crit - crit, rms_residual=rms_residual(c.fit),
-                                           note="chosen" if c is best else c.note))
-    return best, tuple(rescored), reason, list(sel_warn)
-
-
 def _alternative_forms(chosen: Form, candidates: Sequence[Candidate],
                        segments: Sequence[StepSegment]) -> list[str]:
     """For a chosen form that does not describe the capture: the other candidates
@@ -499,46 +387,3 @@ def _runaway_note(ff: FormFit, dt: float) -> str:
         return ""
     return (f"; {fast[0]} was running below the sample interval ({shape[fast[0]]:.3g} s < {dt:.3g} s): "
             "the data show no such time constant")
-
-
-def _drive_returns(seg: StepSegment) -> bool:
-    """True when the segment's recorded drive ends near where it began (a pulse inside the window)."""
-    if seg.input is None or seg.input_before is None or seg.input_after is None or not np.asarray(seg.input).size:
-        return False
-    drive_excursion = float(np.max(np.abs(np.asarray(seg.input, dtype=float) - seg.input_before)))
-    return abs(seg.input_after - seg.input_before) < 0.2 * drive_excursion
-
-
-def _returns_to_baseline(segments: Sequence[StepSegment]) -> bool:
-    """True when the response decays back to its pre-edge level (high-pass shape) while its
-    drive, when recorded, does not (a drive pulse that returns is the low-pass forms' case)."""
-    seg = segments[0]
-    if _drive_returns(seg):
-        return False
-    excursion = float(np.max(np.abs(np.asarray(seg.output) - seg.baseline))) if seg.output.size else 0.0
-    return excursion > 0 and abs(seg.final - seg.baseline) < 0.2 * excursion
-
-
-#: A response "first moves the wrong way" when, before it first crosses half its step, its
-#: 5-sample running mean goes against the step by more than this many noise sigmas ...
-WRONG_WAY_SIGMAS = 6.0
-#: ... and by more than this fraction of the step (common practice, no source).
-WRONG_WAY_FRACTION = 0.02
-
-
-def _moves_wrong_way(segments: Sequence[StepSegment]) -> bool:
-    """True when, on most edges, the output first moves against its step (an undershoot: a
-    right-half-plane zero, or a probe or ground artefact) before it rises."""
-    votes = []
-    for seg in segments[:SELECTION_EDGES]:
-        step = float(seg.final - seg.baseline)
-        if seg.returns_to_baseline or not (math.isfinite(step) and step != 0.0) or seg.output.size < 10:
-            continue
-        y = (np.asarray(seg.output, dtype=float) - seg.baseline) / step
-        smooth = np.convolve(y, np.ones(5) / 5.0, mode="valid")
-        crossed = np.flatnonzero(smooth > 0.5)
-        before = smooth[:crossed[0]] if crossed.size else smooth
-        noise = seg.noise_rms / abs(step) if math.isfinite(seg.noise_rms) else 0.0
-        depth = -float(np.min(before)) if before.size else 0.0
-        votes.append(depth > max(WRONG_WAY_SIGMAS * noise / math.sqrt(5.0), WRONG_WAY_FRACTION))
-    return bool(votes) and sum(votes) > len(votes) / 2
