@@ -46,6 +46,9 @@ Q_UNDERDAMPED = 3.0
 CARRY_HALF_PERIODS = 3
 
 CHILD = r"""
+import os
+for var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(var, "1")  # one BLAS thread, as the fitkit command runs (fitkit/cli/__init__.py)
 import json, sys, time
 from fitkit.io import load_capture
 from fitkit.fitting import fit_capture

@@ -7,10 +7,16 @@ results, the board simulator, the reference-data location, the PostgreSQL test s
 
 from __future__ import annotations
 
+import os
 import sys
 from pathlib import Path
 
-import pytest
+# one BLAS thread per test process, as the fitkit command runs (fitkit/cli/__init__.py):
+# two pytest workers on two cores with two BLAS threads each spin against each other
+for _threads in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_threads, "1")
+
+import pytest  # noqa: E402
 
 TESTS = Path(__file__).resolve().parent
 if str(TESTS) not in sys.path:  # `support` must import under --import-mode=importlib too

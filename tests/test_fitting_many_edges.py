@@ -122,3 +122,51 @@ def test_an_edge_unlike_the_others_is_named():
     warnings = fit_capture(capture(t, y), model="first-order", intervals="covariance").warnings
     named = [w for w in warnings if "does not follow the shared response" in w]
     assert len(named) == 1 and named[0].startswith("edge 17 of 40")
+
+
+def test_every_edge_at_once_is_each_edge_alone():
+    """The model of all edges in one evaluation (nodes of weight 0 skipped; the
+    measured inputs convolved side by side) is the model of each edge evaluated
+    on its own, binned windows included."""
+    from fitkit.fitting.engine import make_scaling
+    from fitkit.fitting.joint_model import JointModel
+
+    t, y, tau = square_wave(40_000, 16, seed=4)
+    u = (((np.arange(t.size) + 40_000 // 32) // (40_000 // 16)) % 2 == 1).astype(float)
+    cap = Capture(time=t, channels=(Channel("input", u, "V", "V"), Channel("output", y, "V", "V")))
+    segments = analyse_steps(cap).segments
+    form = get_form("underdamped")
+    shape = {"f0": 0.3, "Q": 2.0}
+    for measured in (False, True):
+        for max_points in (4000, 300):  # two point budgets: bins of up to 5-20 and 8-52 samples
+            joint = JointModel(form, segments, make_scaling(segments, form, measured), measured_input=measured,
+                               free_t0=not measured, max_points=max_points)
+            if measured:
+                alone = [joint.unit_response(i, shape) + joint.previous_tail(i, shape, {})
+                         for i in range(len(segments))]
+                together = joint.input_responses(shape)
+            else:
+                delays = np.linspace(-0.2, 0.2, len(segments))
+                alone = [joint.unit_response(i, shape, d) for i, d in enumerate(delays)]
+                together = joint.stacked_responses(shape, delays)
+            np.testing.assert_allclose(together, np.concatenate(alone), rtol=0, atol=1e-12)
+
+
+def test_refit_from_a_few_edges_shape_is_the_grid_search_optimum():
+    """The chosen form is refitted to every edge from its fit on the first few
+    (shape_start); that search ends where the search from the grid of starts does."""
+    t, y, _ = square_wave(20_000, 40, seed=12)
+    segments = analyse_steps(capture(t, y)).segments
+    form = get_form("first-order")
+    few = fit_form(segments[:8], form)
+    tau_few = few.joint.scaling.shape_from_log_scaled(form.shape[0], few.fit.values["log_tau"])
+    started = fit_form(segments, form, shape_start={"tau": tau_few})
+    grid = fit_form(segments, form)
+    se = grid.fit.stderr["log_tau"]
+    tau_started = started.joint.scaling.shape_from_log_scaled(form.shape[0], started.fit.values["log_tau"])
+    tau_grid = grid.joint.scaling.shape_from_log_scaled(form.shape[0], grid.fit.values["log_tau"])
+    assert abs(math.log(tau_started / tau_grid)) < 1e-3 * se
+    assert started.fit.stderr["log_tau"] == pytest.approx(se, rel=1e-4)
+    # consecutive windows never share a sample
+    segs = started.joint.segments
+    assert all(a.time[-1] < b.time[0] for a, b in zip(segs, segs[1:]))

@@ -90,3 +90,29 @@ def test_double_pole_fallback_when_no_second_order_form_holds():
     failed = [Candidate(FORMS[n], None, {}, False, "did not converge") for n in ("two-real-pole", "underdamped")]
     assert needs_fallback(failed)
     assert not needs_fallback(failed[:1] + [Candidate(FORMS["underdamped"], None, {}, True, "")])
+
+
+def test_real_pole_forms_are_not_fitted_to_a_ringing_response():
+    """A product of first-order lags has a positive impulse response (a convolution
+    of decaying exponentials), so its step response cannot overshoot: once the
+    two-real-pole fit lies clearly beyond Q = 1/2 the three-real-pole form is not
+    fitted, and the candidate table says why. Response from scipy.signal (step_scipy)."""
+    rng = np.random.default_rng(8)
+    seg = simulated_segment(second_order_tf(50e3, 3.0), dt=1 / (50e3 * 40), n_before=60, n_after=440,
+                            rng=rng, noise=0.02)
+    r = fit_segments([seg], "auto", intervals="covariance", derived=False)
+    three = next(c for c in r.selection if c.model == "three-real-pole")
+    assert not three.converged and three.note.startswith("not tried: the response rings")
+    assert r.model == "underdamped"
+
+
+def test_real_pole_forms_are_fitted_when_the_response_does_not_ring():
+    # three separated real poles (no overshoot): the three-real-pole candidate is fitted;
+    # response from python-control (step_control)
+    rng = np.random.default_rng(9)
+    tf = ([1.0], list(np.polymul(np.polymul([1e-6, 1.0], [0.3e-6, 1.0]), [0.1e-6, 1.0])))
+    seg = simulated_segment(tf, dt=1e-6 / 40, n_before=60, n_after=440, rng=rng, noise=0.002,
+                            simulator=step_control)
+    r = fit_segments([seg], "auto", intervals="covariance", derived=False)
+    three = next(c for c in r.selection if c.model == "three-real-pole")
+    assert three.converged and not three.note.startswith("not tried")

@@ -217,6 +217,22 @@ def test_whitening_stays_within_each_edge():
     np.testing.assert_allclose(both[20:], w.apply(x[20:], [0, 30]))
 
 
+def test_prediction_error_filter_is_scipy_lfilter():
+    """Past each piece's first p points the whitened series is the FIR filter
+    [1, -phi_1, ..., -phi_p] as scipy.signal.lfilter runs it within the piece."""
+    rng = np.random.default_rng(4)
+    rho = 0.8 ** np.arange(12)
+    w = Whitener(autoregressive_model(rho, 10**6, max_order=4), rho[1])
+    p = w.order
+    x = rng.standard_normal((70, 3))
+    bounds = [0, 2, 40, 70]  # a piece shorter than p, and two longer ones
+    out = w.apply(x, bounds)
+    b = np.concatenate([[1.0], -w.model.coefficients])
+    for lo, hi in zip(bounds[:-1], bounds[1:]):
+        ref = signal.lfilter(b, [1.0], x[lo:hi], axis=0)
+        np.testing.assert_allclose(out[lo + p:hi], ref[p:], atol=1e-13)
+
+
 def test_not_applied_to_binned_records_or_measured_input():
     """A long record is fitted on bin averages, and a measured input is propagated
     separately: neither is whitened; the sandwich correction applies as before."""

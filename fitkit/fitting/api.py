@@ -27,6 +27,7 @@ from .adequacy import assess, capture_noise
 from .engine import FormFit, fit_form, sample_interval
 from .further_forms import rescued, with_dead_time
 from .information import has_measured_input
+from .region_estimates import beyond_range_sigmas
 from .estimates import derived_estimates, level_estimates, shape_estimates
 from .noise_record import NoiseRecord
 from .response_shape import moves_wrong_way, returns_to_baseline
@@ -41,6 +42,8 @@ SELECTION_POINTS_PER_SEGMENT = 1000
 #: first this-many edges (the evidence of eight edges decides a form as well as
 #: that of hundreds, at a fraction of the cost); the chosen form is fitted to all.
 SELECTION_EDGES = 8
+#: Forms of real poles alone (no zero): their step response rises without overshoot.
+REAL_POLES_ONLY = ("three-real-pole", "four-real-pole", "five-real-pole")
 #: RMS residual above this multiple of the noise earns a warning even when the form is kept
 #: (the adequacy gate, fitkit.fitting.adequacy, refuses far larger structured misfits).
 STRUCTURE_RATIO = 1.5
@@ -107,8 +110,18 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
     trial = tuple(segments[:SELECTION_EDGES])
     coarse = any(s.n_points > SELECTION_POINTS_PER_SEGMENT for s in trial) or len(trial) < len(segments)
     select_kwargs = dict(kwargs, max_points=SELECTION_POINTS_PER_SEGMENT) if coarse else kwargs
+    if len(trial) < len(segments):
+        # compared as on a long record's bins: with the correlated-residual
+        # correction but no whitened refit (a form that misses the ringing
+        # leaves correlated residuals, and refitting it whitened cost seconds per
+        # candidate); the chosen form's fit to every edge is whitened as usual
+        select_kwargs = dict(select_kwargs, whitened_refit=False)
     while queue:
         f = queue.pop(0)
+        rings = _rings(cands) if f.name in REAL_POLES_ONLY else ""
+        if rings:
+            cands.append(Candidate(f, None, {}, False, rings))
+            continue
         try:
             ff = fit_form(trial, f, **select_kwargs)
         except FitError as err:
@@ -131,7 +144,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
                                                    dt, select_kwargs)
     final = chosen.fit
     if coarse:
-        refit = fit_form(segments, chosen.form, **kwargs)
+        refit = fit_form(segments, chosen.form, shape_start=_physical_shape(chosen.fit), **kwargs)
         if refit.converged:
             final = refit
         elif len(trial) < len(segments):
@@ -368,6 +381,35 @@ def _alternative_forms(chosen: Form, candidates: Sequence[Candidate],
             why = f" (set aside: {c.note})" if c.note else ""
             fixes.append(f"--form {c.form.name} leaves residuals {other.misfit_ratio:.1f} times the noise{why}")
     return fixes
+
+
+def _rings(candidates: Sequence[Candidate]) -> str:
+    """Why a form of real poles alone is not tried ('' when it is): the two-real-pole
+    fit lies beyond Q = 1/2 by more than its interval, so the response rings.
+
+    The step response of 1/prod(1 + s tau_i) cannot ring: its impulse response is
+    a convolution of decaying exponentials, each positive, so it is positive and
+    the step response rises monotonically (no overshoot). Fitting such a form to a
+    ringing response costs the most of all the candidates and cannot win."""
+    for c in candidates:
+        if c.form.name == "two-real-pole" and c.fit is not None and c.fit.converged:
+            beyond = beyond_range_sigmas(c.fit)
+            if beyond > c.fit.tq:
+                return (f"not tried: the response rings (the two-real-pole fit lies {beyond:.1f} standard "
+                        "errors above Q = 1/2), and real poles alone give a step response that cannot ring")
+    return ""
+
+
+def _physical_shape(ff: FormFit) -> dict[str, float]:
+    """A fit's shape parameters in physical units by name, and its median edge delay
+    ``t0`` (s) when the edge times were fitted: the start of a refit of the same form."""
+    joint, values = ff.joint, ff.fit.values
+    out = {spec.name: joint.scaling.shape_from_log_scaled(spec, values["log_" + spec.name])
+           for spec in ff.form.shape if "log_" + spec.name in values}
+    delays = [values[k] for k in values if k.startswith("t0_")]
+    if delays:
+        out["t0"] = float(np.median(delays)) * joint.scaling.time_unit
+    return out
 
 
 def _runaway_note(ff: FormFit, dt: float) -> str:

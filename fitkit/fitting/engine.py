@@ -154,7 +154,8 @@ def to_internal(joint: JointModel, physical: Mapping[str, float]) -> dict[str, f
 def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: bool | None = None,
              free_t0: bool | None = None, start: Mapping[str, float] | None = None,
              fixed: Mapping[str, float] | None = None, correlation: str = "auto",
-             max_points: int = MAX_POINTS_PER_SEGMENT, noise_record: NoiseRecord | None = None) -> FormFit:
+             max_points: int = MAX_POINTS_PER_SEGMENT, noise_record: NoiseRecord | None = None,
+             shape_start: Mapping[str, float] | None = None, whitened_refit: bool = True) -> FormFit:
     """Fit ``form`` jointly to ``segments`` (shared shape, per-edge levels).
 
     measured_input: drive the transfer function with the measured input
@@ -171,9 +172,17 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
         the fit is then whitened by it (generalised least squares with that
         noise model) wherever whitening applies, however short the capture.
         Its sample interval must be the capture's.
+    shape_start: physical shape values by name (e.g. from a fit of a few of the
+        edges) to start the search from instead of the grid of starts; the
+        levels and delays are then solved for that shape. When that search
+        does not converge the grid's starts are tried as usual.
+    whitened_refit: False keeps the ordinary fit with its correlated-residual
+        correction instead of refitting whitened (:mod:`.whitening`) when the
+        residuals are correlated; a noise record is used either way.
     """
     if not segments:
         raise FitError("no step segments to fit", hint="check that the capture holds at least one edge")
+    segments = _consecutive_windows_trimmed(segments)
     has_input = has_measured_input(segments)
     measured_input = has_input if measured_input is None else measured_input
     if free_t0 is None:
@@ -188,6 +197,12 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
                        max_points=max_points)
     # a wrapper's own given parameter (a stated pulse width) is held wherever the form is fitted
     fixed_int = to_internal(joint, {**dict(getattr(form, "held", {}) or {}), **dict(fixed or {})})
+    project = not start and can_project(joint, fixed_int)
+    if shape_start and project:
+        found = _search(joint, _shape_started(joint, shape_start, fixed_int), fixed_int)
+        if found.converged:
+            return _finished(joint, finish_projected(joint, found, fixed_int), fixed_int, project, correlation,
+                             noise_record, segments, whitened_refit)
     starts = best_starts(joint, keep=STARTS_REFINED)
     if start:
         # A given start is tried as given, and with its levels solved linearly
@@ -206,7 +221,6 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     # levels projected out of the nonlinear search (see .projection) unless a
     # start was given (the NIST checks start the full problem where NIST does)
     # or a level is held fixed
-    project = not start and can_project(joint, fixed_int)
     if project:
         starts = _piloted(joint, starts, fixed_int)
     best: ModelFit | None = None
@@ -236,10 +250,34 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
         fit = _run(joint, nudged, fixed_int, project)
         if fit.converged and (not fit.singular or fit.rss < best.rss):
             best = fit
+    return _finished(joint, best, fixed_int, project, correlation, noise_record, segments, whitened_refit)
+
+
+def _shape_started(joint: JointModel, shape_start: Mapping[str, float], fixed: Mapping[str, float]
+                   ) -> dict[str, float]:
+    """Internal start values from a physical shape: every edge's levels (and a
+    common delay) solved for that shape."""
+    internal = to_internal(joint, {k: v for k, v in shape_start.items()
+                                   if k in {p.name for p in joint.form.shape}})
+    shape = joint.shape_scaled({**{"log_" + p.name: 0.0 for p in joint.form.shape}, **internal})
+    delay = float(shape_start.get("t0", 0.0)) / joint.scaling.time_unit if joint.free_t0 else 0.0
+    start = dict(internal)
+    if joint.measured_input:
+        start["gain"] = 1.0
+    start.update(projected_levels(joint, shape, delay)[1])
+    start.update(fixed)
+    return {k: start.get(k, 0.0) for k in joint.names if k not in fixed}
+
+
+def _finished(joint: JointModel, best: ModelFit, fixed_int: Mapping[str, float], project: bool,
+              correlation: str, noise_record: NoiseRecord | None, segments: Sequence[StepSegment],
+              whitened_refit: bool = True) -> FormFit:
+    """The best fit trimmed where windows overlap, in canonical order, with its
+    correlated-residual correction, whitened refit and measured-input noise."""
+    form = joint.form
     trimmed = _trim_overlaps(joint, best)
     if trimmed is not None:  # an edge window ran into the next edge's response: refit without it
-        trimmed_joint = JointModel(form, trimmed, scaling, measured_input=measured_input, free_t0=free_t0,
-                                   max_points=max_points)
+        trimmed_joint = joint.with_segments(trimmed)
         refit = _run(trimmed_joint, {k: best.values[k] for k in best.names}, fixed_int, project)
         if refit.converged or not best.converged:  # else the untrimmed fit stands, with its own windows
             joint, best = trimmed_joint, refit
@@ -260,7 +298,7 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
         else:
             notes.append("the noise record was not used: generalised least squares applies to unbinned captures "
                          "without an input channel (fit the output alone, or fewer samples per edge)")
-    elif correction.applied and whitening_applies(joint):  # feasible GLS, see .whitening
+    elif whitened_refit and correction.applied and whitening_applies(joint):  # feasible GLS, see .whitening
         joint, best, correction = whitened_fit(joint, best, fixed_int, correction, correlation, **whiten)
     if joint.measured_input:
         correction = _with_input_noise(joint, best, correction)
@@ -435,6 +473,26 @@ def _trim_overlaps(joint: JointModel, fit: ModelFit) -> list[StepSegment] | None
                 segs[i] = _trimmed(seg, keep)
                 changed = True
     return segs if changed else None
+
+
+def _consecutive_windows_trimmed(segments: Sequence[StepSegment]) -> tuple[StepSegment, ...]:
+    """Each window of one record cut where the next window starts.
+
+    Consecutive windows overlap (the next starts a quarter interval before its
+    edge); the samples they share would count twice. Cutting them before the
+    fit, rather than after it (:func:`_trim_overlaps`, which still cuts where
+    a fitted edge time says so), saves a second search over every edge."""
+    segs = list(segments)
+    for i in range(len(segs) - 1):
+        seg, nxt = segs[i], segments[i + 1]
+        if seg.averaged_edges != 1 or nxt.averaged_edges != 1 or seg.stop < nxt.start:
+            continue
+        limit = float(nxt.time[0])
+        if seg.time[-1] >= limit > seg.edge_time:
+            keep = int(np.searchsorted(seg.time, limit, side="left"))
+            if keep >= 8:
+                segs[i] = _trimmed(seg, keep)
+    return tuple(segs)
 
 
 #: Trimmed segments kept for reuse, so the next candidate form finds the same

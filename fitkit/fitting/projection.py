@@ -43,22 +43,20 @@ def projected_model(joint: JointModel, values: Mapping[str, float]) -> tuple[dic
     out: dict[str, float] = {}
     if joint.measured_input:
         # baseline_i = weighted mean of (y_i - gain f_i); gain from the pooled centred sums
-        sxy = sxx = 0.0
-        parts = []
-        for i, d in enumerate(joint.data):
-            w2 = d.counts.astype(float)
-            f = joint.unit_response(i, shape) + joint.previous_tail(i, shape, values)
-            fm, ym = float(w2 @ f) / w2.sum(), float(w2 @ d.y) / w2.sum()
-            fc = f - fm
-            sxy += float((w2 * fc) @ (d.y - ym))
-            sxx += float((w2 * fc) @ fc)
-            parts.append((fm, ym, f))
-        gain = sxy / sxx if sxx > 0 else 0.0
+        f = joint.input_responses(shape)
+        e = joint.stacked.edge_of_point
+        starts = joint.bounds[:-1]
+        w2 = joint.weights ** 2
+        total = np.add.reduceat(w2, starts)
+        fm = np.add.reduceat(w2 * f, starts) / total
+        ym = np.add.reduceat(w2 * joint.y, starts) / total
+        fc = f - fm[e]
+        sxx = float(np.sum(w2 * fc * fc))
+        gain = float(np.sum(w2 * fc * (joint.y - ym[e]))) / sxx if sxx > 0 else 0.0
+        baselines = ym - gain * fm
         out["gain"] = gain
-        for i, (fm, ym, _) in enumerate(parts):
-            out[f"baseline_{i}"] = ym - gain * fm
-        model = np.concatenate([out[f"baseline_{i}"] + gain * f for i, (_, _, f) in enumerate(parts)])
-        return out, model
+        out.update({f"baseline_{i}": float(b) for i, b in enumerate(baselines)})
+        return out, baselines[e] + gain * f
     pieces = []
     for i, d in enumerate(joint.data):
         w2 = d.counts.astype(float)

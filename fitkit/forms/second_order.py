@@ -16,8 +16,8 @@ loses precision near Q = 1/2. Here:
   computed as w0^2 / (alpha + beta) (no cancellation when Q << 1/2), and
   exp(-alpha t) sinh(beta t)/beta = t exp(-(alpha - beta) t) (1 - exp(-2 beta t))/(2 beta t)
   with the last factor from expm1 (exact at beta = 0);
-* a < 0 (Q > 1/2): cos(wd t) and t sin(wd t)/(wd t) with numpy's sinc, which
-  is exact at wd = 0.
+* a < 0 (Q > 1/2): cos(wd t) and sin(wd t) / wd, wd > 0 (wd = 0 is the
+  branch above; as wd -> 0, sin(wd t) / wd -> t with no cancellation).
 
 Both branches are accurate to a few ulps right up to a = 0, so the response
 is continuous across critical damping to ~1e-15 (the tests check it at
@@ -46,7 +46,7 @@ def damped_parts(t: np.ndarray, w0: float, Q: float) -> tuple[np.ndarray, np.nda
     The two building blocks of every response with the denominator
     s^2 + (w0/Q) s + w0^2: the low-pass step is 1 - (even + alpha odd), the
     impulse response of w0^2/(...) is w0^2 odd. Evaluated stably as the module
-    docstring says (expm1 and sinc; continuous through Q = 1/2).
+    docstring says (expm1; continuous through Q = 1/2).
     """
     alpha = w0 / (2.0 * Q)
     a = w0 * w0 * (1.0 - 2.0 * Q) * (1.0 + 2.0 * Q) / (4.0 * Q * Q)
@@ -59,7 +59,7 @@ def damped_parts(t: np.ndarray, w0: float, Q: float) -> tuple[np.ndarray, np.nda
     wd = math.sqrt(-a)
     u = wd * t
     envelope = np.exp(-alpha * t)
-    return envelope * np.cos(u), envelope * t * np.sinc(u / math.pi)
+    return envelope * np.cos(u), envelope * (np.sin(u) / wd)
 
 
 def unit_step(t_rel: np.ndarray, *, f0: float, Q: float) -> np.ndarray:
