@@ -58,6 +58,10 @@ class FitError(FitkitError):
     """A fit did not converge or its parameters are not determined by the data."""
 
 
+class AverageSmearedError(FitError):
+    """A coherent average's alignment smeared the response more than its intervals allow."""
+
+
 class CircuitError(FitkitError):
     """A circuit description is invalid, or a part cannot be solved."""
 

@@ -149,7 +149,9 @@ def _relative_tolerance(text: str, unit: str, value_text: str, name: str) -> flo
 @form_option("Form to fit (see `fitkit forms`), or auto to choose among the usual ones.")
 @click.option("--edge-time", metavar="SECONDS", default=None,
               help="Fit only the edge at this time (e.g. 12.5u).")
-@click.option("--average", is_flag=True, help="Average the edges coherently before fitting.")
+@click.option("--average", is_flag=True,
+              help="Average the edges coherently before fitting (every edge is fitted jointly instead, and "
+                   "said so, when the average's own alignment would bias the result).")
 @click.option("--pulse-width", metavar="SECONDS", default=None,
               help="The drive is rectangular pulses of this width (e.g. 20u): both edges of a pulse are "
                    "fitted as one response.")

@@ -68,6 +68,10 @@ class StepSegment:
     sample_interval: seconds between samples, as the reader knew it
         (Capture.sample_interval, passed on by conditioning); a segment built by
         hand gets its own time axis's median interval (NaN below two samples).
+    alignment_variance: for a coherent average, the variance (s^2) of the
+        kernel its alignment smeared the output with: the edges' sub-sample
+        interpolation and, when they were located on the output itself, the
+        jitter of those locations (:func:`.segments.average_segments`); 0 for a raw edge.
     """
 
     start: int
@@ -90,6 +94,7 @@ class StepSegment:
     step_source: str = "output levels"
     settled: bool = True
     sample_interval: float = float("nan")
+    alignment_variance: float = 0.0
 
     def __post_init__(self) -> None:
         if not math.isfinite(self.sample_interval):

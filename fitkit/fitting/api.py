@@ -17,13 +17,14 @@ import numpy as np
 from ..capture import Capture
 from ..conditioning.analysis import BELOW_ONE_CODE
 from ..conditioning.segment import StepSegment
-from ..errors import FitError, FitkitError
+from ..errors import AverageSmearedError, FitError, FitkitError
 from ..units import format_value
 from ..forms import FORMS, get_form, pulse_response
 from ..forms.base import Form
 from ..results import (ChannelRoles, Estimate, FitDetails, FitDiagnostics, FitResult,
                        FittedSegment)
 from .adequacy import assess, capture_noise
+from .alignment_smear import SMEAR_LIMIT, smear_bias
 from .engine import FormFit, fit_form, sample_interval
 from .further_forms import rescued, with_dead_time
 from .information import has_measured_input
@@ -154,6 +155,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
     if len(trial) < len(segments):
         reason += f" (forms compared on the first {len(trial)} of {len(segments)} edges, the chosen one fitted to all)"
     final = quantised_refit(final) or final
+    _refuse_smeared_average(final, file)
     shape, notes = shape_estimates(final, intervals)
     chosen = Candidate(chosen.form, final, shape, True, "")
     result = _build(chosen, scores, reason, sel_warn + notes + list(warnings), file, segments, derived)
@@ -191,7 +193,16 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
                    intervals=intervals, noise_record=noise_record, pulse_width=pulse_width)
     analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average,
                              pulse_width=pulse_width)
-    result = _fit_analysis(capture, analysis, **options)
+    try:
+        result = _fit_analysis(capture, analysis, **options)
+    except AverageSmearedError as err:
+        # the average cannot give honest intervals here: every edge jointly instead, said so
+        options["average"] = average = False
+        analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time,
+                                 pulse_width=pulse_width)
+        result = _fit_analysis(capture, analysis, **options)
+        note = f"--average not used: {err.message}; every edge fitted jointly instead"
+        result = dataclasses.replace(result, warnings=(note,) + tuple(result.warnings))
     if pulse_width is not None and analysis.input_channel is None and not result.describes_data:
         # without a drive channel the output's own edges locate the pulses; a ringing response
         # crosses its levels many times, and then its edges fitted one by one (each with the
@@ -381,6 +392,21 @@ def _alternative_forms(chosen: Form, candidates: Sequence[Candidate],
             why = f" (set aside: {c.note})" if c.note else ""
             fixes.append(f"--form {c.form.name} leaves residuals {other.misfit_ratio:.1f} times the noise{why}")
     return fixes
+
+
+def _refuse_smeared_average(ff: FormFit, file: str) -> None:
+    """Raise AverageSmearedError when averaged segments' alignment moves a shape
+    parameter by more than SMEAR_LIMIT of its standard errors (:mod:`.alignment_smear`)."""
+    bias = smear_bias(ff)
+    if not bias or max(bias.values()) <= SMEAR_LIMIT:
+        return
+    name = max(bias, key=bias.get)
+    edges = sum(s.averaged_edges for s in ff.joint.segments)
+    raise AverageSmearedError(
+        f"the coherent average of {edges} edges is smeared by their alignment (sub-sample interpolation"
+        f"{'' if ff.joint.segments[0].input is not None else ' and the noise on edges located on the output'}"
+        f"): it would bias {name} by {bias[name]:.1f} standard errors", path=file or None,
+        hint="fit without --average (every edge jointly)")
 
 
 def _rings(candidates: Sequence[Candidate]) -> str:
