@@ -85,3 +85,32 @@ def test_cli_says_the_average_was_not_used(tmp_path):
     out = CliRunner().invoke(cli, ["fit", str(path), "--average"])
     assert out.exit_code == 0, out.output
     assert "--average not used" in out.output and "every edge fitted jointly instead" in out.output
+
+
+def test_named_form_and_board_check_refuse_the_smeared_average_too():
+    from fitkit.errors import AverageSmearedError
+    from fitkit.fitting import fit_segments
+
+    t, _, y, _ = ringing_square_wave(100_000, 200, sigma=0.01)
+    cap = Capture(time=t, channels=(Channel("output", y, "V", "V"),))
+    averaged = analyse_steps(cap, average=True).segments
+    try:
+        fit_segments(averaged, "underdamped")
+    except AverageSmearedError as err:
+        assert "bias Q by" in err.message and err.hint.startswith("fit without --average")
+    else:
+        raise AssertionError("a smeared average was fitted by name")
+    # fit_capture with a named form falls back as with "auto"
+    r = fit_capture(cap, model="underdamped", average=True)
+    assert r.warnings[0].startswith("--average not used") and r.quantity("Q").contains(Q)
+
+
+def test_board_check_is_told_why_the_average_is_not_used():
+    from fitkit.check.board_check import _smeared_average
+
+    t, _, y, _ = ringing_square_wave(100_000, 200, sigma=0.01)
+    cap = Capture(time=t, channels=(Channel("output", y, "V", "V"),))
+    assert "smeared by their alignment" in _smeared_average(analyse_steps(cap, average=True).segments, "x.csv")
+    t, _, y, _ = ringing_square_wave(100_000, 10, sigma=0.01)  # ten edges: the smear is far below the noise
+    cap = Capture(time=t, channels=(Channel("output", y, "V", "V"),))
+    assert _smeared_average(analyse_steps(cap, average=True).segments, "x.csv") == ""

@@ -26,7 +26,7 @@ import numpy as np
 from ..capture import Capture
 from ..circuits import transfer_function
 from ..conditioning import analyse_steps
-from ..errors import FitkitError
+from ..errors import AverageSmearedError, FitkitError
 from ..results import Estimate, FitResult
 from .design import Design, load_design, resolve_limits
 from ..fitting.information import has_measured_input
@@ -155,9 +155,13 @@ def check_capture(capture: Capture, design: Design | str | Path, *, input: str |
         design = load_design(design)
     file = capture.provenance.path
     analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average)
+    smeared = _smeared_average(analysis.segments, file) if average else ""
+    if smeared:
+        analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time)
     segments = analysis.segments
     measured = has_measured_input(segments)
-    warnings = list(analysis.flags)
+    warnings = ([f"--average not used: {smeared}; every edge checked jointly instead"] if smeared else []) \
+        + list(analysis.flags)
     span = _record_after_edge(segments)
     envelope = tolerance_envelope(design, np.linspace(0.0, span, ENVELOPE_POINTS), trials=envelope_trials,
                                   seed=seed, measured_input=measured)
@@ -187,6 +191,19 @@ def check_capture(capture: Capture, design: Design | str | Path, *, input: str |
                         "why": [d for d in analysis.decisions if "channel" in d]})
 
 
+def _smeared_average(segments, file: str) -> str:
+    """Why a coherent average cannot be checked (its alignment smears the response
+    beyond its intervals, fitkit.fitting.alignment_smear), or ""."""
+    from ..fitting import fit_segments
+    try:
+        fit_segments(segments, "auto", file=file, derived=False)
+    except AverageSmearedError as err:
+        return err.message
+    except FitkitError:
+        return ""  # any other trouble is the check's own to report, on these segments
+    return ""
+
+
 def _behaviour(design: Design, segments, measured: bool, file: str, warnings: list[str], envelope: Envelope):
     """The behavioural fit, made exactly as `fitkit fit --form FORM` makes it (the same
     engine call, measured-input mode when the capture has an input channel), with the
@@ -195,6 +212,8 @@ def _behaviour(design: Design, segments, measured: bool, file: str, warnings: li
     form = behavioural_form(design, measured, envelope)
     try:
         fit = fit_segments(segments, form, file=file)
+    except AverageSmearedError:
+        raise
     except FitkitError as exc:
         if form == "auto":
             raise

@@ -88,6 +88,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
             raise FitError(f"the {chosen_form.name} fit did not converge ({ff.fit.message})"
                            + _runaway_note(ff, dt), path=file or None, hint="try --form auto or another form")
         ff = quantised_refit(ff) or ff
+        _refuse_smeared_average(ff, file)
         shape, notes = shape_estimates(ff, intervals)
         ok, why = admissibility(chosen_form, shape, dt)
         if not ok and "outside this form's range" in why:
