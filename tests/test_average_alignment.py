@@ -26,27 +26,7 @@ from fitkit.fitting.engine import fit_form
 from fitkit.fitting.estimates import shape_estimates
 from fitkit.forms import get_form
 
-DT, Q = 1e-7, 3.0
-
-
-def ringing_square_wave(n: int, edges: int, sigma: float, seed: int = 1) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
-    """(time, drive, response, f0): a 0/1 V square wave into w0^2 / (s^2 + w0/Q s + w0^2),
-    Q = 3, its envelope time constant 2Q/w0 a tenth of the half period; edges half way
-    between samples. Step response 1 - exp(-a t) (cos(wd t) + a/wd sin(wd t)), a = w0/(2Q)
-    (Ogata, Modern Control Engineering, transient-response chapter; from memory)."""
-    half = n // edges
-    w0 = 2.0 * Q / (half * DT / 10.0)
-    a = w0 / (2.0 * Q)
-    wd = w0 * math.sqrt(1.0 - 1.0 / (4.0 * Q * Q))
-    t = np.arange(n) * DT
-    k = np.arange(n)
-    u = (((k + half // 2) // half) % 2 == 1).astype(float)
-    y = np.zeros(n)
-    for i in range(edges):
-        x = np.clip(t - (half // 2 + i * half - 0.5) * DT, 0.0, None)
-        s = np.where(x > 0, 1.0 - np.exp(-a * x) * (np.cos(wd * x) + a / wd * np.sin(wd * x)), 0.0)
-        y += (1.0 if i % 2 == 0 else -1.0) * s
-    return t, u, y + np.random.default_rng(seed).normal(0.0, sigma, n), w0 / (2.0 * math.pi)
+from support.square_waves import Q, ringing_square_wave
 
 
 def test_predicted_smear_is_the_bias_it_causes():

@@ -29,6 +29,7 @@ from .block_jacobian import weighted
 from .core import ModelFit, fit_model
 from .information import corrected_aic, has_measured_input
 from .input_noise import input_noise_covariance
+from .drive_between_samples import with_drive_between_samples
 from .joint_model import MAX_POINTS_PER_SEGMENT, JointModel
 from .projection import (ProjectedSearch, can_project, finish_projected, nonlinear_names,
                          search_projected)
@@ -302,6 +303,8 @@ def _finished(joint: JointModel, best: ModelFit, fixed_int: Mapping[str, float],
         joint, best, correction = whitened_fit(joint, best, fixed_int, correction, correlation, **whiten)
     if joint.measured_input:
         correction = _with_input_noise(joint, best, correction)
+        correction, note = with_drive_between_samples(joint, best, correction)
+        notes.extend([note] if note else [])
     notes.extend(edges_unlike_the_others(joint, best, correction))
     dof = correction.dof if correction.applied and correction.dof is not None else best.dof
     return FormFit(form, joint, best, correction, t_quantile(int(round(dof))), tuple(notes))
