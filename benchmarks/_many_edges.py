@@ -130,9 +130,17 @@ def square_wave(tr: dict, seed: int) -> tuple[np.ndarray, np.ndarray, np.ndarray
     return t, u, y
 
 
-def coverage(trials: int, edges: int, samples: int, response: str = "rc", seed: int = 2020) -> dict:
-    """Monte Carlo of the joint fit (output only, form given): coverage of the
-    95 % intervals of the shape and efficiency (bound / sd of the estimates)^2."""
+#: The automatic choice's name of a given form (the second-order form over every
+#: damping is chosen as "underdamped" when the response rings).
+CHOSEN_NAME = {"second-order": "underdamped"}
+
+
+def coverage(trials: int, edges: int, samples: int, response: str = "rc", seed: int = 2020,
+             form_given: bool = True) -> dict:
+    """Monte Carlo of the joint fit (output only, the form given or chosen
+    automatically): coverage of the 95 % intervals of the shape and efficiency
+    (bound / sd of the estimates)^2; with the form chosen, how often it was the
+    true one (the other trials are counted, not scored)."""
     from fitkit.capture import Capture, Channel
     from fitkit.fitting import fit_capture
 
@@ -142,22 +150,25 @@ def coverage(trials: int, edges: int, samples: int, response: str = "rc", seed: 
     form = "first-order" if response == "rc" else "second-order"
     est: dict[str, list[float]] = {k: [] for k in keys}
     covered = {k: 0 for k in keys}
-    failed = 0
+    failed = other = 0
     for i in range(trials):
         t, _, y = square_wave(tr, seed + i)
         cap = Capture(time=t, channels=(Channel("output", y, "V", "V"),))
         try:
-            r = fit_capture(cap, model=form, intervals="covariance")
+            r = fit_capture(cap, model=form if form_given else "auto", intervals="covariance")
         except Exception as err:  # counted, not hidden
             failed += 1
             print(f"trial {i}: {err}", file=sys.stderr)
+            continue
+        if r.model != form and not (not form_given and r.model == CHOSEN_NAME.get(form)):
+            other += 1
             continue
         for k in keys:
             e = r.parameters.get(k) or r.derived.get(k)
             est[k].append(e.value)
             covered[k] += int(e.ci95[0] <= tr[k] <= e.ci95[1])
-    out = {"trials": trials, "failed": failed, "edges": edges, "samples": samples, "response": response,
-           "truth": tr}
+    out = {"trials": trials, "failed": failed, "other_form": other, "form_given": form_given, "edges": edges,
+           "samples": samples, "response": response, "truth": tr}
     for k in keys:
         v = np.array(est[k])
         out[k] = {"coverage": covered[k] / max(v.size, 1), "efficiency": (bound[k] / v.std(ddof=1)) ** 2,

@@ -57,7 +57,7 @@ EXACT_ORDER = 80
 
 def run_trials(task: tuple) -> list[dict]:
     """Worker: trials [first, first + count) of one cell and arm."""
-    import fitkit.fitting.engine as engine
+    import fitkit.fitting.form_fit as form_fit
     from fitkit.conditioning.segment import StepSegment
     from fitkit.errors import FitError
     from fitkit.fitting import fit_segments
@@ -70,7 +70,7 @@ def run_trials(task: tuple) -> list[dict]:
     setup = cell_setup(response, {**BASE, "noise": "band", "samples_per_tau": samples})
     t, y0, sigma = setup["t"], setup["clean"], setup["sigma"]
     # the "sandwich" arm: the engine as it was before whitening (a study-only switch)
-    engine.whitening_applies = (lambda joint: False) if arm == "sandwich" else whitening_applies
+    form_fit.whitening_applies = (lambda joint: False) if arm == "sandwich" else whitening_applies
     dt = float(t[1] - t[0])
     exact = None
     if arm == "exact":

@@ -128,4 +128,4 @@ def _library_doc(wrapper, module: str, name: str) -> None:
         pass
 
 
-_library_doc(fit_capture, "fitkit.fitting.api", "fit_capture")
+_library_doc(fit_capture, "fitkit.fitting.step_fit", "fit_capture")

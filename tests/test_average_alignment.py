@@ -22,7 +22,7 @@ from fitkit.cli import cli
 from fitkit.conditioning import analyse_steps
 from fitkit.fitting import fit_capture
 from fitkit.fitting.alignment_smear import smear_bias
-from fitkit.fitting.engine import fit_form
+from fitkit.fitting.form_fit import fit_form
 from fitkit.fitting.estimates import shape_estimates
 from fitkit.forms import get_form
 

@@ -19,8 +19,8 @@ from fitkit.capture import Capture, Channel
 from fitkit.conditioning import analyse_steps
 from fitkit.fitting import fit_capture
 from fitkit.fitting import block_jacobian, edge_delays
-from fitkit.fitting.core import covariance_from_jacobian
-from fitkit.fitting.engine import fit_form
+from fitkit.fitting.least_squares import covariance_from_jacobian
+from fitkit.fitting.form_fit import fit_form
 from fitkit.forms import get_form
 
 DT, SIGMA = 1e-7, 0.01
@@ -128,7 +128,7 @@ def test_every_edge_at_once_is_each_edge_alone():
     """The model of all edges in one evaluation (nodes of weight 0 skipped; the
     measured inputs convolved side by side) is the model of each edge evaluated
     on its own, binned windows included."""
-    from fitkit.fitting.engine import make_scaling
+    from fitkit.fitting.form_fit import make_scaling
     from fitkit.fitting.joint_model import JointModel
 
     t, y, tau = square_wave(40_000, 16, seed=4)

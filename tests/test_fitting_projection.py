@@ -14,8 +14,8 @@ import pytest
 from scipy import signal
 
 from fitkit.conditioning.segment import StepSegment
-from fitkit.fitting.core import fit_model
-from fitkit.fitting.engine import fit_form, make_scaling
+from fitkit.fitting.least_squares import fit_model
+from fitkit.fitting.form_fit import fit_form, make_scaling
 from fitkit.fitting.joint_model import JointModel
 from fitkit.fitting.projection import finish_projected, nonlinear_names, search_projected
 from fitkit.fitting.uncertainty import autoregressive_autocorrelation, residual_autocorrelation

@@ -27,7 +27,7 @@ import scipy.signal as sig
 
 from fitkit import load_capture
 from fitkit.fitting import fit_capture
-from fitkit.fitting.core import covariance_from_jacobian
+from fitkit.fitting.least_squares import covariance_from_jacobian
 from fitkit.conditioning.edges import edges_by_jumps
 
 

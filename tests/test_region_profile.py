@@ -25,7 +25,7 @@ import scipy.stats
 
 from fitkit.conditioning.segment import StepSegment
 from fitkit.fitting import fit_segments
-from fitkit.fitting.engine import fit_form
+from fitkit.fitting.form_fit import fit_form
 from fitkit.fitting.region_profile import ZERO_FRACTION, profile_interval
 from fitkit.forms.two_real_pole import TWO_REAL_POLE
 

@@ -10,7 +10,7 @@ loaded. What each heavy package is for, and who may import it:
 * pyarrow: Parquet files (fitkit.io.binary);
 * matplotlib: --plot and --report only (fitkit.report);
 * jsonschema: tests of the JSON output only;
-* lmfit: profile-likelihood intervals and the full (non-projected) fit (fitkit.fitting.core);
+* lmfit: profile-likelihood intervals and the full (non-projected) fit (fitkit.fitting.least_squares);
 * scipy.stats and scipy.signal: checks and independent routes, never at import time
   of the fitting package (scipy.signal alone costs about 0.4 s here);
 * control, lcapy, sympy: test references only.

@@ -228,9 +228,9 @@ def test_a_search_crawling_towards_tau2_zero_converges_in_the_objective():
 def test_a_second_pole_running_below_the_sample_interval_is_named_in_the_error(monkeypatch):
     # without the continuation (as before it existed) the search does not
     # converge, and the error says why
-    import fitkit.fitting.engine as engine
+    import fitkit.fitting.form_fit as form_fit
 
-    monkeypatch.setattr(engine, "CONTINUATIONS", 0)
+    monkeypatch.setattr(form_fit, "CONTINUATIONS", 0)
     with pytest.raises(FitError) as caught:
         fit_segments([_runaway_capture()], "two-real-pole", intervals="covariance")
     assert "did not converge" in caught.value.message

@@ -26,7 +26,7 @@ from scipy import linalg, signal
 
 from fitkit.conditioning.segment import StepSegment
 from fitkit.fitting import fit_segments
-from fitkit.fitting.engine import fit_form
+from fitkit.fitting.form_fit import fit_form
 from fitkit.fitting.uncertainty import autoregressive_model
 from fitkit.fitting.whitening import Whitener, WhitenedJointModel
 from fitkit.forms import get_form
@@ -289,7 +289,7 @@ def test_whitened_levels_carry_the_previous_edges_tail():
     from fitkit.conditioning import analyse_steps
     from fitkit.capture import Capture
     from fitkit.fitting.joint_model import JointModel
-    from fitkit.fitting.engine import make_scaling
+    from fitkit.fitting.form_fit import make_scaling
     from fitkit.fitting.whitening import _whitened_levels
 
     tau, dt = 1e-3, 2.5e-5

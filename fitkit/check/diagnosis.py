@@ -182,7 +182,7 @@ def _eng(v: float, unit: str = "") -> str:
 
 def _noise(fits: Sequence[HypothesisFit], segments: Sequence[StepSegment]) -> float:
     """The output noise (V) of the engine's fit diagnostics, else the engine's own
-    estimate from the segments (fitkit.fitting.api.capture_noise)."""
+    estimate from the segments (fitkit.fitting.step_fit.capture_noise)."""
     for h in fits:
         d = h.result.diagnostics if h.result is not None else None
         if d is not None and math.isfinite(d.noise_rms) and d.noise_rms > 0:

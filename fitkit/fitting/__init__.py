@@ -8,7 +8,7 @@ Public API:
   (used for NIST reference checks and for direct fits of component values).
 """
 
-from .api import fit_capture, fit_segments
-from .core import ModelFit, fit_model
+from .step_fit import fit_capture, fit_segments
+from .least_squares import ModelFit, fit_model
 
 __all__ = ["fit_capture", "fit_segments", "fit_model", "ModelFit"]

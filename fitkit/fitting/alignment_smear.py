@@ -27,7 +27,7 @@ import math
 import numpy as np
 
 from .block_jacobian import dense
-from .engine import FormFit
+from .form_fit import FormFit
 
 #: Bias of a shape parameter, in its standard errors, from which an average is not used.
 SMEAR_LIMIT = 0.5

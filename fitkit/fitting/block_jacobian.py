@@ -103,7 +103,7 @@ def grouped_jacobian(fun: Callable[[np.ndarray], np.ndarray], theta: np.ndarray,
         else:
             slot = slots[e] = slots.get(e, -1) + 1
             groups.setdefault(("local", slot, e % 2), []).append(j)
-    steps = rel_step * np.maximum(np.abs(theta), 1e-3)  # as core.numeric_jacobian
+    steps = rel_step * np.maximum(np.abs(theta), 1e-3)  # as least_squares.numeric_jacobian
     n = int(bounds[-1])
     rows, cols, vals = [], [], []
     dense_cols: dict[int, np.ndarray] = {}
@@ -145,7 +145,7 @@ def block_covariance(jac_w, names: Sequence[str], s2: float
     """
     from scipy import sparse
 
-    from .core import SINGULAR_CONDITION
+    from .least_squares import SINGULAR_CONDITION
 
     p = jac_w.shape[1]
     jac_w = sparse.csc_array(jac_w)

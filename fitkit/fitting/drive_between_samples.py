@@ -38,7 +38,7 @@ import numpy as np
 from scipy import sparse
 from scipy.sparse import linalg as sparse_linalg
 
-from .core import ModelFit
+from .least_squares import ModelFit
 from .joint_model import JointModel
 from .uncertainty import Correction
 

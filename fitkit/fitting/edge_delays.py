@@ -26,7 +26,7 @@ sweep (all edges are swept together until no delay moves), so the delays are
 the fixed point of the per-edge problems; their coupling through the tail
 (a term of relative size below 1e-3 in a delay's own gradient) is left out of
 the search and kept in the final Jacobian and covariance
-(:func:`.core.model_fit_at`).
+(:func:`.least_squares.model_fit_at`).
 """
 
 from __future__ import annotations

@@ -22,7 +22,7 @@ from typing import Mapping
 import numpy as np
 
 from ..results import Estimate
-from .engine import FormFit
+from .form_fit import FormFit
 from .region_estimates import bounded_region, interval_method_text, region_estimates, region_ranges
 from .uncertainty import MAX_LOG_STDERR, delta_method, log_interval, objective_is_asymmetric
 
@@ -174,7 +174,7 @@ def _profile_interval(ff: FormFit, key: str, centre: float, sigma: float) -> tup
     import lmfit  # imported when a profile is needed (start-up time)
 
     if ff.fit._lmfit is None:  # a projected fit: restart the full problem at its optimum
-        from .core import fit_model
+        from .least_squares import fit_model
         fixed = {k: v for k, v in ff.fit.values.items() if k not in ff.fit.names}
         full = fit_model(ff.joint.evaluate, {n: ff.fit.values[n] for n in ff.fit.names}, None, ff.joint.y,
                          weights=ff.joint.weights, fixed=fixed, tol=1e-10)

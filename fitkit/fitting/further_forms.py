@@ -17,7 +17,7 @@ from ..forms import FORMS, delayed
 from ..results import CandidateScore
 from ..units import format_value
 from .adequacy import assess, capture_noise
-from .engine import fit_form
+from .form_fit import fit_form
 from .estimates import shape_estimates
 from .selection import CRITERION, MARGIN, Candidate, admissibility, rms_residual
 

@@ -12,7 +12,7 @@ Levenberg-Marquardt iteration (one model evaluation per parameter) with it.
 
 The covariance is not taken from the projected problem: after convergence
 the full parameter set (shape, delays and levels) gets its Jacobian and
-covariance at the optimum in :func:`.core.model_fit_at`, exactly as a fit
+covariance at the optimum in :func:`.least_squares.model_fit_at`, exactly as a fit
 over all parameters would.
 """
 
@@ -25,7 +25,7 @@ from typing import Callable, Mapping
 import numpy as np
 from scipy import optimize
 
-from .core import ModelFit, model_fit_at
+from .least_squares import ModelFit, model_fit_at
 from .edge_delays import nested_search, uses_nested_delays
 from .joint_model import JointModel
 
@@ -117,7 +117,7 @@ def search_projected(joint: JointModel, start: Mapping[str, float], fixed: Mappi
     """Levenberg-Marquardt over the nonlinear parameters only (levels projected out).
 
     ``fixed`` may hold shape or delay values only (levels held fixed need the
-    full fit, :func:`.core.fit_model`). The Jacobian and covariance are left to
+    full fit, :func:`.least_squares.fit_model`). The Jacobian and covariance are left to
     :func:`finish_projected`, so of several starts only the best pays for them.
     """
     w = joint.weights

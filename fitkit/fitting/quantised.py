@@ -41,8 +41,8 @@ import numpy as np
 from scipy import optimize, special
 
 from .block_jacobian import dense
-from .core import ModelFit, covariance_from_jacobian, model_fit_at
-from .engine import FormFit
+from .least_squares import ModelFit, covariance_from_jacobian, model_fit_at
+from .form_fit import FormFit
 from .joint_model import JointModel
 from .uncertainty import Correction, t_quantile
 

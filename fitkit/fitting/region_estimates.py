@@ -19,7 +19,7 @@ import numpy as np
 
 from ..forms.base import ParamSpec
 from ..results import Estimate
-from .engine import FormFit
+from .form_fit import FormFit
 from .region_profile import profile_interval, profile_wanted, shape_widening
 from .uncertainty import MAX_LOG_STDERR
 

@@ -37,7 +37,7 @@ from typing import Callable, Mapping
 import numpy as np
 from scipy import optimize
 
-from .engine import FormFit, sample_interval
+from .form_fit import FormFit, sample_interval
 from .projection import least_squares_search, nonlinear_names, projected_model
 
 #: Reported quantities whose linearised log standard error exceeds this get a

@@ -3,7 +3,7 @@
 ``returns_to_baseline``: the output comes back to its pre-edge level (a
 high-pass or band-pass) while its recorded drive, if any, does not;
 ``moves_wrong_way``: the output first moves against its step (a right-half-plane
-zero, or a probe or ground artefact). Used by fitkit.fitting.api with
+zero, or a probe or ground artefact). Used by fitkit.fitting.step_fit with
 fitkit.fitting.selection.default_candidates.
 """
 

@@ -25,7 +25,7 @@ from ..errors import FitError
 from ..forms import FORMS, PULSE_FORMS, get_form
 from ..forms.base import Form
 from ..results import CandidateScore, Estimate
-from .engine import FormFit
+from .form_fit import FormFit
 from .region_estimates import OUTSIDE_RANGE, beyond_range_sigmas
 
 #: AICc advantage a more complex form needs to be preferred.

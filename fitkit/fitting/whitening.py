@@ -44,7 +44,7 @@ from scipy import linalg
 
 from ..errors import FitError
 from .block_jacobian import dense, weighted
-from .core import ModelFit, covariance_from_jacobian, model_fit_at
+from .least_squares import ModelFit, covariance_from_jacobian, model_fit_at
 from .joint_model import JointModel
 from .projection import least_squares_search, nonlinear_names
 from .uncertainty import (AutoregressiveModel, Correction, autoregressive_model, correlated_residual_correction,
@@ -221,7 +221,7 @@ def fit_whitened(joint: JointModel, start: ModelFit, fixed: Mapping[str, float],
     project: levels solved linearly on whitened columns (variable projection,
     ideal-step mode); otherwise every varied parameter is searched. Returns the
     :class:`ModelFit` at the new optimum in the ordinary (unwhitened) terms of
-    :func:`.core.model_fit_at`: model, residuals, Jacobian; the GLS covariance
+    :func:`.least_squares.model_fit_at`: model, residuals, Jacobian; the GLS covariance
     comes from :func:`whitened_problem`.
     """
     if joint.measured_input:

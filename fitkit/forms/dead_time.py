@@ -24,7 +24,7 @@ When the data show no delay. The delay is positive and fitted as its log, so
 a response that starts at the edge drives log(delay) towards minus infinity:
 the model's dependence on it vanishes like the delay itself (exponentially in
 the fitted coordinate), the Jacobian column goes to zero, and the engine's
-search stops there or in its flat-valley rule (fitkit.fitting.engine). The
+search stops there or in its flat-valley rule (fitkit.fitting.form_fit). The
 delay is then reported "not determined" (its log standard error exceeds the
 engine's limit), or, when the data bound it, with an interval that lies below
 one sample interval: read either as "no dead time resolved" (checked in

@@ -36,7 +36,7 @@ from ..conditioning.segment import StepSegment
 from ..errors import CircuitError, FitError
 from ..forms import get_form
 from ..forms.base import Form
-from ..fitting.engine import FormFit, fit_form
+from ..fitting.form_fit import FormFit, fit_form
 from ..fitting.uncertainty import log_interval
 from .circuit_form import normalisation_kind
 from .problem import PartProblem, ensure_values

@@ -19,7 +19,7 @@ is wrapped as a form:
 
 The engine hands unit_step times in its own scaled unit (seconds / time_unit),
 so the form is built for one scaling: ``time_unit`` seconds per scaled unit
-(get it from fitkit.fitting.engine.make_scaling before building the form).
+(get it from fitkit.fitting.form_fit.make_scaling before building the form).
 """
 
 from __future__ import annotations

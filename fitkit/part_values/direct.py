@@ -30,7 +30,7 @@ import numpy as np
 from ..conditioning.segment import StepSegment
 from ..errors import FitError
 from ..fitting import fit_segments
-from ..fitting.engine import make_scaling
+from ..fitting.form_fit import make_scaling
 from ..fitting.information import corrected_aic, has_measured_input, residual_sum
 from ..results import FitResult
 from .circuit_form import circuit_form
@@ -89,7 +89,7 @@ def direct_fits(segments: Sequence[StepSegment], problem: PartProblem, starts: S
 def scaled_circuit_form(segments: Sequence[StepSegment], circuit, fitted: Sequence[str],
                         starts: Sequence[Mapping[str, float]], measured_input: bool):
     """The circuit as a form in the engine's scaled time unit for these segments
-    (circuit_form.circuit_form after fitkit.fitting.engine.make_scaling)."""
+    (circuit_form.circuit_form after fitkit.fitting.form_fit.make_scaling)."""
     name = "circuit:" + circuit.name
     probe_form = circuit_form(circuit, fitted, 1.0, starts, name)
     scaling = make_scaling(segments, probe_form, measured_input)

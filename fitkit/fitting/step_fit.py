@@ -25,7 +25,7 @@ from ..results import (ChannelRoles, Estimate, FitDetails, FitDiagnostics, FitRe
                        FittedSegment)
 from .adequacy import assess, capture_noise
 from .alignment_smear import SMEAR_LIMIT, smear_bias
-from .engine import FormFit, fit_form, sample_interval
+from .form_fit import FormFit, fit_form, sample_interval
 from .further_forms import rescued, with_dead_time
 from .information import has_measured_input
 from .region_estimates import beyond_range_sigmas
@@ -63,7 +63,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
     correlation: "auto", "on" or "off" for the correlated-residual correction.
     measured_input: drive the form with the measured input (default: when
         every segment has an input channel).
-    start, fixed: physical values by trade name (see engine.fit_form).
+    start, fixed: physical values by trade name (see form_fit.fit_form).
     derived: False skips the derived quantities (faster, for Monte Carlo studies).
     noise_record: the noise model of a separate quiet record of the output
         channel (fitkit.fitting.noise_record): generalised least squares with

@@ -5,7 +5,7 @@ data (:mod:`.scaling`), builds the joint model (:mod:`.joint_model`), finds
 starting values from the data (:mod:`.starts`), runs the nonlinear fit from
 the best few starts with the levels solved linearly inside the objective
 (variable projection, :mod:`.projection`; the full problem through
-:mod:`.core` when a start is given or a level held fixed), keeps the lowest
+:mod:`.least_squares` when a start is given or a level held fixed), keeps the lowest
 sum of squares, and measures the residual autocorrelation
 (:mod:`.uncertainty`); when the residuals are correlated it refits by
 generalised least squares with the residuals whitened by their
@@ -26,7 +26,7 @@ from ..conditioning.segment import StepSegment
 from ..errors import FitError
 from ..forms.base import Form, rise_time_scale
 from .block_jacobian import weighted
-from .core import ModelFit, fit_model
+from .least_squares import ModelFit, fit_model
 from .information import corrected_aic, has_measured_input
 from .input_noise import input_noise_covariance
 from .drive_between_samples import with_drive_between_samples
