@@ -15,8 +15,11 @@ That happens for one of two reasons, and the reader should know which:
 measurement chain included): the part ``a`` is set to its implied value and
 to a decade either side of nominal, and at each the value of ``b`` whose step
 response comes closest is searched for. The responses are compared
-normalised (divided by their settled value, or their peak when they settle
-at zero), because the levels are fitted freely.
+normalised (divided by their largest magnitude), because the levels are
+fitted freely. (Dividing by the last value, as "the settled value", is no
+normalisation for a response that decays to zero: eight time constants
+leave e^-8 of it, and the division magnified a 1e-5 mismatch of the search
+to 0.6 % in an RL circuit whose L and R trade exactly through tau = L/R.)
 """
 
 from __future__ import annotations
@@ -31,7 +34,7 @@ from ..circuits import transfer_function
 from ..errors import CircuitError
 from .design import Design, analysed_circuit
 
-#: Normalised responses closer than this (largest difference, share of the step) are the same.
+#: Normalised responses closer than this (largest difference, share of the peak) are the same.
 SAME_RESPONSE = 5e-3
 #: Decades of b searched on either side of its nominal value.
 SEARCH_DECADES = 2.0
@@ -61,8 +64,10 @@ def _response(design: Design, values: dict[str, float], measured: bool, t: np.nd
         y = transfer_function(analysed_circuit(design.circuit.with_values(values), measured)).step_response(t)
     except (CircuitError, FloatingPointError, ValueError, np.linalg.LinAlgError):
         return None
-    scale = y[-1] if abs(y[-1]) > 1e-6 * np.max(np.abs(y)) else np.max(np.abs(y))
-    return y / scale if scale and np.all(np.isfinite(y)) else None
+    if not np.all(np.isfinite(y)):
+        return None
+    scale = float(np.max(np.abs(y)))
+    return y / scale if scale > 0 else None
 
 
 def _closest(design: Design, target: np.ndarray, b: str, measured: bool, t: np.ndarray) -> tuple[float, float]:
@@ -107,8 +112,8 @@ def tie_sentence(design: Design, reason: TieReason) -> str:
     la, lb = design.label(reason.a), design.label(reason.b)
     if reason.interchangeable:
         return (f"{la} and {lb} are interchangeable at this measurement point: for any value of one, a value "
-                f"of the other gives the same response (within {100 * SAME_RESPONSE:.1f} % of the step), so "
+                f"of the other gives the same response (within {100 * SAME_RESPONSE:.1f} % of the peak), so "
                 f"no capture of this node can tell them apart; measure one of them in circuit to decide")
-    return (f"{la} and {lb} give responses that differ by {100 * reason.difference:.2g} % of the step at their "
+    return (f"{la} and {lb} give responses that differ by {100 * reason.difference:.2g} % of the peak at their "
             "implied values, less than this capture's noise resolves; more edges averaged, a quieter "
             "vertical range or a measured value of one of them would decide")
