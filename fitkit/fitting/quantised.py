@@ -37,8 +37,9 @@ no correlation, so its autocorrelation is the noise's. The engine's
 correlated-residual correction (uncertainty.correlated_residual_correction:
 Ljung-Box test, autoregressive model of that series, projection bias,
 never narrowing) is applied to the standardised scores with the Jacobian
-of the mean scaled by sqrt(I_k), where A is exactly J^T J: the same
-sandwich as for least squares. Under independent noise the test passes
+of the mean scaled by sqrt(I_k), whose J^T J is the parameters' information:
+the same sandwich as for least squares, with the parameters' block of the
+inverse information (ln sigma estimated with them) as its bread. Under independent noise the test passes
 and the intervals are the inverse information's. A fit whitened by a
 separate noise record is left as it is.
 Applied to ideal-step fits on one code lattice whose least-squares residual
@@ -302,9 +303,10 @@ def score_correction(joint, jacobian: np.ndarray, mean: np.ndarray, sigma: float
 
     Each sample's score about its mean, u_k = d ln P_k / d m_k, has variance
     I_k (its expected information); z_k = u_k / sqrt(I_k) and the Jacobian rows
-    scaled by sqrt(I_k) make the information J~^T J~, so the least-squares
-    sandwich of uncertainty.correlated_residual_correction (with s^2 = 1) is
-    the quasi-likelihood sandwich A^-1 B A^-1 (module docstring). Samples that
+    scaled by sqrt(I_k) make the parameters' information J~^T J~, so the
+    least-squares sandwich of uncertainty.correlated_residual_correction (s^2 = 1,
+    ``covariance`` as its bread) is the quasi-likelihood sandwich A^-1 B A^-1
+    (module docstring). Samples that
     carry no information (I_k ~ 0, deep inside one code) are left out of both.
     """
     info_mm, _, _ = sample_information(mean, sigma, q, float(joint.y[0]))
