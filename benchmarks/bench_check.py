@@ -26,7 +26,8 @@ noise), independent of fitkit's circuit code.
 Figures per capture kind: the share of faulty boards whose wrong part is the
 first suspect (alone or first of tied leaders), whose wrong part is first or
 tied with the first where the two are interchangeable at this node (the same
-response for any value of one; fitkit.check.ties), and whose wrong part is
+response for any value of one, or a swapped board and one part at one value;
+fitkit.check.ties), and whose wrong part is
 among the tied leaders at all (or whose swap is named); the share whose
 implied value's 95 % interval holds the truth, the share of nominal boards
 that fail or list a part outside, the number of reported values at a search
@@ -58,7 +59,7 @@ from test_check_diagnosis import design_for, faulty_value  # noqa: E402
 
 from fitkit.check import check_capture  # noqa: E402
 from fitkit.check.hypotheses import PLAUSIBLE_SPAN  # noqa: E402
-from fitkit.check.ties import tie_reason  # noqa: E402
+from fitkit.check.ties import swap_reason, tie_reason  # noqa: E402
 from fitkit.circuits import TOPOLOGIES  # noqa: E402
 from fitkit.io import load_capture  # noqa: E402
 
@@ -159,8 +160,9 @@ def run_cell(cell: tuple, seed: int, folder: Path) -> dict:
     leaders = [s for s in r.suspects if s.tied]
     if fault == "swap":
         out["leads"] = any(s.kind == "swap" and set(s.parts) == set(which) for s in leaders)
-        out["first"] = out["interchangeable"] = bool(leaders) and leaders[0].kind == "swap" \
-            and set(leaders[0].parts) == set(which)
+        out["first"] = bool(leaders) and leaders[0].kind == "swap" and set(leaders[0].parts) == set(which)
+        out["interchangeable"] = out["first"] or (out["leads"] and _interchangeable_with_first(
+            design_for(topo), leaders[0], which, r.measured_input))
         return out
     part = which[0]
     lead = next((s for s in leaders if s.parts == (part,)), None)
@@ -172,12 +174,21 @@ def run_cell(cell: tuple, seed: int, folder: Path) -> dict:
     return out
 
 
-def _interchangeable_with_first(design, first, part: str, measured: bool) -> bool:
-    """The right part is tied with the first leader, and the two give the same response for
-    any value of one (fitkit.check.ties): no capture of this node can tell them apart."""
-    if first.kind != "single part" or first.value is None:
+def _interchangeable_with_first(design, first, truth, measured: bool) -> bool:
+    """The right part (a name) or swap (two names) is tied with the first leader, and the two
+    give the same response (fitkit.check.ties): for any value of one part, a value of the
+    other; or the swapped board and the single part at one value. No capture of this node
+    can tell them apart."""
+    if isinstance(truth, tuple):   # the board's swap against a single part first
+        if first.kind != "single part":
+            return False
+        reason = swap_reason(design, *truth, first.parts[0], measured)
+    elif first.kind == "swap":
+        reason = swap_reason(design, *first.parts, truth, measured)
+    elif first.kind == "single part" and first.value is not None:
+        reason = tie_reason(design, first.parts[0], first.value, truth, measured)
+    else:
         return False
-    reason = tie_reason(design, first.parts[0], first.value, part, measured)
     return bool(reason is not None and reason.interchangeable)
 
 

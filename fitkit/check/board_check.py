@@ -251,7 +251,8 @@ def _judge_parts(design: Design, diagnosis: Diagnosis | None, measured: bool, wa
     if diagnosis is None:
         return judge_parts(design, {}, (), tuple(design.parts), widening)
     warnings += [m for m in diagnosis.messages if m.startswith("no single part")]
-    return judge_parts(design, diagnosis.estimates, diagnosis.leaders, diagnosis.undetermined, widening)
+    tied = [(s.kind, s.parts) for s in diagnosis.suspects if s.tied]
+    return judge_parts(design, diagnosis.estimates, diagnosis.leaders, diagnosis.undetermined, widening, tied)
 
 
 def _record_after_edge(segments) -> float:

@@ -12,11 +12,15 @@ The scheme, in the order it runs (the fits are the engine's, hypotheses.py):
    neighbour inside its band can pull a one-part fit far off.
 3. Two parts of the same kind with different nominal values are tried
    swapped (each on the other's pads), with no free part.
-4. Hypotheses are ranked by the engine's AICc over the same samples. The
-   evidence between two is their AICc difference scaled by the best fit's
-   effective-sample fraction (the engine's correlated-residual measure),
-   because scope noise is band-limited and neighbouring samples are not
-   independent.
+4. Hypotheses are ranked by the engine's AICc over the same samples, with
+   the sum-of-squares term taken over the best fit's effective samples (the
+   engine's correlated-residual measure; fitkit.fitting.information.corrected_aic's
+   variance inflation) and each parameter charged in full, because scope
+   noise is band-limited and neighbouring samples are not independent: the
+   evidence between two is the difference of that criterion. (Scaling the
+   whole difference instead charged an extra parameter a third of its cost,
+   and a suspect with a neighbour moved within tolerance beat the part
+   interchangeable with it.)
 5. Hypotheses within ``TIE_EVIDENCE`` of the best are tied leaders: the
    capture cannot tell them apart (in an equal-part ladder a decade-low R1
    and a decade-low C2 give the same output). All of them are named.
@@ -49,7 +53,7 @@ from ..results import Estimate, json_number
 from .design import Design, PartSpec
 from .hypotheses import (HypothesisFit, final_intervals, fit_fixed, fit_free, fit_single, unexplained,
                          within_tolerance_refit)
-from .ties import tie_reason, tie_sentence
+from .ties import swap_reason, tie_reason, tie_sentence
 
 #: Scaled AICc difference within which hypotheses are equally good (Burnham and
 #: Anderson, Model Selection and Multimodel Inference, 2002: differences below 2
@@ -72,8 +76,8 @@ class Suspect:
     parts: circuit part names.
     value, ci95: implied value and 95 % interval (SI), None for a swap.
     nominal: design value (SI) of the (first) part.
-    evidence: scaled AICc difference from the best hypothesis (0 for the best).
-    against_nominal: scaled AICc gain over the all-nominal board (positive = better).
+    evidence: AICc difference from the best hypothesis on the effective samples (0 for the best).
+    against_nominal: AICc gain over the all-nominal board on the effective samples (positive = better).
     rms_residual: V.  pattern: plain words.  tied: among the leaders.
     explains: residual within EXPLAINED_RATIO of the noise (never for a fit that ran away).
     """
@@ -190,17 +194,17 @@ def _noise(fits: Sequence[HypothesisFit], segments: Sequence[StepSegment]) -> fl
     return capture_noise(segments)
 
 
-def _evidence_scale(fits: Sequence[HypothesisFit]) -> float:
-    """Effective samples per sample of the best fit the engine corrected for correlated residuals."""
+def _variance_inflation(fits: Sequence[HypothesisFit]) -> float:
+    """Samples per effective sample of the best fit the engine corrected for correlated
+    residuals (1 .. 1000; HypothesisFit.variance_inflation)."""
     for h in fits:
-        d = h.result.diagnostics if h.result is not None else None
-        if h.estimates and d is not None and d.n_samples and math.isfinite(d.effective_samples):
-            return min(max(d.effective_samples / d.n_samples, 1e-3), 1.0)
+        if h.estimates and h.result is not None and h.result.diagnostics is not None:
+            return min(h.variance_inflation, 1e3)
     return 1.0
 
 
-def _rank_key(h: HypothesisFit):
-    return (h.runaway, h.aicc)
+def _rank_key(h: HypothesisFit, inflation: float = 1.0):
+    return (h.runaway, h.effective_aicc(inflation))
 
 
 def _single_hypotheses(design: Design, segments, measured: bool, noise: float, file: str):
@@ -261,22 +265,23 @@ def diagnose(design: Design, segments: Sequence[StepSegment], *, file: str = "",
         raise FitError("no single-part hypothesis could be fitted", path=file or None,
                        hint="check the design's parts against the circuit measured")
     hyps.sort(key=_rank_key)
-    factor = _evidence_scale(hyps)
+    inflation = _variance_inflation(hyps)
+    hyps.sort(key=lambda h: _rank_key(h, inflation))
     explained = not hyps[0].runaway and hyps[0].rms <= EXPLAINED_RATIO * noise
     if not explained and hyps[0].kind != "swap":
-        messages.append(_try_pairs(design, segments, singles, hyps, factor, measured, file))
-    top = hyps[0].aicc
-    hyps = [final_intervals(design, segments, h, measured, file) if factor * (h.aicc - top) <= TIE_EVIDENCE else h
-            for h in hyps]
-    hyps.sort(key=_rank_key)
-    top = hyps[0].aicc
+        messages.append(_try_pairs(design, segments, singles, hyps, inflation, measured, file))
+    top = hyps[0].effective_aicc(inflation)
+    hyps = [final_intervals(design, segments, h, measured, file)
+            if h.effective_aicc(inflation) - top <= TIE_EVIDENCE else h for h in hyps]
+    hyps.sort(key=lambda h: _rank_key(h, inflation))
+    top = hyps[0].effective_aicc(inflation)
     suspects, leaders = [], []
     for h in hyps:
-        evidence = factor * (h.aicc - top)
+        evidence = h.effective_aicc(inflation) - top
         tied = evidence <= TIE_EVIDENCE and not h.runaway
         if tied:
             leaders.extend(p for p in h.parts if p not in leaders)
-        against = factor * (nominal.aicc - h.aicc) if nominal is not None else math.nan
+        against = nominal.effective_aicc(inflation) - h.effective_aicc(inflation) if nominal is not None else math.nan
         suspects.append(_suspect(design, h, evidence, against, tied, noise))
     messages += _tie_messages(design, [h for h, s in zip(hyps, suspects) if s.tied], measured)
     if undetermined:
@@ -289,30 +294,41 @@ def diagnose(design: Design, segments: Sequence[StepSegment], *, file: str = "",
 
 
 def _tie_messages(design: Design, tied: Sequence[HypothesisFit], measured: bool) -> list[str]:
-    """Why the tied leaders tie: one sentence per other single-part leader against the first
-    (ties.py), or one sentence naming them when they are not all single parts."""
+    """Why the tied leaders tie: one sentence per other single-part or swap leader against
+    the first (ties.py), or one sentence naming them when no reason can be given."""
     if len(tied) < 2:
         return []
-    names = " from ".join("+".join(design.label(p) for p in h.parts) for h in tied)
-    first = tied[0]
-    if first.kind != "single part" or any(h.kind != "single part" for h in tied[1:]):
-        return [f"cannot tell {names} from this capture; measure one of the parts in circuit to decide"]
+    names = " from ".join(("<->" if h.kind == "swap" else "+").join(design.label(p) for p in h.parts)
+                          for h in tied)
     out = [f"cannot tell {names} from this capture"]
-    for h in tied[1:]:
-        reason = tie_reason(design, first.parts[0], first.values[first.parts[0]], h.parts[0], measured)
-        if reason is not None:
-            out.append(tie_sentence(design, reason))
+    out += [sentence for h in tied[1:] if (sentence := _tie_sentence(design, tied[0], h, measured))]
+    if len(out) == 1:
+        out[0] += "; measure one of the parts in circuit to decide"
     return out
 
 
-def _try_pairs(design: Design, segments, singles, hyps: list[HypothesisFit], factor: float, measured: bool,
+def _tie_sentence(design: Design, first: HypothesisFit, other: HypothesisFit, measured: bool) -> str:
+    """Why ``other`` ties with ``first`` (ties.py): two single parts, or a swap and a single
+    part; "" for other kinds (pairs, two swaps)."""
+    kinds = (first.kind, other.kind)
+    if kinds == ("single part", "single part"):
+        reason = tie_reason(design, first.parts[0], first.values[first.parts[0]], other.parts[0], measured)
+    elif sorted(kinds) == ["single part", "swap"]:
+        swap, single = (first, other) if first.kind == "swap" else (other, first)
+        reason = swap_reason(design, *swap.parts, single.parts[0], measured)
+    else:
+        return ""
+    return tie_sentence(design, reason) if reason is not None else ""
+
+
+def _try_pairs(design: Design, segments, singles, hyps: list[HypothesisFit], inflation: float, measured: bool,
                file: str) -> str:
     """Fit pairs of the leading suspects; put a decisive pair first in ``hyps``; the message to show."""
     pair = _pair_hypothesis(design, segments, singles, measured, file)
     if pair is None:
         return ("no single part explains the capture (the residual stays well above the noise); "
                 "no pair of the leading suspects is determined by this capture")
-    if factor * (hyps[0].aicc - pair.aicc) >= PAIR_EVIDENCE:
+    if hyps[0].effective_aicc(inflation) - pair.effective_aicc(inflation) >= PAIR_EVIDENCE:
         hyps.insert(0, pair)
         return ("no single part explains the capture; the best two-part explanation is "
                 + " and ".join(design.label(p) for p in pair.parts) + " (both determined by this capture)")

@@ -76,6 +76,21 @@ class HypothesisFit:
         return corrected_aic(self.rss, self.n, self.n_parameters)
 
     @property
+    def variance_inflation(self) -> float:
+        """Samples over effective samples of the engine's fit (>= 1; 1 without a fit): how
+        much correlated noise inflates the sum-of-squares term of the criterion."""
+        d = self.result.diagnostics if self.result is not None else None
+        if d is None or not d.n_samples or not (d.effective_samples > 0) or not math.isfinite(d.effective_samples):
+            return 1.0
+        return max(d.n_samples / d.effective_samples, 1.0)
+
+    def effective_aicc(self, inflation: float) -> float:
+        """The criterion with the sum-of-squares term over ``inflation``
+        (fitkit.fitting.information.corrected_aic): an extra parameter must gain as much
+        on the effective samples as it costs."""
+        return corrected_aic(self.rss, self.n, self.n_parameters, inflation)
+
+    @property
     def rms(self) -> float:
         return math.sqrt(self.rss / self.n) if self.n and math.isfinite(self.rss) else math.inf
 
@@ -201,9 +216,17 @@ def within_tolerance_refit(design: Design, segments: Sequence[StepSegment], sing
     what would tell them apart). The refit lets each other part move; a
     result with that part outside its band is another hypothesis (two parts),
     not this one.
+
+    The extra part is kept only when it pays for itself on the effective samples
+    (HypothesisFit.effective_aicc with the single fit's variance inflation): with
+    band-limited noise the sum of squares falls by several times chi-square(1) for
+    any extra parameter, and the raw criterion took a neighbour within tolerance
+    nearly always, giving one of two interchangeable leaders a fit the other did
+    not get (an 11 nF C1 in an equal ladder led by R2 with C2 at -4 %).
     """
     part = single.parts[0]
     best = single
+    inflation = single.variance_inflation
     for other, spec in design.parts.items():
         if other == part:
             continue
@@ -211,7 +234,7 @@ def within_tolerance_refit(design: Design, segments: Sequence[StepSegment], sing
         pair = fit_free(design, segments, (part, other), [start], measured, kind="single part", file=file)
         if pair is None or pair.runaway or not (spec.low <= pair.values[other] <= spec.high):
             continue
-        if pair.aicc < best.aicc:
+        if pair.effective_aicc(inflation) < best.effective_aicc(inflation):
             best = HypothesisFit("single part", (part,), {part: pair.values[part]}, {part: pair.estimates[part]},
                                  pair.rss, pair.n, pair.n_parameters, pair.result, False,
                                  {other: pair.values[other]})

@@ -24,10 +24,16 @@ it is among the leading suspects (the capture is explained at least as well
 by it as by any other single change) and its widened interval misses the
 tolerance band; another part whose single-part value misses the band is
 "outside if alone": its interval misses the band only if it alone changed,
-and the capture is better explained otherwise.
+and the capture is better explained otherwise. When two or more tied
+leaders each name a fault (a part outside, a swap, a pair), only one of them
+is the board's fault and the capture cannot tell which: each leading part
+that would read "outside" reads "one of tied outside" instead, with a note
+naming the alternatives ("one of R21, C22 is outside; the capture cannot
+tell which"). In an equal-stage ladder R21 and C22 are interchangeable from
+the output, and marking both "outside" said two parts were wrong.
 
 Overall: "fail" when a quantity is outside its limits or a leading suspect
-is outside its tolerance; "pass" when every judged quantity is within its
+is outside its tolerance (or one of tied leading suspects is); "pass" when every judged quantity is within its
 limits and no part is outside (a part that cannot be told on its own, such as
 R or C of an RC low-pass whose product alone is measured, does not block a
 pass: the board behaves as designed); "inconclusive" otherwise, with what
@@ -37,7 +43,7 @@ would resolve it.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any, Mapping, Sequence
 
 from ..circuits.identifiability import scale_free_jacobian
@@ -48,6 +54,8 @@ from .design import Design
 WITHIN, OUTSIDE, CANNOT_TELL, NOT_DETERMINED = "within", "outside", "cannot tell", "not determined"
 #: A part whose own interval misses its band, while another part explains the capture better.
 OUTSIDE_IF_ALONE = "outside if alone"
+#: A leading part outside its band, tied with other leaders that name other faults: one of them is.
+ONE_OF_TIED_OUTSIDE = "one of tied outside"
 
 
 def interval_verdict(ci: tuple[float, float] | None, low: float, high: float) -> str:
@@ -159,8 +167,19 @@ def _log_half_width(spec) -> float:
 
 
 def judge_parts(design: Design, estimates: Mapping[str, Estimate], leaders: Sequence[str],
+                undetermined: Sequence[str], widening: Mapping[str, float],
+                tied: Sequence[tuple[str, tuple[str, ...]]] = ()) -> tuple[PartVerdict, ...]:
+    """One PartVerdict per toleranced part; see the module docstring.
+
+    tied: the tied leading hypotheses in rank order, (kind, circuit parts) each
+    ("single part", "swap" or "two parts").
+    """
+    return _one_of_tied(design, _judge_each(design, estimates, leaders, undetermined, widening), tied)
+
+
+def _judge_each(design: Design, estimates: Mapping[str, Estimate], leaders: Sequence[str],
                 undetermined: Sequence[str], widening: Mapping[str, float]) -> tuple[PartVerdict, ...]:
-    """One PartVerdict per toleranced part; see the module docstring."""
+    """Each part judged on its own single-part interval (module docstring)."""
     units = {"resistor": "Ohm", "capacitor": "F", "inductor": "H"}
     out = []
     for name, spec in design.parts.items():
@@ -188,9 +207,32 @@ def judge_parts(design: Design, estimates: Mapping[str, Estimate], leaders: Sequ
     return tuple(out)
 
 
+def _one_of_tied(design: Design, parts: tuple[PartVerdict, ...],
+                 tied: Sequence[tuple[str, tuple[str, ...]]]) -> tuple[PartVerdict, ...]:
+    """Leading parts judged outside become "one of tied outside" when two or more tied
+    hypotheses each name a fault (module docstring)."""
+    verdict = {p.circuit_part: p.verdict for p in parts}
+    faults = [(kind, names) for kind, names in tied
+              if kind != "single part" or verdict.get(names[0]) == OUTSIDE]
+    if len(faults) < 2:
+        return parts
+    label = design.label
+    if all(kind == "single part" for kind, _ in faults):
+        note = f"one of {', '.join(label(names[0]) for _, names in faults)} is outside"
+    else:
+        note = " or ".join(f"{label(names[0])} outside" if kind == "single part"
+                           else f"{' and '.join(map(label, names))} "
+                           + ("swapped" if kind == "swap" else "both off") for kind, names in faults)
+    note += "; the capture cannot tell which"
+    named = {n for _, names in faults for n in names}
+    return tuple(replace(p, verdict=ONE_OF_TIED_OUTSIDE, note=note)
+                 if p.verdict == OUTSIDE and p.circuit_part in named else p for p in parts)
+
+
 def overall_verdict(quantities: Sequence[QuantityVerdict], parts: Sequence[PartVerdict]) -> str:
     """pass / fail / inconclusive; see the module docstring."""
-    if any(q.verdict == OUTSIDE for q in quantities) or any(p.verdict == OUTSIDE for p in parts):
+    if any(q.verdict == OUTSIDE for q in quantities) or any(p.verdict in (OUTSIDE, ONE_OF_TIED_OUTSIDE)
+                                                             for p in parts):
         return "fail"
     judged = [q for q in quantities if q.verdict != NOT_DETERMINED]
     if judged and all(q.verdict == WITHIN for q in judged):

@@ -23,9 +23,25 @@ and ln sigma together, with the exact gradient of the log-likelihood, from
 the least-squares fit. The covariance is the inverse of the
 expected Fisher information of the parameters and sigma together.
 
-The noise is taken as white (the correlation least squares sees in the
-residuals of such a trace is mostly the rounding's, which this model
-describes); a fit whitened by a separate noise record is left as it is.
+The likelihood takes the samples as independent. Scope noise is band-limited,
+so neighbouring samples are not: the estimate is then a quasi-likelihood
+one, still consistent, but the inverse information understates its
+variance (a 3 mV noise through a second-order low-pass at a fifth of the
+Nyquist frequency, 0.3 codes of an 8-bit scale: covering 80 % instead of
+95 %). Its covariance is therefore the sandwich A^-1 B A^-1 (Huber, Proc.
+Fifth Berkeley Symp. 1 (1967) 221-233; White, Econometrica 50 (1982) 1-25),
+A the expected information, B the long-run covariance of the samples'
+scores: each sample's score d ln P_k / d m_k divided by the square root of
+its own information I_k has unit variance and, under independent noise,
+no correlation, so its autocorrelation is the noise's. The engine's
+correlated-residual correction (uncertainty.correlated_residual_correction:
+Ljung-Box test, autoregressive model of that series, projection bias,
+never narrowing) is applied to the standardised scores with the Jacobian
+of the mean scaled by sqrt(I_k), whose J^T J is the parameters' information:
+the same sandwich as for least squares, with the parameters' block of the
+inverse information (ln sigma estimated with them) as its bread. Under independent noise the test passes
+and the intervals are the inverse information's. A fit whitened by a
+separate noise record is left as it is.
 Applied to ideal-step fits on one code lattice whose least-squares residual
 rms is under half a code (noise under about 0.4 codes), sample by sample
 (a fit that binned long edges is refitted over every sample, up to
@@ -44,7 +60,7 @@ from .block_jacobian import dense
 from .least_squares import ModelFit, covariance_from_jacobian, model_fit_at
 from .form_fit import FormFit
 from .joint_model import JointModel
-from .uncertainty import Correction, t_quantile
+from .uncertainty import Correction, correlated_residual_correction, t_quantile
 
 #: FormFit.objective of a fit made here.
 ROUNDED_GAUSSIAN = "rounded Gaussian"
@@ -168,9 +184,13 @@ def code_step(ff: FormFit, joint: JointModel) -> float | None:
     return q
 
 
-def quantised_refit(ff: FormFit) -> FormFit | None:
+def quantised_refit(ff: FormFit, correlation: str = "auto") -> FormFit | None:
     """``ff`` refitted by maximum likelihood for rounding to codes (module docstring),
-    or None when it does not apply or does not converge."""
+    or None when it does not apply or does not converge.
+
+    correlation: "auto", "on" or "off", the engine's correlated-residual correction
+    applied to the standardised scores (module docstring).
+    """
     whitener = getattr(ff.joint, "whitener", None)
     if whitener is not None and whitener.record_samples is not None:
         return None  # the user's noise record says the noise is correlated: keep its GLS fit
@@ -236,13 +256,16 @@ def quantised_refit(ff: FormFit) -> FormFit | None:
     converged = math.isfinite(found.fun) and decrement < DECREMENT_TOLERANCE
     if not converged:
         return None
-    return _as_form_fit(ff, joint, current, sigma, q)
+    return _as_form_fit(ff, joint, current, sigma, q, correlation)
 
 
-def _as_form_fit(ff: FormFit, joint, fit: ModelFit, sigma: float, q: float) -> FormFit | None:
+def _as_form_fit(ff: FormFit, joint, fit: ModelFit, sigma: float, q: float,
+                 correlation: str = "auto") -> FormFit | None:
     """The FormFit of the maximum-likelihood estimate: covariance from the expected
-    information of the parameters and ln sigma together (the parameters' block of its inverse)."""
-    full = _information(dense(fit.jacobian), fit.fitted, sigma, q, float(joint.y[0]))
+    information of the parameters and ln sigma together (the parameters' block of its
+    inverse), widened for correlated noise by the sandwich of :func:`score_correction`."""
+    jacobian = dense(fit.jacobian)
+    full = _information(jacobian, fit.fitted, sigma, q, float(joint.y[0]))
     k = fit.jacobian.shape[1]
     # through the SVD of a square root of the information, as for least squares
     w, v = np.linalg.eigh(full)
@@ -253,12 +276,44 @@ def _as_form_fit(ff: FormFit, joint, fit: ModelFit, sigma: float, q: float) -> F
     if singular:
         return None
     cov = covariance[:k, :k]
+    text = (f"maximum likelihood for rounding to codes of {q * joint.scaling.volt_unit:.3g} V with "
+            f"Gaussian noise of {sigma * joint.scaling.volt_unit:.3g} V rms ({sigma / q:.2f} codes) estimated with "
+            "it: the noise is below one code, where least squares is biased")
+    scores = score_correction(joint, jacobian, fit.fitted, sigma, q, cov, correlation)
+    if scores.applied:
+        text += "; " + scores.description.replace("autocorrelation-consistent sandwich covariance",
+                                                   "sandwich covariance for correlated noise") \
+            .replace("residual autocorrelation", "autocorrelation of the standardised scores")
+        cov = scores.covariance
+    else:
+        text += "; noise consistent with independent samples"
     stderr = {n: math.sqrt(cov[i, i]) for i, n in enumerate(fit.names)}
     refit = replace(fit, covariance=cov, stderr=stderr, converged=True,
                     message="maximum likelihood for a trace rounded to codes")
-    text = (f"maximum likelihood for rounding to codes of {q * joint.scaling.volt_unit:.3g} V with white "
-            f"Gaussian noise of {sigma * joint.scaling.volt_unit:.3g} V rms ({sigma / q:.2f} codes) estimated with "
-            "it: the noise is below one code, where least squares is biased")
-    correction = Correction(cov, np.ones(k), ff.correction.lag1, 0, True, text, 1.0, None)
-    dof = max(fit.n - k - 1, 1)
-    return FormFit(ff.form, joint, refit, correction, t_quantile(dof), ff.notes, ROUNDED_GAUSSIAN)
+    correction = Correction(cov, scores.widening, ff.correction.lag1, scores.correlation_lags, True, text,
+                            scores.variance_ratio, scores.dof)
+    dof = scores.dof if scores.applied and scores.dof is not None else max(fit.n - k - 1, 1)
+    return FormFit(ff.form, joint, refit, correction, t_quantile(int(round(dof))), ff.notes, ROUNDED_GAUSSIAN)
+
+
+def score_correction(joint, jacobian: np.ndarray, mean: np.ndarray, sigma: float, q: float,
+                     covariance: np.ndarray, correlation: str = "auto") -> Correction:
+    """The engine's correlated-residual correction of the maximum-likelihood
+    ``covariance`` (parameters' block, scaled units), from the samples' scores.
+
+    Each sample's score about its mean, u_k = d ln P_k / d m_k, has variance
+    I_k (its expected information); z_k = u_k / sqrt(I_k) and the Jacobian rows
+    scaled by sqrt(I_k) make the parameters' information J~^T J~, so the
+    least-squares sandwich of uncertainty.correlated_residual_correction (s^2 = 1,
+    ``covariance`` as its bread) is the quasi-likelihood sandwich A^-1 B A^-1
+    (module docstring). Samples that
+    carry no information (I_k ~ 0, deep inside one code) are left out of both.
+    """
+    info_mm, _, _ = sample_information(mean, sigma, q, float(joint.y[0]))
+    d_mean, _ = _scores(joint.y, mean, sigma, q)
+    informative = info_mm > 1e-12 * max(float(np.max(info_mm)), 1e-300)
+    root = np.sqrt(np.where(informative, info_mm, 0.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        standardised = np.where(informative, d_mean / np.where(informative, root, 1.0), 0.0)
+    return correlated_residual_correction(jacobian * root[:, None], joint.split(standardised),
+                                          list(joint.bounds), covariance, 1.0, correlation)

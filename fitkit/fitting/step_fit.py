@@ -87,7 +87,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         if not ff.converged:
             raise FitError(f"the {chosen_form.name} fit did not converge ({ff.fit.message})"
                            + _runaway_note(ff, dt), path=file or None, hint="try --form auto or another form")
-        ff = quantised_refit(ff) or ff
+        ff = quantised_refit(ff, correlation) or ff
         _refuse_smeared_average(ff, file)
         shape, notes = shape_estimates(ff, intervals)
         ok, why = admissibility(chosen_form, shape, dt)
@@ -155,7 +155,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
                            hint="fit fewer edges (--edge-time) or average them (--average)")
     if len(trial) < len(segments):
         reason += f" (forms compared on the first {len(trial)} of {len(segments)} edges, the chosen one fitted to all)"
-    final = quantised_refit(final) or final
+    final = quantised_refit(final, correlation) or final
     _refuse_smeared_average(final, file)
     shape, notes = shape_estimates(final, intervals)
     chosen = Candidate(chosen.form, final, shape, True, "")

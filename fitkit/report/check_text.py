@@ -4,8 +4,8 @@ Layout (ours): a verdict banner with the one-line summary; the behavioural
 quantities (measured value, 95 % interval, allowed range, where the range
 comes from, verdict); the parts, each judged alone with the others at
 nominal; the suspects, most likely first, with their ΔAICc (AICc
-difference from the best, scaled for correlated noise) and the fault
-pattern; the capture against the tolerance envelope; what would resolve an
+difference from the best, counted on the effective samples of correlated
+noise) and the fault pattern; the capture against the tolerance envelope; what would resolve an
 inconclusive check; warnings last.
 """
 
@@ -32,8 +32,8 @@ def _iv(ci, unit: str) -> str:
 
 
 #: The suspects' ΔAICc and what it means, said once per report (text, HTML).
-SUSPECT_DELTA_MEANING = ("ΔAICc: AICc minus the best suspect's, scaled for correlated noise; bigger = worse fit; "
-                         "below 2 = as good as the best")
+SUSPECT_DELTA_MEANING = ("ΔAICc: AICc minus the best suspect's, counted on the effective samples of "
+                         "correlated noise; bigger = worse fit; below 2 = as good as the best")
 #: The one mark of suspects tied for first place: "1=" (and "1=" for each of them).
 TIE_MEANING = "'1=' marks suspects tied for first place"
 
@@ -42,7 +42,7 @@ def rank_mark(rank: int, suspect, result) -> str:
     """A suspect's rank as every report shows it: "1=" for the suspects tied for first
     place (when more than one is), else the bare rank."""
     tied = sum(1 for s in result.suspects if s.tied) > 1
-    return f"{rank}=" if tied and suspect.tied else str(rank)
+    return "1=" if tied and suspect.tied else str(rank)
 
 
 def output_unit_of(result) -> str:
@@ -126,7 +126,7 @@ def render_check_text(result) -> str:
 def shows_suspects(result) -> bool:
     """Quiet on a pass: the suspects are shown when the board does not pass or a part is
     judged outside (they stay in the JSON either way)."""
-    return result.verdict != "pass" or any(c.verdict == "outside" for c in result.components)
+    return result.verdict != "pass" or any(c.verdict in ("outside", "one of tied outside") for c in result.components)
 
 
 def suspect_notes(result, limit: int = 3) -> list[str]:
