@@ -33,7 +33,8 @@ within 30 % of its largest excursion from the baseline; its ``step_size`` is
 then the input's step, or the output's peak excursion without an input.
 
 Coherent averaging puts all edges of one direction on a common time axis
-relative to their sub-sample edge times (linear interpolation, np.interp) and
+relative to their edge times, each by its nearest samples (no interpolation:
+the noise stays white; an uneven time axis is interpolated, np.interp), and
 averages them, which divides white noise by the square root of the number of
 edges.
 """
@@ -242,11 +243,14 @@ def average_segments(segments: Sequence[StepSegment], edges: Sequence[Edge], *,
         grid = sample_interval * np.arange(k0, k1 + 1)
         out_sum = np.zeros(grid.size)
         in_sum = None if group[0][0].input is None else np.zeros(grid.size)
+        shifts = []
         for seg, _ in group:
             at = seg.edge_time + grid
-            out_sum += np.interp(at, seg.time, seg.output)
+            index, shift = _nearest_samples(seg, at, sample_interval)
+            shifts.append(shift)
+            out_sum += seg.output[index] if index is not None else np.interp(at, seg.time, seg.output)
             if in_sum is not None and seg.input is not None:
-                in_sum += np.interp(at, seg.time, seg.input)
+                in_sum += seg.input[index] if index is not None else np.interp(at, seg.time, seg.input)
         n = len(group)
         first_seg, first_edge = group[0]
         t_avg = first_seg.edge_time + grid
@@ -262,28 +266,55 @@ def average_segments(segments: Sequence[StepSegment], edges: Sequence[Edge], *,
                               averaged_edges=n, sample_interval=sample_interval)
         result.append(replace(avg, start=first_seg.start, stop=first_seg.stop,
                               noise_rms=noise, alignment_variance=alignment_variance(
-                                  group, grid, out_sum / n, in_sum is not None, sample_interval)))
+                                  group, grid, out_sum / n, in_sum is not None, sample_interval, shifts)))
     result.sort(key=lambda s: s.edge_time)
     return tuple(result)
 
 
+def _nearest_samples(seg: StepSegment, at: np.ndarray, sample_interval: float
+                     ) -> tuple[np.ndarray | None, float]:
+    """Indices of the samples of ``seg`` nearest to the times ``at`` (uniformly
+    sampled, all inside the segment), and how far (in samples, -1/2 to 1/2) the
+    edge sits from where they put it; (None, nan) when the segment is not
+    uniformly sampled there (the average then interpolates)."""
+    dt = sample_interval
+    t = np.asarray(seg.time, dtype=float)
+    if t.size < 2 or not dt > 0 or np.max(np.abs(np.diff(t) - dt)) > 1e-6 * dt:
+        return None, math.nan
+    position = (at[0] - t[0]) / dt
+    first = int(np.rint(position))
+    index = first + np.arange(at.size)
+    if first < 0 or index[-1] >= t.size:
+        return None, math.nan
+    return index, position - first
+
+
 def alignment_variance(group: Sequence[tuple[StepSegment, Edge]], grid: np.ndarray, average: np.ndarray,
-                       located_on_input: bool, sample_interval: float) -> float:
+                       located_on_input: bool, sample_interval: float, shifts: Sequence[float]) -> float:
     """Variance (s^2) of the kernel a coherent average smears the output with.
 
-    Linear interpolation at a sub-sample offset d is the kernel [1 - d, d], of
-    variance d (1 - d) dt^2 (mean over the edges' own offsets). Edges located
-    on the output's mid-level crossing (no input channel) also jitter by the
-    noise over the slope there: an interpolated crossing between samples a
-    fraction f apart has variance ((1 - f)^2 + f^2) sigma^2 / slope^2, 2/3 of
+    Each edge is placed on the common axis by its nearest samples, a shift of
+    r samples (|r| <= 1/2) from its exact edge time: the average is the
+    response averaged over those shifts, a kernel of variance var(r) dt^2 (its
+    mean is a common delay, which the fitted edge time takes up)
+    (taking the samples as they are keeps the noise white; interpolating
+    between them, as for an edge on an uneven time axis, smooths each edge by
+    d (1 - d) dt^2 instead and correlates the noise). Edges located on the
+    output's mid-level crossing (no input channel) also jitter by the noise
+    over the slope there: an interpolated crossing between samples a fraction
+    f apart has variance ((1 - f)^2 + f^2) sigma^2 / slope^2, 2/3 of
     sigma^2 / slope^2 over f spread evenly (first-order error propagation;
     common practice, no source). Edges located on a drive are taken as exact
-    (the drive's steep edge), and the model driven by the averaged drive sees
-    the same smoothing as the output.
+    (the drive's steep edge); the model driven by the averaged drive then sees
+    the same shifts as the output.
     """
     dt = sample_interval
-    offsets = np.array([((seg.edge_time - seg.time[0]) / dt) % 1.0 for seg, _ in group])
-    variance = float(np.mean(offsets * (1.0 - offsets))) * dt * dt
+    r = np.array(shifts, dtype=float)
+    if np.all(np.isfinite(r)):
+        variance = float(np.var(r)) * dt * dt  # their mean is a common delay, not a smear
+    else:  # interpolated: the kernel [1 - d, d] of each edge
+        offsets = np.array([((seg.edge_time - seg.time[0]) / dt) % 1.0 for seg, _ in group])
+        variance = float(np.mean(offsets * (1.0 - offsets))) * dt * dt
     if located_on_input:
         return variance
     slope = _crossing_slope(grid, average)
