@@ -107,3 +107,15 @@ def test_edges_placed_by_their_nearest_samples_keep_the_noise_white():
     cap = Capture(time=t, channels=(Channel("input", u, "V", "V"), Channel("output", y, "V", "V")))
     r = fit_capture(cap, average=True)
     assert len(r.segments) == 2 and abs(r.diagnostics.residual_lag1) < 0.1
+
+
+def test_a_runaway_shape_value_is_clipped_not_an_overflow():
+    # a rescue form that ran away on an averaged capture (log of a time constant past 700)
+    # crashed with OverflowError; such a value is clipped as the joint model clips it
+    from fitkit.fitting.scaling import RUNAWAY_LOG, Scaling
+
+    spec = get_form("first-order").shape[0]
+    sc = Scaling(time_unit=1e-6, volt_origin=0.0, volt_unit=1.0, input_unit=1.0)
+    assert sc.shape_from_log_scaled(spec, 800.0) == sc.shape_from_log_scaled(spec, RUNAWAY_LOG)
+    assert math.isfinite(sc.shape_from_log_scaled(spec, 800.0))
+    assert sc.shape_from_log_scaled(spec, 0.5) == math.exp(0.5) * 1e-6

@@ -38,7 +38,7 @@ from ..conditioning.segment import StepSegment
 from ..errors import FitError
 from ..forms.base import Form
 from .measured_input import fft_convolve, response_by_superposition, superposition_kernel, uniform_step
-from .scaling import Scaling
+from .scaling import RUNAWAY_LOG, Scaling
 
 #: Segments longer than this are bin-averaged before the nonlinear fit.
 MAX_POINTS_PER_SEGMENT = 4000
@@ -280,7 +280,8 @@ class JointModel:
     def shape_scaled(self, values: Mapping[str, float]) -> dict[str, float]:
         """Shape parameters in scaled units (not logs) from internal values."""
         # clipped: a log beyond +-60 means the fit has run away (handled as not determined)
-        return {p.name: math.exp(min(max(values["log_" + p.name], -60.0), 60.0)) for p in self.form.shape}
+        return {p.name: math.exp(min(max(values["log_" + p.name], -RUNAWAY_LOG), RUNAWAY_LOG))
+                for p in self.form.shape}
 
     def unit_response(self, i: int, shape: Mapping[str, float], t0: float = 0.0) -> np.ndarray:
         """Normalised response of edge i (per point, scaled): step or measured-input response."""

@@ -46,6 +46,8 @@ def reference_step(seg: StepSegment, form: Form | None = None) -> float:
 #: Long records are block-averaged to about this many points before the rough
 #: read-offs that seed a fit (time scale, guesses, trial delays).
 ROUGH_POINTS = 8000
+#: A scaled log shape value beyond +- this means the fit has run away (e^60 = 1e26 time units).
+RUNAWAY_LOG = 60.0
 
 
 def decimated(t: np.ndarray, y: np.ndarray, max_points: int = ROUGH_POINTS) -> tuple[np.ndarray, np.ndarray]:
@@ -92,4 +94,8 @@ class Scaling:
         return math.log(value / self.shape_unit(spec))
 
     def shape_from_log_scaled(self, spec: ParamSpec, log_scaled: float) -> float:
-        return math.exp(log_scaled) * self.shape_unit(spec)
+        """The physical value of a scaled log. A log beyond +-RUNAWAY_LOG means
+        the fit has run away: it is clipped there, as the joint model clips it
+        (fitkit.fitting.joint_model.JointModel.shape_scaled), and the fit's
+        interval then says the value is not determined (no overflow)."""
+        return math.exp(min(max(log_scaled, -RUNAWAY_LOG), RUNAWAY_LOG)) * self.shape_unit(spec)

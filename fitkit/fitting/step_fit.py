@@ -139,6 +139,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
             tried = {c.form.name for c in cands}
             queue = [FORMS[n] for n in FALLBACK_CANDIDATES if n in FORMS and n not in tried]
     chosen, scores, reason, sel_warn = choose(cands, dt)
+    _refuse_smeared_average(chosen.fit, file)  # before any rescue: the smear is the misfit's cause
     if candidates is None:
         chosen, scores, reason, sel_warn = with_dead_time(chosen, scores, reason, sel_warn, cands, trial,
                                                         dt, select_kwargs)
@@ -404,8 +405,8 @@ def _refuse_smeared_average(ff: FormFit, file: str) -> None:
     name = max(bias, key=bias.get)
     edges = sum(s.averaged_edges for s in ff.joint.segments)
     raise AverageSmearedError(
-        f"the coherent average of {edges} edges is smeared by their alignment (sub-sample interpolation"
-        f"{'' if ff.joint.segments[0].input is not None else ' and the noise on edges located on the output'}"
+        f"the coherent average of {edges} edges is smeared by their alignment (their sub-sample shifts"
+        f"{'' if ff.joint.segments[0].input is not None else ' and the noise on edge times read off the output'}"
         f"): it would bias {name} by {bias[name]:.1f} standard errors", path=file or None,
         hint="fit without --average (every edge jointly)")
 
