@@ -221,7 +221,7 @@ def test_bin_rule_gives_the_discrete_mean_of_the_samples(n):
     # the same mean of the model: exact for polynomials to degree 5 (Gauss
     # quadrature of the discrete uniform measure; Golub & Welsch, Math. Comp. 23
     # (1969) 221-230) and for any bin of up to three samples.
-    from fitkit.fitting.joint_model import discrete_mean_nodes
+    from fitkit.fitting.binning import discrete_mean_nodes
 
     dt = 0.01
     first = np.array([-0.3, 0.0, 1.7])

@@ -59,6 +59,8 @@ def drive_jump_term(joint: JointModel, fit: ModelFit) -> np.ndarray | None:
     shape = joint.shape_scaled(fit.values)
     gain = fit.values.get("gain", 1.0)
     sharp, found = [], False
+    longest = max(d.y.size for d in joint.data)
+    middles: dict[float, np.ndarray] = {}  # step response at each interval's middle, per sample interval
     for d in joint.data:
         n = d.y.size
         b = np.zeros(n)
@@ -72,8 +74,9 @@ def drive_jump_term(joint: JointModel, fit: ModelFit) -> np.ndarray | None:
         if total == 0.0 or abs(du[j]) < JUMP_SHARE * abs(total):
             continue
         found = True
-        s_mid = joint.form.unit_step((np.arange(1, n - j + 1) - 0.5) * d.dt, **shape)
-        b[j:] = gain * du[j] * (s_mid - joint._kernel(shape, d.dt)[1:n - j + 1])
+        if d.dt not in middles:
+            middles[d.dt] = joint.form.unit_step((np.arange(1, longest + 1) - 0.5) * d.dt, **shape)
+        b[j:] = gain * du[j] * (middles[d.dt][:n - j] - joint.kernel_for(shape, d.dt)[1:n - j + 1])
     return np.concatenate(sharp) if found else None
 
 

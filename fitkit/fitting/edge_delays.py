@@ -38,7 +38,7 @@ from typing import Mapping
 import numpy as np
 from scipy import optimize
 
-from .joint_model import JointModel
+from .joint_model import EdgeSums, JointModel
 
 #: The delays are solved inside the shape search from this many edges on
 #: (fewer: the delays are searched with the shape, :mod:`.projection`).
@@ -64,24 +64,6 @@ def uses_nested_delays(joint: JointModel, fixed: Mapping[str, float]) -> bool:
             and not any(n.startswith("t0_") for n in fixed))
 
 
-class _EdgeSums:
-    """Weighted per-edge sums over the stacked points (weights = samples per point)."""
-
-    def __init__(self, joint: JointModel) -> None:
-        self.edge = joint.stacked.edge_of_point
-        self.m = len(joint.data)
-        self.starts = np.asarray(joint.bounds[:-1])  # every edge has points (at least 4)
-        self.w2 = np.concatenate([d.counts for d in joint.data]).astype(float)
-        self.total = self.sum(np.ones_like(self.w2))
-
-    def sum(self, x: np.ndarray) -> np.ndarray:
-        return np.add.reduceat(self.w2 * x, self.starts)
-
-    def centred(self, x: np.ndarray) -> np.ndarray:
-        """x minus its weighted mean over each edge."""
-        return x - (self.sum(x) / self.total)[self.edge]
-
-
 @dataclass
 class DelayFit:
     """Delays, levels and model of every edge for one shape (see :func:`solve_delays`)."""
@@ -95,7 +77,7 @@ class DelayFit:
     converged: bool
 
 
-def _levels(sums: _EdgeSums, f: np.ndarray, target: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _levels(sums: EdgeSums, f: np.ndarray, target: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Per-edge weighted straight-line fit of target on f: (baseline, step, residual)."""
     e = sums.edge
     fc, yc = sums.centred(f), sums.centred(target)
@@ -122,7 +104,7 @@ def solve_delays(joint: JointModel, shape: Mapping[str, float], start: np.ndarra
     then that edge stays where it is);
     the sweeps stop when no delay moves by more than :data:`DELAY_TOLERANCE`.
     """
-    sums = _EdgeSums(joint)
+    sums = joint.edge_sums
     y = joint.y
     e = sums.edge
     delays = np.array(start, dtype=float)
@@ -181,7 +163,7 @@ def reduced_jacobian(joint: JointModel, shape_names: tuple[str, ...], values: Ma
                      fit: DelayFit) -> np.ndarray:
     """d(model)/d(log shape) of every edge at fixed delays and levels, with each
     edge's own level and delay columns projected out (weighted): (n, k)."""
-    sums = _EdgeSums(joint)
+    sums = joint.edge_sums
     e = sums.edge
     w = joint.weights
     cols = []

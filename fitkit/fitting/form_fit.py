@@ -30,6 +30,7 @@ from .least_squares import ModelFit, fit_model
 from .information import corrected_aic, has_measured_input
 from .input_noise import input_noise_covariance
 from .drive_between_samples import with_drive_between_samples
+from .edge_windows import consecutive_windows_cut, cut_at_fitted_edges
 from .joint_model import MAX_POINTS_PER_SEGMENT, JointModel
 from .projection import (ProjectedSearch, can_project, finish_projected, nonlinear_names,
                          search_projected)
@@ -37,6 +38,7 @@ from .scaling import Scaling, decimated, reference_step
 from .starts import best_starts, few_edges, projected_levels
 from .uncertainty import Correction, correlated_residual_correction, t_quantile
 from .noise_record import NoiseRecord
+from .odd_edges import edges_unlike_the_others
 from .whitening import whitened_fit, whitening_applies
 
 #: How many of the best grid starts are refined by the nonlinear fit.
@@ -183,7 +185,7 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     """
     if not segments:
         raise FitError("no step segments to fit", hint="check that the capture holds at least one edge")
-    segments = _consecutive_windows_trimmed(segments)
+    segments = consecutive_windows_cut(segments)
     has_input = has_measured_input(segments)
     measured_input = has_input if measured_input is None else measured_input
     if free_t0 is None:
@@ -276,7 +278,7 @@ def _finished(joint: JointModel, best: ModelFit, fixed_int: Mapping[str, float],
     """The best fit trimmed where windows overlap, in canonical order, with its
     correlated-residual correction, whitened refit and measured-input noise."""
     form = joint.form
-    trimmed = _trim_overlaps(joint, best)
+    trimmed = cut_at_fitted_edges(joint, best)
     if trimmed is not None:  # an edge window ran into the next edge's response: refit without it
         trimmed_joint = joint.with_segments(trimmed)
         refit = _run(trimmed_joint, {k: best.values[k] for k in best.names}, fixed_int, project)
@@ -308,46 +310,6 @@ def _finished(joint: JointModel, best: ModelFit, fixed_int: Mapping[str, float],
     notes.extend(edges_unlike_the_others(joint, best, correction))
     dof = correction.dof if correction.applied and correction.dof is not None else best.dof
     return FormFit(form, joint, best, correction, t_quantile(int(round(dof))), tuple(notes))
-
-
-#: An edge's residuals are named as unlike the others' when a chi-square test
-#: against the typical edge's residual variance rejects at this level, shared
-#: (Bonferroni) among the edges.
-ODD_EDGE_LEVEL = 1e-3
-
-
-def edges_unlike_the_others(joint: JointModel, fit: ModelFit, correction: Correction) -> list[str]:
-    """Plain-words warnings naming each edge whose residuals are larger than the others'.
-
-    A joint fit shares one shape among the edges; an edge whose response
-    differs (a drifting part, a glitch, a different load) leaves larger
-    residuals there. Each edge's weighted residual variance is compared with
-    the median edge's: rss_i / median ~ chi-square(d_i) / d_i with d_i its
-    points less its own parameters, divided by the residuals' variance ratio
-    when they are correlated (fewer effective points); an edge is named when
-    that exceeds the upper ODD_EDGE_LEVEL / m quantile. Needs three edges.
-    """
-    from scipy import special
-
-    m = len(joint.segments)
-    if m < 3 or not fit.rss > 0:
-        return []
-    w = joint.weights
-    pieces = joint.split(w * (joint.y - fit.fitted))
-    own = len(joint.level_names(0)) - (1 if joint.measured_input else 0)
-    dof = np.array([max(len(r) - own, 1) for r in pieces], dtype=float)
-    variance = np.array([float(r @ r) for r in pieces]) / dof
-    typical = float(np.median(variance))
-    if not typical > 0:
-        return []
-    effective = dof / max(correction.variance_ratio, 1.0)
-    limit = special.chdtri(effective, ODD_EDGE_LEVEL / m) / effective
-    out = []
-    for i in np.flatnonzero(variance / typical > limit):
-        seg = joint.segments[i]
-        out.append(f"edge {i + 1} of {m} (at t = {seg.edge_time:.6g} s) does not follow the shared response: "
-                   f"its residuals are {math.sqrt(variance[i] / typical):.2g} times those of a typical edge")
-    return out
 
 
 def _continued(joint: JointModel, stopped: ProjectedSearch, fixed: Mapping[str, float]) -> ProjectedSearch:
@@ -443,77 +405,6 @@ def _with_input_noise(joint: JointModel, fit: ModelFit, correction: Correction) 
              f"(widens up to x{float(np.max(own)):.2f})")
     return replace(correction, covariance=total, widening=np.maximum(widening, 1.0), applied=True,
                    description=text)
-
-
-def _trim_overlaps(joint: JointModel, fit: ModelFit) -> list[StepSegment] | None:
-    """Segments cut short where they reach the next edge's fitted time or the
-    next window, or None if none does.
-
-    Without an input channel the conditioning places edges at the output's own
-    mid-level crossing, later than the real edge, so a window may include the
-    start of the next edge's response. The fitted t0 of the next edge tells
-    where to stop. Consecutive windows of one record also overlap (the next
-    one starts a quarter interval before its edge): the samples they share
-    would count twice, overstating the information (intervals too narrow, by
-    a tenth for a 10-edge square wave), so a window stops where the next one
-    starts; what is left of its settling is the next window's previous-edge
-    tail (:meth:`.joint_model.JointModel.previous_tail`).
-    """
-    if not (joint.free_t0 or joint.measured_input) or len(joint.segments) < 2:
-        return None
-    sc = joint.scaling
-    segs = list(joint.segments)
-    starts = [s.edge_time + fit.values.get(f"t0_{i}", 0.0) * sc.time_unit for i, s in enumerate(segs)]
-    changed = False
-    for i in range(len(segs) - 1):
-        seg, nxt = segs[i], joint.segments[i + 1]
-        limit = starts[i + 1] if joint.free_t0 else math.inf
-        if joint.previous_steps[i + 1] is not None:  # consecutive windows of one record
-            limit = min(limit, float(nxt.time[0]))
-        if seg.time[-1] >= limit > seg.edge_time:
-            keep = int(np.searchsorted(seg.time, limit, side="left"))
-            if keep >= 8:
-                segs[i] = _trimmed(seg, keep)
-                changed = True
-    return segs if changed else None
-
-
-def _consecutive_windows_trimmed(segments: Sequence[StepSegment]) -> tuple[StepSegment, ...]:
-    """Each window of one record cut where the next window starts.
-
-    Consecutive windows overlap (the next starts a quarter interval before its
-    edge); the samples they share would count twice. Cutting them before the
-    fit, rather than after it (:func:`_trim_overlaps`, which still cuts where
-    a fitted edge time says so), saves a second search over every edge."""
-    segs = list(segments)
-    for i in range(len(segs) - 1):
-        seg, nxt = segs[i], segments[i + 1]
-        if seg.averaged_edges != 1 or nxt.averaged_edges != 1 or seg.stop < nxt.start:
-            continue
-        limit = float(nxt.time[0])
-        if seg.time[-1] >= limit > seg.edge_time:
-            keep = int(np.searchsorted(seg.time, limit, side="left"))
-            if keep >= 8:
-                segs[i] = _trimmed(seg, keep)
-    return tuple(segs)
-
-
-#: Trimmed segments kept for reuse, so the next candidate form finds the same
-#: objects (and the joint model's prepared-data cache hits).
-_TRIMMED: dict[tuple[int, int], tuple[StepSegment, StepSegment]] = {}
-
-
-def _trimmed(seg: StepSegment, keep: int) -> StepSegment:
-    """``seg`` cut to its first ``keep`` samples (the same object for the same cut)."""
-    hit = _TRIMMED.get((id(seg), keep))
-    if hit is not None and hit[0] is seg:
-        return hit[1]
-    out = replace(seg, stop=seg.start + keep, time=seg.time[:keep], output=seg.output[:keep],
-                  input=None if seg.input is None else seg.input[:keep])
-    if len(_TRIMMED) >= 64:
-        _TRIMMED.pop(next(iter(_TRIMMED)))
-    _TRIMMED[(id(seg), keep)] = (seg, out)
-    return out
 
 
 def _canonical(joint: JointModel, fit: ModelFit) -> ModelFit:

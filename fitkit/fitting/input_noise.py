@@ -30,7 +30,7 @@ from scipy import linalg
 from ..conditioning.noise import noise_from_differences
 from .block_jacobian import edge_columns
 from .joint_model import JointModel
-from .measured_input import superposition_adjoint, superposition_kernel
+from .measured_input import superposition_adjoint
 from .uncertainty import autoregressive_autocorrelation, residual_autocorrelation
 
 #: Fewest points before the edge for a coloured (autoregressive) noise estimate.
@@ -78,7 +78,7 @@ def input_noise_covariance(joint: JointModel, jacobian: np.ndarray, bread: np.nd
     for i, d in enumerate(joint.data):
         lo, hi = joint.bounds[i], joint.bounds[i + 1]
         n = hi - lo
-        kernel = superposition_kernel(lambda t: joint.form.unit_step(t, **shape), n, d.dt)
+        kernel = joint.kernel_for(shape, d.dt)  # the longest edge's: its first n + 1 values serve
         weights = d.u_initial_weights if d.u_initial_weights is not None else np.eye(1, n)[0]
         cols, block = edge_columns(jacobian, lo, hi)  # the columns that move this edge
         m = superposition_adjoint(kernel, dc, weights, w2[lo:hi, None] * block)

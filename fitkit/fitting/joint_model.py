@@ -13,15 +13,15 @@ The parameters of a joint fit of m edges with a form are
 
 Long segments are averaged into bins before the fit (the bin mean of the
 data against the mean of the model over the same samples, the latter by a
-3-point rule exact for the discrete mean, :func:`discrete_mean_nodes`): narrow bins around the edge, wider ones where the response is slow (see
-:func:`variable_bins`). This keeps the estimate efficient for a smooth
+3-point rule exact for the discrete mean, :func:`.binning.discrete_mean_nodes`): narrow bins around the edge, wider ones where the response is slow (see
+:func:`.binning.variable_bins`). This keeps the estimate efficient for a smooth
 response while cutting the cost; each bin is weighted by the square root of
 its sample count, so the residual variance is that of one sample and the
 covariance accounts for the averaging. In measured-input
 mode the input is bin-averaged too and simulated at the bin resolution, with
 bins kept below 1/30 of the time scale (model error of order 1e-4 of the step);
 the level the input had before the record is the mean of its points before
-the edge (:func:`pre_edge_weights`), not its noisy, quantised first sample.
+the edge (:func:`.binning.pre_edge_weights`), not its noisy, quantised first sample.
 Prepared segments are cached, so model selection (one fit per candidate
 form, same units) bins each segment once.
 """
@@ -37,6 +37,7 @@ import numpy as np
 from ..conditioning.segment import StepSegment
 from ..errors import FitError
 from ..forms.base import Form
+from .binning import discrete_mean_nodes, pre_edge_weights, variable_bins
 from .measured_input import fft_convolve, response_by_superposition, superposition_kernel, uniform_step
 from .scaling import RUNAWAY_LOG, Scaling
 
@@ -46,9 +47,6 @@ MAX_POINTS_PER_SEGMENT = 4000
 #: MIN_POINTS_PER_SEGMENT each).
 MAX_TOTAL_POINTS = 12000
 MIN_POINTS_PER_SEGMENT = 400
-#: Widest bin, in time units (the first time-scale guess, about the 63 % rise
-#: time): the 3-point bin rule then follows even a ringing response closely.
-MAX_BIN_WIDTH = 0.5
 #: In measured-input mode a bin is at most 1/this of the first time-scale guess.
 MEASURED_INPUT_BINS_PER_UNIT = 30
 
@@ -60,7 +58,7 @@ class SegmentData:
     t_nodes: (n, k) node times relative to the edge, scaled; the model value of a
         point is the weighted sum over its nodes (k = 1 unbinned, 3 when binned).
     node_weights: (k,) or (n, k) weights of the nodes, summing to 1 per point
-        (see :func:`discrete_mean_nodes`).
+        (see :func:`.binning.discrete_mean_nodes`).
     y: data (bin means when binned), scaled volts.
     u: normalised input (measured-input mode; bin means when binned), else None.
     bin_size: largest number of samples in one point (1 = unbinned).
@@ -87,80 +85,6 @@ class SegmentData:
         if self.u is None or self.u_initial_weights is None:
             return None
         return float(self.u_initial_weights @ self.u)
-
-
-def variable_bins(t_rel: np.ndarray, dt: float, max_points: int) -> np.ndarray:
-    """Start indices of bins that are narrow around the edge and widen away from it.
-
-    t_rel is scaled time from the reported edge. Between -2 and +1 time units
-    (where the true edge and the fast part of the response are) bins have a
-    width w; outside, the width grows in proportion to the distance (bin count
-    logarithmic in the distance). w starts at 1/200 of a time unit (never below
-    one sample) and is enlarged until there are at most ``max_points`` bins;
-    no bin is wider than MAX_BIN_WIDTH (so there may be more bins than that).
-    Bin averages of the model are taken by a 3-point rule over each bin, which
-    is accurate where the response is smooth; the edge's kink sits in a narrow bin.
-    """
-    lo_edge, hi_edge = -2.0, 1.0
-    width = max(dt, 1.0 / 200.0)
-    for _ in range(8):
-        before = np.clip(lo_edge - t_rel, 0.0, None)
-        after = np.clip(t_rel - hi_edge, 0.0, None)
-        inside = np.clip(t_rel, lo_edge, hi_edge) - lo_edge
-        coordinate = (inside - np.log1p(before) + np.log1p(after)) / width
-        ids = np.floor(coordinate).astype(np.int64)
-        # no bin wider than MAX_BIN_WIDTH time units: a ringing response keeps its shape
-        caps = np.floor(t_rel / MAX_BIN_WIDTH).astype(np.int64)
-        starts = np.flatnonzero(np.diff(ids, prepend=ids[0] - 1) | np.diff(caps, prepend=caps[0] - 1))
-        if starts.size <= max_points:
-            return starts
-        width *= starts.size / max_points * 1.05
-    return starts
-
-
-def discrete_mean_nodes(centre: np.ndarray, counts: np.ndarray, dt: float) -> tuple[np.ndarray, np.ndarray]:
-    """Nodes (m, 3) and weights (m, 3) giving the mean of a function over the
-    ``counts[j]`` samples of bin j (spacing ``dt``, mean time ``centre[j]``).
-
-    A bin mean of the data is the mean over its discrete samples, not the
-    continuous mean over the bin: for a component e^(s t) the two differ by the
-    factor (s dt / 2) / sinh(s dt / 2), independent of the bin width, about
-    1 + (omega dt)^2 / 24 for a ringing component (4e-4 at 10 samples per
-    radian). Modelling the bins by the continuous mean biased Q of a high-Q,
-    high-SNR capture by that much. This rule is the 3-point Gauss quadrature
-    of the discrete uniform measure on the bin's n samples: nodes at the centre
-    and at +-dt sqrt(b1 + b2), weights b2 / (b1 + b2) and b1 / (2 (b1 + b2)),
-    with b1 = (n^2 - 1) / 12 and b2 = (n^2 - 4) / 15 the recurrence
-    coefficients of the discrete Chebyshev (Gram) polynomials (Golub & Welsch,
-    Math. Comp. 23 (1969) 221-230; the coefficients from Abramowitz & Stegun
-    22.2 / 22.17, from memory). It is exact for polynomials up to degree 5 and
-    for every bin of one to three samples, and tends to 3-point Gauss-Legendre
-    over wide bins.
-    """
-    n = np.asarray(counts, dtype=float)
-    b1 = (n * n - 1.0) / 12.0
-    b2 = (n * n - 4.0) / 15.0
-    single = n < 1.5
-    total = np.where(single, 1.0, b1 + b2)
-    half = np.where(single, 0.0, dt * np.sqrt(np.where(single, 0.0, total)))
-    w_side = np.where(single, 0.0, b1 / (2.0 * total))
-    w_centre = 1.0 - 2.0 * w_side
-    c = np.asarray(centre, dtype=float)
-    return np.column_stack([c - half, c, c + half]), np.column_stack([w_side, w_centre, w_side])
-
-
-def pre_edge_weights(t_point: np.ndarray, dt: float) -> np.ndarray | None:
-    """Averaging weights over the points clearly before the edge (at least 1.5
-    point intervals before it), or None when there are fewer than 3 of them.
-
-    Their mean is the level the measured input had before the record: one
-    sample alone carries the full noise and a quantisation step.
-    """
-    before = t_point < -1.5 * dt
-    count = int(np.count_nonzero(before))
-    if count < 3:
-        return None
-    return before / float(count)
 
 
 #: Ideal-step joint models of at least this many edges evaluate all edges in one call.
@@ -290,7 +214,7 @@ class JointModel:
             # d.u and d.dt are at the fitted resolution (bin means when binned)
             y = response_by_superposition(lambda t: self.form.unit_step(t, **shape), d.u, d.dt,
                                           getattr(self.form, "final_value", 1.0), initial=d.u_initial,
-                                          kernel=self._kernel(shape, d.dt))
+                                          kernel=self.kernel_for(shape, d.dt))
             if d.bin_size > 1 and y.size > 2:
                 # The bins' means of the input, joined by straight lines, smooth the
                 # drive by a further K^2 / 12 of variance (K the bin width) beyond
@@ -359,7 +283,7 @@ class JointModel:
         shift = delta if self.measured_input else delta - previous_t0
         return step * (self.form.unit_step(d.t_point + shift, **shape) - final)
 
-    def _kernel(self, shape: Mapping[str, float], dt: float) -> np.ndarray:
+    def kernel_for(self, shape: Mapping[str, float], dt: float) -> np.ndarray:
         """Superposition kernel for the longest edge, computed once per shape (the
         edges of one evaluation share it)."""
         key = (tuple(sorted(shape.items())), dt)
@@ -379,6 +303,14 @@ class JointModel:
         cached = getattr(self, "_stacked", None)
         if cached is None:
             cached = self._stacked = StackedEdges.of(self)
+        return cached
+
+    @property
+    def edge_sums(self) -> "EdgeSums":
+        """The weighted per-edge sums over the stacked points (built once)."""
+        cached = getattr(self, "_edge_sums", None)
+        if cached is None:
+            cached = self._edge_sums = EdgeSums(self)
         return cached
 
     def delays_of(self, values: Mapping[str, float]) -> np.ndarray:
@@ -421,7 +353,7 @@ class JointModel:
         n = int(lengths.max())
         d0 = self.data[0]
         final = getattr(self.form, "final_value", 1.0)
-        kernel = self._kernel(shape, d0.dt)
+        kernel = self.kernel_for(shape, d0.dt)
         initial = layout["initial"]
         du = np.diff(layout["inputs"], axis=0, prepend=initial[None, :])
         y = initial[None, :] * final + fft_convolve(du, kernel[1:n + 1], n)
@@ -534,3 +466,27 @@ class JointModel:
         tb = np.add.reduceat(t_rel, starts) / counts
         nodes, weights = discrete_mean_nodes(tb, counts, dt)
         return SegmentData(nodes, weights, yb, None, int(counts.max()), dt, tb, counts)
+
+
+class EdgeSums:
+    """Weighted per-edge sums over the stacked points of a joint model (weights =
+    samples per point): the per-edge means and centring that the delay search
+    (:mod:`.edge_delays`) and the measured-input levels (:mod:`.projection`) use."""
+
+    def __init__(self, joint: JointModel) -> None:
+        self.edge = joint.stacked.edge_of_point
+        self.m = len(joint.data)
+        self.starts = np.asarray(joint.bounds[:-1])  # every edge has points (at least 4)
+        self.w2 = np.concatenate([d.counts for d in joint.data]).astype(float)
+        self.total = self.sum(np.ones_like(self.w2))
+
+    def sum(self, x: np.ndarray) -> np.ndarray:
+        return np.add.reduceat(self.w2 * x, self.starts)
+
+    def mean(self, x: np.ndarray) -> np.ndarray:
+        """The weighted mean of x over each edge."""
+        return self.sum(x) / self.total
+
+    def centred(self, x: np.ndarray) -> np.ndarray:
+        """x minus its weighted mean over each edge."""
+        return x - self.mean(x)[self.edge]

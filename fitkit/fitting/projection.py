@@ -44,19 +44,15 @@ def projected_model(joint: JointModel, values: Mapping[str, float]) -> tuple[dic
     if joint.measured_input:
         # baseline_i = weighted mean of (y_i - gain f_i); gain from the pooled centred sums
         f = joint.input_responses(shape)
-        e = joint.stacked.edge_of_point
-        starts = joint.bounds[:-1]
-        w2 = joint.weights ** 2
-        total = np.add.reduceat(w2, starts)
-        fm = np.add.reduceat(w2 * f, starts) / total
-        ym = np.add.reduceat(w2 * joint.y, starts) / total
-        fc = f - fm[e]
-        sxx = float(np.sum(w2 * fc * fc))
-        gain = float(np.sum(w2 * fc * (joint.y - ym[e]))) / sxx if sxx > 0 else 0.0
+        sums = joint.edge_sums
+        fm, ym = sums.mean(f), sums.mean(joint.y)
+        fc = f - fm[sums.edge]
+        sxx = float(np.sum(sums.w2 * fc * fc))
+        gain = float(np.sum(sums.w2 * fc * (joint.y - ym[sums.edge]))) / sxx if sxx > 0 else 0.0
         baselines = ym - gain * fm
         out["gain"] = gain
         out.update({f"baseline_{i}": float(b) for i, b in enumerate(baselines)})
-        return out, baselines[e] + gain * f
+        return out, baselines[sums.edge] + gain * f
     pieces = []
     for i, d in enumerate(joint.data):
         w2 = d.counts.astype(float)
