@@ -153,11 +153,19 @@ def check_capture(capture: Capture, design: Design | str | Path, *, input: str |
     """
     if not isinstance(design, Design):
         design = load_design(design)
-    file = capture.provenance.path
     analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average)
-    smeared = _smeared_average(analysis.segments, file) if average else ""
-    if smeared:
+    try:
+        return _checked(capture, design, analysis, envelope_trials, seed, "")
+    except AverageSmearedError as err:  # the average's alignment would bias it: every edge jointly
         analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time)
+        return _checked(capture, design, analysis, envelope_trials, seed, err.message)
+
+
+def _checked(capture: Capture, design: Design, analysis, envelope_trials: int, seed: int,
+             smeared: str) -> CheckResult:
+    """The check of one conditioning of the capture; ``smeared``: why the coherent
+    average was set aside for these raw edges ("" when it was not)."""
+    file = capture.provenance.path
     segments = analysis.segments
     measured = has_measured_input(segments)
     warnings = ([f"--average not used: {smeared}; every edge checked jointly instead"] if smeared else []) \
@@ -189,19 +197,6 @@ def check_capture(capture: Capture, design: Design | str | Path, *, input: str |
                        tuple(dict.fromkeys(warnings)), fit, diagnosis, measured, env_volts,
                        {"input": analysis.input_channel, "output": analysis.output_channel,
                         "why": [d for d in analysis.decisions if "channel" in d]})
-
-
-def _smeared_average(segments, file: str) -> str:
-    """Why a coherent average cannot be checked (its alignment smears the response
-    beyond its intervals, fitkit.fitting.alignment_smear), or ""."""
-    from ..fitting import fit_segments
-    try:
-        fit_segments(segments, "auto", file=file, derived=False)
-    except AverageSmearedError as err:
-        return err.message
-    except FitkitError:
-        return ""  # any other trouble is the check's own to report, on these segments
-    return ""
 
 
 def _behaviour(design: Design, segments, measured: bool, file: str, warnings: list[str], envelope: Envelope):
