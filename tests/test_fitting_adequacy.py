@@ -118,3 +118,44 @@ def test_every_report_of_a_refused_fit_drops_the_intervals(tmp_path, capsys):
     assert frame["ci95_low"].isna().all() and frame["ci95_high"].isna().all() and not frame["determined"].any()
     page = html_path.read_text(encoding="utf-8")
     assert "NOT A MEASUREMENT" in page and "does not describe this capture" in page
+
+
+def test_a_form_a_set_aside_candidate_far_outfits_is_refused(monkeypatch):
+    """When the right form fails (here first order, forced not to converge), the
+    next admissible one (critically damped, one parameter too) can land within
+    twice the noise, under the adequacy gate's threshold; but two-real-pole,
+    set aside for a pole faster than a sample (it is first order), leaves
+    residuals more than 1.1 times smaller at an AICc lower by more than the
+    selection margin. That critically damped answer would be confidently wrong
+    (its tau 40 % off, interval tight): it is refused with the finding. Capture:
+    an RC square wave at SNR 33, 12 edges half way between samples, each the
+    textbook RC step response 1 - exp(-t/tau)."""
+    import dataclasses
+
+    import fitkit.fitting.step_fit as step_fit
+
+    n, edges, dt = 20_000, 12, 1e-7
+    half = n // edges
+    tau = half * dt / 10
+    t = np.arange(n) * dt
+    y = np.zeros(n)
+    for i in range(edges):
+        x = np.clip(t - (half // 2 + i * half - 0.5) * dt, 0.0, None)
+        y += (1.0 if i % 2 == 0 else -1.0) * -np.expm1(-x / tau)
+    cap = Capture.from_arrays(t, {"vout": y + np.random.default_rng(3).normal(0.0, 0.03, n)})
+    right = fit_capture(cap)
+    assert right.model == "first-order" and right.describes_data
+    real_fit_form = step_fit.fit_form
+
+    def first_order_fails(segments, form, **kwargs):
+        ff = real_fit_form(segments, form, **kwargs)
+        if form.name == "first-order":
+            ff = dataclasses.replace(ff, fit=dataclasses.replace(ff.fit, converged=False, message="forced"))
+        return ff
+
+    monkeypatch.setattr(step_fit, "fit_form", first_order_fails)
+    result = fit_capture(cap)
+    assert result.model == "critically-damped"
+    assert result.adequacy.misfit_ratio < 2.0  # the gate alone would have passed it
+    assert not result.describes_data
+    assert "two-real-pole" in result.adequacy.finding and "times smaller" in result.adequacy.finding

@@ -23,7 +23,7 @@ from __future__ import annotations
 
 import math
 import re
-from typing import Callable, Sequence
+from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
@@ -61,6 +61,16 @@ def weighted(jacobian, w: np.ndarray):
     return jacobian * w[:, None]
 
 
+def by_rows(jacobian):
+    """The Jacobian in a form sliced by rows cheaply (a sparse one as CSR, once,
+    before :func:`edge_columns` is called edge by edge)."""
+    if is_sparse(jacobian) and jacobian.format != "csr":
+        from scipy import sparse
+
+        return sparse.csr_array(jacobian)
+    return jacobian
+
+
 def edge_columns(jacobian, lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
     """(columns, dense block) of the rows lo:hi of the Jacobian: only the columns
     with a nonzero entry there (a few per edge in a joint fit of many edges)."""
@@ -82,13 +92,16 @@ def edge_columns(jacobian, lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
 
 
 def grouped_jacobian(fun: Callable[[np.ndarray], np.ndarray], theta: np.ndarray, names: Sequence[str],
-                     bounds: Sequence[int], rel_step: float = 1e-6):
+                     bounds: Sequence[int], rel_step: float = 1e-6,
+                     known: Mapping[str, tuple[np.ndarray, np.ndarray]] | None = None):
     """Central-difference Jacobian (n, p) of ``fun`` at ``theta``, the local
     parameters of edges two apart perturbed together (see the module docstring).
 
     ``bounds`` are the edges' point ranges; a local parameter of edge i is
     read on the points of edges i and i + 1. The same numbers as one column at
     a time (each parameter keeps its own step), in far fewer evaluations.
+    ``known``: columns given in closed form, {name: (rows, values)}, taken as
+    they are instead of by differences.
     """
     from scipy import sparse
 
@@ -97,7 +110,15 @@ def grouped_jacobian(fun: Callable[[np.ndarray], np.ndarray], theta: np.ndarray,
     m = len(bounds) - 1
     slots: dict[int, int] = {}
     groups: dict[tuple, list[int]] = {}
+    known = known or {}
+    rows, cols, vals = [], [], []
     for j, e in enumerate(edges):
+        if names[j] in known:
+            where, value = known[names[j]]
+            rows.append(np.asarray(where))
+            cols.append(np.full(len(where), j))
+            vals.append(np.asarray(value, dtype=float))
+            continue
         if e is None:
             groups[("global", j)] = [j]
         else:
@@ -105,7 +126,6 @@ def grouped_jacobian(fun: Callable[[np.ndarray], np.ndarray], theta: np.ndarray,
             groups.setdefault(("local", slot, e % 2), []).append(j)
     steps = rel_step * np.maximum(np.abs(theta), 1e-3)  # as least_squares.numeric_jacobian
     n = int(bounds[-1])
-    rows, cols, vals = [], [], []
     dense_cols: dict[int, np.ndarray] = {}
     for members in groups.values():
         up, dn = theta.copy(), theta.copy()

@@ -38,16 +38,26 @@ from typing import Mapping
 import numpy as np
 from scipy import optimize
 
-from .joint_model import EdgeSums, JointModel
+from .joint_model import JointModel
+from .stacked_edges import EdgeSums
 
 #: The delays are solved inside the shape search from this many edges on
 #: (fewer: the delays are searched with the shape, :mod:`.projection`).
 NESTED_FROM_EDGES = 6
 #: A delay has converged when its Gauss-Newton step is below this (scaled time units).
 DELAY_TOLERANCE = 1e-9
+#: ... or below this fraction of its own standard error (a move that small changes
+#: the edge's sum of squares by 1e-8 of the noise variance, far below the shape
+#: search's tolerance).
+DELAY_PRECISION = 1e-4
 #: Gauss-Newton sweeps allowed per trial shape.
 MAX_SWEEPS = 40
-#: Delay steps above this (scaled time units) are checked to lower the edge's sum of squares.
+#: Delay steps above this (scaled time units) are checked to lower the edge's sum
+#: of squares (a smaller one changes it by less than its rounding). Every larger
+#: step is checked, however small against the delay's standard error: a response
+#: with a kink at the edge (first order) has a sum of squares with a kink
+#: wherever the edge passes a sample, and Newton steps taken unchecked there
+#: cycle across it.
 CHECKED_STEP = 1e-6
 #: Times a delay step that raises its edge's sum of squares is halved.
 HALVINGS = 12
@@ -90,10 +100,7 @@ def _levels(sums: EdgeSums, f: np.ndarray, target: np.ndarray) -> tuple[np.ndarr
 def _response_and_slope(joint: JointModel, shape: Mapping[str, float], delays: np.ndarray
                         ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Unit responses at the delays, and their first and second derivatives in the delay."""
-    f = joint.stacked_responses(shape, delays)
-    up = joint.stacked_responses(shape, delays + DELAY_STEP)
-    dn = joint.stacked_responses(shape, delays - DELAY_STEP)
-    return f, (up - dn) / (2.0 * DELAY_STEP), (up - 2.0 * f + dn) / (DELAY_STEP * DELAY_STEP)
+    return joint.stacked_responses_and_slopes(shape, delays, DELAY_STEP)
 
 
 def solve_delays(joint: JointModel, shape: Mapping[str, float], start: np.ndarray) -> DelayFit:
@@ -102,7 +109,8 @@ def solve_delays(joint: JointModel, shape: Mapping[str, float], start: np.ndarra
 
     A step that raises an edge's sum of squares is halved (up to HALVINGS times,
     then that edge stays where it is);
-    the sweeps stop when no delay moves by more than :data:`DELAY_TOLERANCE`.
+    the sweeps stop when no delay moves by more than :data:`DELAY_TOLERANCE` or
+    :data:`DELAY_PRECISION` of its standard error, whichever is larger.
     """
     sums = joint.edge_sums
     y = joint.y
@@ -127,34 +135,38 @@ def solve_delays(joint: JointModel, shape: Mapping[str, float], start: np.ndarra
         move = np.where(hess > 0, sums.sum(g * r) / np.where(hess > 0, hess, 1.0), 0.0)
         move = np.clip(np.nan_to_num(move), -MAX_DELAY_STEP, MAX_DELAY_STEP)
         move = np.where(stuck, 0.0, move)
-        if np.all(np.abs(move) <= DELAY_TOLERANCE):
+        # the delay's standard error: edge noise variance (ss over its degrees of
+        # freedom: baseline, step, delay) over the Gauss-Newton curvature
+        se = np.sqrt(ss / np.maximum(sums.total - 3.0, 1.0) / np.where(sgg > 0, sgg, np.inf))
+        tolerance = np.maximum(DELAY_TOLERANCE, DELAY_PRECISION * se)
+        if np.all(np.abs(move) <= tolerance):
             # converged: the last step (below tolerance) applied to first order
             delays = delays + move
             f = f + move[e] * slope
             base, step, r = _levels(sums, f, y - tail)
             converged = True
             break
-        pending = np.abs(move) > DELAY_TOLERANCE
+        pending = np.abs(move) > tolerance
+        # each edge's step is checked on its own problem: the previous edge's
+        # tail held where it is (its coupling is left to the sweeps, see the
+        # module docstring), so a neighbour's move cannot make a good step look bad
         for _ in range(HALVINGS):
             trial = np.where(pending, delays + move, delays)
-            t_tail = joint.stacked_tails(shape, trial)
             t_f, t_slope, t_curve = _response_and_slope(joint, shape, trial)
-            t_base, t_step, t_r = _levels(sums, t_f, y - t_tail)
-            t_ss = sums.sum(t_r * t_r)
+            t_r = _levels(sums, t_f, y - tail)[2]
             # (a step too small to change the sum beyond rounding is taken as it is)
-            worse = pending & ~(t_ss <= ss * (1.0 + 1e-12)) & (np.abs(move) > CHECKED_STEP)
+            worse = pending & (np.abs(move) > CHECKED_STEP) & ~(sums.sum(t_r * t_r) <= ss * (1.0 + 1e-12))
             if not np.any(worse):
                 break
             move = np.where(worse, 0.5 * move, move)
         if np.any(worse):  # no step lowers these edges' sums: they stay where they are
             stuck |= worse
             trial = np.where(worse, delays, trial)
-            t_tail = joint.stacked_tails(shape, trial)
             t_f, t_slope, t_curve = _response_and_slope(joint, shape, trial)
-            t_base, t_step, t_r = _levels(sums, t_f, y - t_tail)
-            t_ss = sums.sum(t_r * t_r)
-        delays, tail, f, slope, curve = trial, t_tail, t_f, t_slope, t_curve
-        base, step, r, ss = t_base, t_step, t_r, t_ss
+        delays, f, slope, curve = trial, t_f, t_slope, t_curve
+        tail = joint.stacked_tails(shape, delays)
+        base, step, r = _levels(sums, f, y - tail)
+        ss = sums.sum(r * r)
     model = y - r
     return DelayFit(delays, base, step, model, f, slope, converged)
 
@@ -231,11 +243,17 @@ def nested_search(joint: JointModel, start: Mapping[str, float], fixed: Mapping[
             return np.full(joint.y.shape, 1e150)
         return np.where(np.isfinite(r), r, 1e150)
 
+    last_jacobian: dict[bytes, np.ndarray] = {}
+
     def jacobian(theta: np.ndarray) -> np.ndarray:
-        with np.errstate(all="ignore"):
-            vals, fit = solved(theta)
-            jac = -reduced_jacobian(joint, names, vals, fit)
-        return np.where(np.isfinite(jac), jac, 0.0)
+        key = theta.tobytes()
+        if key not in last_jacobian:  # (MINPACK's wrapper asks for the first one twice)
+            with np.errstate(all="ignore"):
+                vals, fit = solved(theta)
+                jac = -reduced_jacobian(joint, names, vals, fit)
+            last_jacobian.clear()
+            last_jacobian[key] = np.where(np.isfinite(jac), jac, 0.0)
+        return last_jacobian[key].copy()  # (MINPACK may factorise it in place)
 
     theta0 = np.array([float(start.get(n, 0.0)) for n in names])
     if theta0.size:

@@ -28,7 +28,7 @@ import numpy as np
 from scipy import linalg
 
 from ..conditioning.noise import noise_from_differences
-from .block_jacobian import edge_columns
+from .block_jacobian import by_rows, edge_columns
 from .joint_model import JointModel
 from .measured_input import superposition_adjoint
 from .uncertainty import autoregressive_autocorrelation, residual_autocorrelation
@@ -75,6 +75,7 @@ def input_noise_covariance(joint: JointModel, jacobian: np.ndarray, bread: np.nd
     shape = joint.shape_scaled(values)
     dc = getattr(joint.form, "final_value", 1.0)
     w2 = joint.weights ** 2
+    jacobian = by_rows(jacobian)
     for i, d in enumerate(joint.data):
         lo, hi = joint.bounds[i], joint.bounds[i + 1]
         n = hi - lo

@@ -40,6 +40,7 @@ from ..forms.base import Form
 from .binning import discrete_mean_nodes, pre_edge_weights, variable_bins
 from .measured_input import fft_convolve, response_by_superposition, superposition_kernel, uniform_step
 from .scaling import RUNAWAY_LOG, Scaling
+from .stacked_edges import EdgeSums, StackedEdges
 
 #: Segments longer than this are bin-averaged before the nonlinear fit.
 MAX_POINTS_PER_SEGMENT = 4000
@@ -89,65 +90,6 @@ class SegmentData:
 
 #: Ideal-step joint models of at least this many edges evaluate all edges in one call.
 STACKED_FROM_EDGES = 2
-
-
-@dataclass(frozen=True)
-class StackedEdges:
-    """Every edge's points in one array (ideal-step mode), see :meth:`JointModel.stacked`.
-
-    t_nodes, node_weights: (n, k) nodes and weights of all points (segments
-        with fewer nodes are padded with zero-weight nodes);
-    edge_of_point: (n,) the edge each point belongs to;
-    t_point: (n,) representative scaled time of each point;
-    tail_steps, tail_deltas: per edge, the previous edge's step and the time since
-        it (:meth:`JointModel._previous_step`; step 0 where there is none), or
-        None when no edge has a previous tail.
-    """
-
-    t_nodes: np.ndarray
-    node_weights: np.ndarray
-    edge_of_point: np.ndarray
-    t_point: np.ndarray
-    tail_steps: np.ndarray | None
-    tail_deltas: np.ndarray | None
-
-    @property
-    def active(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """The nodes of non-zero weight, flattened: (times, weights, point, edge).
-
-        A bin of one sample has one node that counts and two of weight 0 (and the
-        padding nodes have weight 0): evaluating only the others saves up to
-        two thirds of the work of an evaluation."""
-        cached = self.__dict__.get("_active")
-        if cached is None:
-            k = self.t_nodes.shape[1]
-            keep = np.flatnonzero(self.node_weights.ravel() != 0.0)
-            point = keep // k
-            cached = (self.t_nodes.ravel()[keep], self.node_weights.ravel()[keep], point,
-                      self.edge_of_point[point])
-            object.__setattr__(self, "_active", cached)
-        return cached
-
-    @classmethod
-    def of(cls, joint: "JointModel") -> "StackedEdges":
-        k = max(d.t_nodes.shape[1] for d in joint.data)
-        nodes, weights = [], []
-        for d in joint.data:
-            t = d.t_nodes
-            w = np.broadcast_to(d.node_weights, t.shape)
-            if t.shape[1] < k:  # pad with copies of the first node at zero weight
-                t = np.column_stack([t] + [t[:, :1]] * (k - t.shape[1]))
-                w = np.column_stack([w] + [np.zeros((t.shape[0], 1))] * (k - w.shape[1]))
-            nodes.append(t)
-            weights.append(w)
-        edge_of_point = np.repeat(np.arange(len(joint.data)), [d.y.size for d in joint.data])
-        prev = joint.previous_steps
-        steps = deltas = None
-        if any(p is not None for p in prev):
-            steps = np.array([0.0 if p is None else p[1] for p in prev])
-            deltas = np.array([0.0 if p is None else p[0] for p in prev])
-        return cls(np.vstack(nodes), np.vstack(weights), edge_of_point,
-                   np.concatenate([d.t_point for d in joint.data]), steps, deltas)
 
 
 #: Prepared segments kept for reuse (oldest dropped first).
@@ -297,7 +239,7 @@ class JointModel:
 
     # -- every edge at once (ideal-step mode) ------------------------------------------
     @property
-    def stacked(self) -> "StackedEdges":
+    def stacked(self) -> StackedEdges:
         """The points of every edge in one array (built once), for evaluating
         all edges in one call instead of one call per edge."""
         cached = getattr(self, "_stacked", None)
@@ -306,7 +248,7 @@ class JointModel:
         return cached
 
     @property
-    def edge_sums(self) -> "EdgeSums":
+    def edge_sums(self) -> EdgeSums:
         """The weighted per-edge sums over the stacked points (built once)."""
         cached = getattr(self, "_edge_sums", None)
         if cached is None:
@@ -323,6 +265,50 @@ class JointModel:
         t, w, point, edge = st.active
         return np.bincount(point, weights=self.form.unit_step(t - delays[edge], **shape) * w,
                            minlength=st.t_point.size)
+
+    def stacked_responses_and_slopes(self, shape: Mapping[str, float], delays: np.ndarray, difference_step: float
+                                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """:meth:`stacked_responses` with its first and second derivatives in each
+        edge's delay (scaled units), from one evaluation of the form where it has
+        closed-form derivatives (else central differences of ``difference_step``)."""
+        st = self.stacked
+        t, w, point, edge = st.active
+        f, d1, d2 = self.form.step_and_derivatives(t - delays[edge], difference_step, **shape)
+        size = st.t_point.size
+        return (np.bincount(point, weights=f * w, minlength=size), np.bincount(point, weights=-d1 * w, minlength=size),
+                np.bincount(point, weights=d2 * w, minlength=size))
+
+    def level_columns(self, values: Mapping[str, float]) -> dict[str, tuple[np.ndarray, np.ndarray]] | None:
+        """The Jacobian columns of every edge's baseline, step and delay, in closed
+        form: {name: (points, d model / d value)} over the points each one moves
+        (the delay also moves the next edge's points, through its tail). Ideal-step
+        mode of at least STACKED_FROM_EDGES edges only; None otherwise."""
+        if self.measured_input or len(self.data) < STACKED_FROM_EDGES:
+            return None
+        st = self.stacked
+        delays = self.delays_of(values)
+        shape = self.shape_scaled(values)
+        f, slope, _ = self.stacked_responses_and_slopes(shape, delays, 1e-5)
+        tail_slope = np.zeros(f.size)
+        if st.tail_steps is not None:
+            e = st.edge_of_point
+            step = st.tail_steps[e]
+            has = step != 0.0
+            shift = st.tail_deltas[e] - np.concatenate([[0.0], delays[:-1]])[e]
+            _, d1, _ = self.form.step_and_derivatives(st.t_point[has] + shift[has], 1e-5, **shape)
+            tail_slope[has] = -step[has] * d1  # d tail / d (previous edge's delay)
+        out: dict[str, tuple[np.ndarray, np.ndarray]] = {}
+        for i, (lo, hi) in enumerate(zip(self.bounds[:-1], self.bounds[1:])):
+            points = np.arange(lo, hi)
+            out[f"baseline_{i}"] = (points, np.ones(hi - lo))
+            out[f"step_{i}"] = (points, f[lo:hi])
+            if self.free_t0:
+                t0 = values[f"step_{i}"] * slope[lo:hi]
+                if i + 1 < len(self.data):
+                    after = np.arange(hi, self.bounds[i + 2])
+                    points, t0 = np.concatenate([points, after]), np.concatenate([t0, tail_slope[hi:self.bounds[i + 2]]])
+                out[f"t0_{i}"] = (points, t0)
+        return out
 
     def stacked_tails(self, shape: Mapping[str, float], delays: np.ndarray) -> np.ndarray | float:
         """:meth:`previous_tail` of every edge (ideal step), all points (0.0 when none has one)."""
@@ -344,46 +330,49 @@ class JointModel:
         previous edge's tail included (normalised input units), all points: the
         per-edge :meth:`unit_response` plus :meth:`previous_tail`, computed for
         all edges at once (one FFT convolution of the edges' inputs side by side,
-        sharing the kernel). Edges fitted at different bin widths are done one by one."""
-        if len({d.dt for d in self.data}) > 1:
-            return np.concatenate([self.unit_response(i, shape) + self.previous_tail(i, shape, {})
-                                   for i in range(len(self.data))])
-        layout = self._input_layout
-        lengths, rows, cols = layout["lengths"], layout["rows"], layout["cols"]
-        n = int(lengths.max())
-        d0 = self.data[0]
+        sharing the kernel; one per bin width when the edges were binned differently)."""
+        out = np.empty(self.y.size)
         final = getattr(self.form, "final_value", 1.0)
-        kernel = self.kernel_for(shape, d0.dt)
-        initial = layout["initial"]
-        du = np.diff(layout["inputs"], axis=0, prepend=initial[None, :])
-        y = initial[None, :] * final + fft_convolve(du, kernel[1:n + 1], n)
-        binned = layout["binned"]
-        if np.any(binned) and n > 2:
-            # the bin-mean correction of unit_response, on each binned edge's own rows
-            corr = np.zeros_like(y)
-            corr[1:-1] = (y[2:] - 2.0 * y[1:-1] + y[:-2]) / 12.0
-            keep = (np.arange(n)[:, None] < (lengths - 1)[None, :]) & binned[None, :] & (lengths > 2)[None, :]
-            y -= np.where(keep, corr, 0.0)
-        return y[rows, cols] + self.stacked_tails(shape, np.zeros(len(self.data)))
+        for layout in self._input_layouts:
+            lengths = layout["lengths"]
+            n = int(lengths.max())
+            kernel = self.kernel_for(shape, layout["dt"])
+            initial = layout["initial"]
+            du = np.diff(layout["inputs"], axis=0, prepend=initial[None, :])
+            y = initial[None, :] * final + fft_convolve(du, kernel[1:n + 1], n)
+            binned = layout["binned"]
+            if np.any(binned) and n > 2:
+                # the bin-mean correction of unit_response, on each binned edge's own rows
+                corr = np.zeros_like(y)
+                corr[1:-1] = (y[2:] - 2.0 * y[1:-1] + y[:-2]) / 12.0
+                keep = (np.arange(n)[:, None] < (lengths - 1)[None, :]) & binned[None, :] & (lengths > 2)[None, :]
+                y -= np.where(keep, corr, 0.0)
+            out[layout["points"]] = y[layout["rows"], layout["cols"]]
+        return out + self.stacked_tails(shape, np.zeros(len(self.data)))
 
     @property
-    def _input_layout(self) -> dict[str, np.ndarray]:
-        """The edges' inputs side by side (padded with each one's last value), their
-        initial levels, and where each point sits in that array (built once)."""
+    def _input_layouts(self) -> list[dict[str, np.ndarray]]:
+        """Per bin width, its edges' inputs side by side (padded with each one's
+        last value), their initial levels, where each point sits in that array
+        and among all points (built once)."""
         cached = getattr(self, "_input_layout_cache", None)
         if cached is None:
-            lengths = np.array([d.u.size for d in self.data])
-            n = int(lengths.max())
-            inputs = np.empty((n, len(self.data)))
-            for i, d in enumerate(self.data):
-                inputs[:d.u.size, i] = d.u
-                inputs[d.u.size:, i] = d.u[-1]
-            initial = np.array([d.u[0] if d.u_initial is None else d.u_initial for d in self.data])
-            rows = np.concatenate([np.arange(k) for k in lengths])
-            cols = np.repeat(np.arange(len(self.data)), lengths)
-            cached = self._input_layout_cache = {
-                "lengths": lengths, "inputs": inputs, "initial": initial, "rows": rows, "cols": cols,
-                "binned": np.array([d.bin_size > 1 for d in self.data])}
+            cached = self._input_layout_cache = []
+            for dt in sorted({d.dt for d in self.data}):
+                members = [i for i, d in enumerate(self.data) if d.dt == dt]
+                data = [self.data[i] for i in members]
+                lengths = np.array([d.u.size for d in data])
+                inputs = np.empty((int(lengths.max()), len(data)))
+                for j, d in enumerate(data):
+                    inputs[:d.u.size, j] = d.u
+                    inputs[d.u.size:, j] = d.u[-1]
+                cached.append({
+                    "dt": dt, "lengths": lengths, "inputs": inputs,
+                    "initial": np.array([d.u[0] if d.u_initial is None else d.u_initial for d in data]),
+                    "rows": np.concatenate([np.arange(k) for k in lengths]),
+                    "cols": np.repeat(np.arange(len(data)), lengths),
+                    "points": np.concatenate([np.arange(self.bounds[i], self.bounds[i + 1]) for i in members]),
+                    "binned": np.array([d.bin_size > 1 for d in data])})
         return cached
 
     def evaluate(self, _x: object = None, **values: float) -> np.ndarray:
@@ -466,27 +455,3 @@ class JointModel:
         tb = np.add.reduceat(t_rel, starts) / counts
         nodes, weights = discrete_mean_nodes(tb, counts, dt)
         return SegmentData(nodes, weights, yb, None, int(counts.max()), dt, tb, counts)
-
-
-class EdgeSums:
-    """Weighted per-edge sums over the stacked points of a joint model (weights =
-    samples per point): the per-edge means and centring that the delay search
-    (:mod:`.edge_delays`) and the measured-input levels (:mod:`.projection`) use."""
-
-    def __init__(self, joint: JointModel) -> None:
-        self.edge = joint.stacked.edge_of_point
-        self.m = len(joint.data)
-        self.starts = np.asarray(joint.bounds[:-1])  # every edge has points (at least 4)
-        self.w2 = np.concatenate([d.counts for d in joint.data]).astype(float)
-        self.total = self.sum(np.ones_like(self.w2))
-
-    def sum(self, x: np.ndarray) -> np.ndarray:
-        return np.add.reduceat(self.w2 * x, self.starts)
-
-    def mean(self, x: np.ndarray) -> np.ndarray:
-        """The weighted mean of x over each edge."""
-        return self.sum(x) / self.total
-
-    def centred(self, x: np.ndarray) -> np.ndarray:
-        """x minus its weighted mean over each edge."""
-        return x - self.mean(x)[self.edge]

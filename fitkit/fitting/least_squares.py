@@ -186,13 +186,15 @@ def fit_model(model: Callable[..., np.ndarray], params: Mapping[str, float] | lm
 
 def model_fit_at(model: Callable[..., np.ndarray], values: Mapping[str, float], names: tuple[str, ...],
                  x: Any, y: np.ndarray, weights: np.ndarray, *, converged: bool, message: str,
-                 nfev: int, lmfit_state: Any = None, edge_bounds: Sequence[int] | None = None) -> ModelFit:
+                 nfev: int, lmfit_state: Any = None, edge_bounds: Sequence[int] | None = None,
+                 known_columns: Mapping[str, tuple[np.ndarray, np.ndarray]] | None = None) -> ModelFit:
     """The :class:`ModelFit` at given optimum ``values`` (varied ``names``, the rest fixed):
     central-difference Jacobian over ``names``, covariance, residuals.
 
     edge_bounds: the point ranges of a joint fit's edges; the Jacobian is then
     taken with the per-edge parameters grouped, and kept sparse with its
-    covariance by blocks when there are many (:mod:`.block_jacobian`)."""
+    covariance by blocks when there are many (:mod:`.block_jacobian`);
+    known_columns: columns of it in closed form, {name: (rows, values)}."""
     values = dict(values)
     y = np.asarray(y, dtype=float)
     w = np.asarray(weights, dtype=float)
@@ -209,7 +211,7 @@ def model_fit_at(model: Callable[..., np.ndarray], values: Mapping[str, float], 
         if not names:
             jac = np.zeros((y.size, 0))
         elif edge_bounds is not None:
-            jac = grouped_jacobian(model_of_vector, theta, names, edge_bounds)
+            jac = grouped_jacobian(model_of_vector, theta, names, edge_bounds, known=known_columns)
         else:
             jac = numeric_jacobian(model_of_vector, theta)
     resid = y - fitted

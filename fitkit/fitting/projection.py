@@ -146,9 +146,11 @@ def search_projected(joint: JointModel, start: Mapping[str, float], fixed: Mappi
 def finish_projected(joint: JointModel, search: ProjectedSearch, fixed: Mapping[str, float]) -> ModelFit:
     """The full-parameter :class:`ModelFit` (Jacobian, covariance) where a search ended."""
     varied = tuple(n for n in joint.names if n not in fixed)
+    with np.errstate(all="ignore"):
+        known = joint.level_columns(search.values)
     return model_fit_at(joint.evaluate, search.values, varied, None, joint.y, joint.weights,
                         converged=search.converged, message=search.message, nfev=search.nfev,
-                        edge_bounds=joint.bounds)
+                        edge_bounds=joint.bounds, known_columns=known)
 
 
 def can_project(joint: JointModel, fixed: Mapping[str, float]) -> bool:

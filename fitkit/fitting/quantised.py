@@ -184,6 +184,19 @@ def code_step(ff: FormFit, joint: JointModel) -> float | None:
     return q
 
 
+def _noise_many_codes(ff: FormFit) -> bool:
+    """True when the fit's own noise estimate (per sample, scaled volts) is
+    beyond twice the residual limit of :func:`code_step` in codes, or there is
+    no single code step: the refit cannot apply (the margin covers the
+    difference between a binned fit's estimate and the rms over every sample)."""
+    joint = getattr(ff.joint, "unwhitened", ff.joint)
+    steps = {s.quantisation_step for s in joint.segments}
+    if len(steps) != 1 or None in steps:
+        return True
+    q = float(next(iter(steps))) / joint.scaling.volt_unit
+    return q > 0 and math.isfinite(ff.fit.s2) and math.sqrt(ff.fit.s2) >= 2.0 * RESIDUAL_CODES * q
+
+
 def quantised_refit(ff: FormFit, correlation: str = "auto") -> FormFit | None:
     """``ff`` refitted by maximum likelihood for rounding to codes (module docstring),
     or None when it does not apply or does not converge.
@@ -194,6 +207,8 @@ def quantised_refit(ff: FormFit, correlation: str = "auto") -> FormFit | None:
     whitener = getattr(ff.joint, "whitener", None)
     if whitener is not None and whitener.record_samples is not None:
         return None  # the user's noise record says the noise is correlated: keep its GLS fit
+    if _noise_many_codes(ff):
+        return None  # (told before the fit is rebuilt over every sample)
     joint = sample_model(ff)
     q = None if joint is None else code_step(ff, joint)
     if q is None:

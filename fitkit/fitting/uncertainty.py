@@ -34,9 +34,9 @@ from dataclasses import dataclass
 from typing import Callable, Mapping, Sequence
 
 import numpy as np
-from scipy import linalg, special
+from scipy import special
 
-from .block_jacobian import edge_columns
+from .edge_blocks import edge_batches
 
 #: Ljung-Box test level and number of lags.
 LJUNG_BOX_ALPHA = 0.01
@@ -102,6 +102,27 @@ def _lagged_sums(x: np.ndarray, max_lag: int) -> np.ndarray:
     size = 1 << int(math.ceil(math.log2(max(2 * x.size, 2))))
     spec = np.fft.rfft(x, size)
     out[:m] = np.fft.irfft(spec.real ** 2 + spec.imag ** 2, size)[:m]
+    return out
+
+
+def white_noise_shortfall(jacobian, bounds: Sequence[int], bread: np.ndarray, max_lag: int) -> np.ndarray:
+    """How far below zero the pooled residual autocorrelation lies at lags
+    0..min(max_lag, LJUNG_BOX_LAGS) when the noise is white, for the test of
+    :func:`ljung_box_correlated` (zero beyond): residuals r = (I - P) e of
+    white noise have E[sum_t r_t r_(t+k)] = -s^2 sum_t P[t, t+k] for k >= 1
+    and s^2 (n - p) at k = 0, so a fit with many parameters per edge (a
+    square wave's levels and delays) leaves its residuals slightly negatively
+    correlated; the test would take that for correlated noise.
+    """
+    n, p = jacobian.shape
+    lags = min(max_lag, LJUNG_BOX_LAGS)
+    traces = sum((batch.hat_lag_sums(bread, lags) for batch in edge_batches(jacobian, bounds)),
+                 np.zeros(lags + 1))
+    out = np.zeros(max_lag + 1)
+    # sum_t P[t, t] is p for a well-conditioned fit; far from it, bread is not
+    # its inverse to working precision and no shortfall is claimed
+    if abs(traces[0] - p) <= 0.01 * p:
+        out[1:lags + 1] = traces[1:] / max(n - p, 1)
     return out
 
 
@@ -235,24 +256,23 @@ def projection_bias(gamma: np.ndarray, jacobian: np.ndarray, bounds: Sequence[in
     cause (they absorb the slow part of the noise, which matters most here).
     """
     n, p = jacobian.shape
-    g = np.zeros(n + 1)
-    g[:min(gamma.size, n + 1)] = gamma[:n + 1]
     # Edge by edge over the columns that move it (a sparse Jacobian of many
-    # edges: a few per edge); with u = J bread and v = Sigma J, the terms are
+    # edges: a few per edge), edges of similar length in one batch
+    # (:mod:`.edge_blocks`); with u = J bread and v = Sigma J, the terms are
     # sums over those columns only, and u w u^T = J (bread w bread) J^T.
-    blocks = []
+    batches = edge_batches(jacobian, bounds)
     w = np.zeros((p, p))
-    for lo, hi in zip(bounds[:-1], bounds[1:]):
-        cols, j = edge_columns(jacobian, lo, hi)
-        v = linalg.matmul_toeplitz(g[:hi - lo], j, check_finite=False)
-        w[np.ix_(cols, cols)] += j.T @ v
-        blocks.append((cols, j, v))
+    sigma_j = []
+    for batch in batches:
+        v = batch.toeplitz_times(gamma)
+        batch.add_inner_products(v, w)
+        sigma_j.append(v)
     q = bread @ w @ bread
     bias = np.zeros(max_lag + 1)
-    for cols, j, v in blocks:
-        u = j @ bread[np.ix_(cols, cols)]
+    for batch, v in zip(batches, sigma_j):
+        u, v = batch.flat(batch.times_blocks(bread)), batch.flat(v)
         bias += lagged_products(u, v, max_lag) + lagged_products(v, u, max_lag) \
-            - lagged_products(j @ q[np.ix_(cols, cols)], j, max_lag)
+            - lagged_products(batch.flat(batch.times_blocks(q)), batch.flat(batch.blocks), max_lag)
     return bias / n
 
 
@@ -321,9 +341,10 @@ def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequen
         return Correction(covariance, ones, lag1, 0, False, "none (correction switched off)")
     if p == 0 or not np.all(np.isfinite(covariance)):
         return none
-    if mode == "auto" and not ljung_box_correlated(rho, n):
-        return none
     bread = covariance / s2
+    if mode == "auto" and not ljung_box_correlated(rho + white_noise_shortfall(jacobian, jac_pieces_bounds, bread,
+                                                                               rho.size - 1), n):
+        return none
     noise = noise_autocovariance(jacobian, residual_pieces, jac_pieces_bounds, bread, max_lag)
     model_rho, order, gamma = noise.model_rho, noise.order, noise.model_autocovariance
     # lags beyond which the model autocorrelation is negligible
@@ -332,12 +353,8 @@ def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequen
     # meat = sum over edges of J^T Sigma J, Sigma the Toeplitz matrix of gamma
     # cut at m_max (= gamma_0 J^T J + sum_k gamma_k (C(k) + C(k)^T)), by FFT
     meat = np.zeros((p, p))
-    for lo, hi in zip(jac_pieces_bounds[:-1], jac_pieces_bounds[1:]):
-        cols, j = edge_columns(jacobian, lo, hi)
-        col = np.zeros(j.shape[0])
-        m = min(m_max, j.shape[0] - 1) + 1
-        col[:m] = gamma[:m]
-        meat[np.ix_(cols, cols)] += j.T @ linalg.matmul_toeplitz(col, j, check_finite=False)
+    for batch in edge_batches(jacobian, jac_pieces_bounds):
+        batch.add_inner_products(batch.toeplitz_times(gamma[:m_max + 1]), meat)
     meat = 0.5 * (meat + meat.T)
     variance_ratio = max(1.0, 1.0 + 2.0 * float(np.sum(model_rho[1:m_max + 1])))
     n_eff = n / variance_ratio

@@ -120,6 +120,14 @@ class Form:
         to zero (band-pass, pulse responses), whose edge time is determined
         like a low-pass form's. None (the default): taken as final_value == 0,
         the engine's rule before these forms. Read it through ``edge_jumps``.
+
+    Optional attribute for speed (added for square waves of many edges, whose
+    edge delays are solved by Newton steps, fitkit.fitting.edge_delays):
+
+    step_derivatives: f(t_rel, **shape) -> (unit_step, its first and its second
+        derivative in t_rel), in 1, 1/s and 1/s^2, 0 before the edge, in closed
+        form sharing one evaluation of the exponentials. None: read through
+        ``step_and_derivatives``, which then takes central differences.
     """
 
     name: str
@@ -139,11 +147,25 @@ class Form:
     fit_coordinates: Callable[..., Mapping[str, float]] | None = None
     held: Mapping[str, float] = field(default_factory=dict)
     jumps_at_edge: bool | None = None
+    step_derivatives: Callable[..., tuple[np.ndarray, np.ndarray, np.ndarray]] | None = None
 
     @property
     def edge_jumps(self) -> bool:
         """Whether the response jumps at the edge (see ``jumps_at_edge``)."""
         return self.final_value == 0.0 if self.jumps_at_edge is None else self.jumps_at_edge
+
+    def step_and_derivatives(self, t_rel: np.ndarray, difference_step: float, **shape: float
+                             ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(unit_step, d/dt, d2/dt2) at t_rel: the form's closed form when it has
+        one, else central differences of unit_step with ``difference_step`` (the
+        units of t_rel)."""
+        if self.step_derivatives is not None:
+            return self.step_derivatives(t_rel, **shape)
+        f = self.unit_step(t_rel, **shape)
+        up = self.unit_step(t_rel + difference_step, **shape)
+        dn = self.unit_step(t_rel - difference_step, **shape)
+        h = difference_step
+        return f, (up - dn) / (2.0 * h), (up - 2.0 * f + dn) / (h * h)
 
     def canonical_shape(self, shape: Mapping[str, float]) -> dict[str, float]:
         """The shape with symmetric parameters put in the form's canonical order."""

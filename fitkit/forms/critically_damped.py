@@ -28,6 +28,16 @@ def unit_step(t_rel: np.ndarray, *, tau: float) -> np.ndarray:
     return np.where(after, 1.0 - np.exp(-x) * (1.0 + x), 0.0)
 
 
+def step_derivatives(t_rel: np.ndarray, *, tau: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(unit_step, d/dt, d2/dt2) of :func:`unit_step` in 1, 1/s, 1/s^2, 0 before the edge:
+    (t / tau^2) exp(-t/tau) and (1 - t/tau) exp(-t/tau) / tau^2 after it."""
+    after, t = causal(t_rel)
+    x = t / tau
+    decay = np.exp(-x)
+    return (np.where(after, 1.0 - decay * (1.0 + x), 0.0), np.where(after, x * decay / tau, 0.0),
+            np.where(after, (1.0 - x) * decay / (tau * tau), 0.0))
+
+
 def transfer_function(*, tau: float) -> tuple[np.ndarray, np.ndarray]:
     """H(s) = 1 / (tau^2 s^2 + 2 tau s + 1)."""
     return np.array([1.0]), np.array([tau * tau, 2.0 * tau, 1.0])
@@ -59,6 +69,7 @@ CRITICALLY_DAMPED = Form(
     summary="double real pole, Q = 1/2: 1 - exp(-t/tau)(1 + t/tau)",
     shape=(ParamSpec("tau", "s", "time", "time constant of the double pole"),),
     unit_step=unit_step,
+    step_derivatives=step_derivatives,
     transfer_function=transfer_function,
     guess=guess,
     derived=derived,

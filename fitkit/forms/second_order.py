@@ -70,6 +70,19 @@ def unit_step(t_rel: np.ndarray, *, f0: float, Q: float) -> np.ndarray:
     return np.where(after, 1.0 - (even + (w0 / (2.0 * Q)) * odd), 0.0)
 
 
+def step_derivatives(t_rel: np.ndarray, *, f0: float, Q: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(unit_step, d/dt, d2/dt2) of :func:`unit_step` (1, 1/s, 1/s^2), 0 before the edge:
+    y' = w0^2 odd (the impulse response) and y'' = w0^2 (even - alpha odd), since
+    d(odd)/dt = even - alpha odd in both damping branches of :func:`damped_parts`."""
+    after, t = causal(t_rel)
+    w0 = 2.0 * math.pi * f0
+    alpha = w0 / (2.0 * Q)
+    even, odd = damped_parts(t, w0, Q)
+    w2 = w0 * w0
+    return (np.where(after, 1.0 - (even + alpha * odd), 0.0), np.where(after, w2 * odd, 0.0),
+            np.where(after, w2 * (even - alpha * odd), 0.0))
+
+
 def transfer_function(*, f0: float, Q: float) -> tuple[np.ndarray, np.ndarray]:
     """H(s) = w0^2 / (s^2 + (w0/Q) s + w0^2)."""
     w0 = 2.0 * math.pi * f0
@@ -212,6 +225,7 @@ SECOND_ORDER = Form(
     shape=(ParamSpec("f0", "Hz", "frequency", "natural frequency"),
            ParamSpec("Q", "", "ratio", "quality factor, 1/(2 zeta)")),
     unit_step=unit_step,
+    step_derivatives=step_derivatives,
     transfer_function=transfer_function,
     guess=guess,
     derived=second_order_quantities,

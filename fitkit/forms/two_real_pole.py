@@ -44,6 +44,7 @@ import numpy as np
 from .base import Form, ParamSpec, causal
 from .metrics import half_power_frequency, step_metrics
 from .second_order import overdamped_starts
+from .second_order import step_derivatives as second_order_derivatives
 from .second_order import unit_step as second_order_step
 from .shape_measures import measure_response
 from .stable_math import relative_decay
@@ -104,6 +105,13 @@ def unit_step(t_rel: np.ndarray, **shape: float) -> np.ndarray:
         return _taus_step(t_rel, float(shape["tau1"]), float(shape["tau2"]))
     tau0, q = pair_coordinates(shape)
     return second_order_step(t_rel, f0=1.0 / (2.0 * math.pi * tau0), Q=q)
+
+
+def step_derivatives(t_rel: np.ndarray, **shape: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(unit_step, d/dt, d2/dt2) in 1, 1/s, 1/s^2: the second-order closed forms at
+    f0 = 1/(2 pi tau0) (:func:`.second_order.step_derivatives`, stable through Q = 1/2)."""
+    tau0, q = pair_coordinates(shape)
+    return second_order_derivatives(t_rel, f0=1.0 / (2.0 * math.pi * tau0), Q=q)
 
 
 def transfer_function(**shape: float) -> tuple[np.ndarray, np.ndarray]:
@@ -186,6 +194,7 @@ TWO_REAL_POLE = Form(
            ParamSpec("Q", "", "ratio", "quality factor of the pole pair, 1/2 when the poles are equal",
                      upper=Q_EQUAL_POLES)),
     unit_step=unit_step,
+    step_derivatives=step_derivatives,
     transfer_function=transfer_function,
     guess=guess,
     derived=derived,

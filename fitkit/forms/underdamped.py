@@ -18,7 +18,8 @@ import numpy as np
 
 from .base import Form, ParamSpec
 from .second_order import (SECOND_ORDER_UNITS, percent_overshoot, ringing_starts,
-                           second_order_quantities, transfer_function, unit_step)
+                           second_order_quantities, step_derivatives, transfer_function,
+                           unit_step)
 from .shape_measures import measure_response
 
 
@@ -44,6 +45,7 @@ UNDERDAMPED = Form(
     shape=(ParamSpec("f0", "Hz", "frequency", "natural frequency"),
            ParamSpec("Q", "", "ratio", "quality factor, 1/(2 zeta)", lower=0.5)),
     unit_step=unit_step,
+    step_derivatives=step_derivatives,
     transfer_function=transfer_function,
     guess=guess,
     derived=derived,
