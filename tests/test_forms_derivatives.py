@@ -31,6 +31,8 @@ CASES = [
     ("two-real-pole", {"tau0": 0.5, "Q": 0.3}),
     ("two-real-pole", {"tau1": 1.1, "tau2": 0.2}),
     ("critically-damped", {"tau": 0.6}),
+    ("three-real-pole", {"tau1": 1.0, "tau2": 0.5, "tau3": 0.2}),
+    ("four-real-pole", {"tau1": 1.0, "tau2": 0.6, "tau3": 0.3, "tau4": 0.1}),
 ]
 
 
@@ -63,13 +65,14 @@ def test_zero_before_the_edge(name, shape):
     assert not np.any(f) and not np.any(d1) and not np.any(d2)
 
 
-def test_forms_without_closed_forms_take_central_differences():
-    """A form with no closed form (three real poles) is differentiated by central
-    differences of its own unit step; its first derivative is still scipy's
-    impulse response to the accuracy of the difference step."""
+def test_close_real_poles_take_central_differences():
+    """Real poles too close for partial fractions (the step itself is then a
+    divided difference) are differentiated by central differences of the unit
+    step; the first derivative is still scipy's impulse response to the accuracy
+    of the difference step."""
     form = get_form("three-real-pole")
-    assert form.step_derivatives is None
-    shape = {"tau1": 1.0, "tau2": 0.5, "tau3": 0.2}
+    shape = {"tau1": 1.0, "tau2": 0.9999, "tau3": 0.5}
+    assert form.step_derivatives(T, **shape) is None
     _, d1, _ = form.step_and_derivatives(T, 1e-5, **shape)
     num, den = _num_den(form, shape)
     _, h = signal.impulse((num, den), T=T)

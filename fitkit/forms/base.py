@@ -126,7 +126,8 @@ class Form:
 
     step_derivatives: f(t_rel, **shape) -> (unit_step, its first and its second
         derivative in t_rel), in 1, 1/s and 1/s^2, 0 before the edge, in closed
-        form sharing one evaluation of the exponentials. None: read through
+        form sharing one evaluation of the exponentials, or None for a shape it
+        does not cover. None (the attribute, or what it returns): read through
         ``step_and_derivatives``, which then takes central differences.
     """
 
@@ -147,7 +148,7 @@ class Form:
     fit_coordinates: Callable[..., Mapping[str, float]] | None = None
     held: Mapping[str, float] = field(default_factory=dict)
     jumps_at_edge: bool | None = None
-    step_derivatives: Callable[..., tuple[np.ndarray, np.ndarray, np.ndarray]] | None = None
+    step_derivatives: Callable[..., tuple[np.ndarray, np.ndarray, np.ndarray] | None] | None = None
 
     @property
     def edge_jumps(self) -> bool:
@@ -159,8 +160,9 @@ class Form:
         """(unit_step, d/dt, d2/dt2) at t_rel: the form's closed form when it has
         one, else central differences of unit_step with ``difference_step`` (the
         units of t_rel)."""
-        if self.step_derivatives is not None:
-            return self.step_derivatives(t_rel, **shape)
+        closed = None if self.step_derivatives is None else self.step_derivatives(t_rel, **shape)
+        if closed is not None:
+            return closed
         f = self.unit_step(t_rel, **shape)
         up = self.unit_step(t_rel + difference_step, **shape)
         dn = self.unit_step(t_rel - difference_step, **shape)

@@ -79,6 +79,28 @@ def real_poles_unit_step(t_rel: np.ndarray, taus: list[float]) -> np.ndarray:
     return np.where(after, scale * exp_divided_difference(nodes, presorted=True), 0.0)
 
 
+def real_poles_step_derivatives(t_rel: np.ndarray, taus: list[float]
+                                ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    """(unit_step, d/dt, d2/dt2) of :func:`real_poles_unit_step` in 1, 1/s, 1/s^2 from
+    the partial fractions: y' = sum c_i exp(-t/tau_i) / tau_i, y'' = -sum c_i
+    exp(-t/tau_i) / tau_i^2. None where the step itself needs the divided-difference
+    form (close time constants): the caller then differentiates numerically."""
+    taus = sorted(taus, reverse=True)
+    residues = _residues(taus)
+    if not (np.all(np.isfinite(residues)) and np.max(np.abs(residues)) < MAX_RESIDUE):
+        return None
+    after, t = causal(t_rel)
+    y = np.zeros_like(t)
+    d1 = np.zeros_like(t)
+    d2 = np.zeros_like(t)
+    for c, tau in zip(residues, taus):
+        term = c * np.exp(-t / tau)
+        y += term
+        d1 += term / tau
+        d2 -= term / (tau * tau)
+    return np.where(after, 1.0 - y, 0.0), np.where(after, d1, 0.0), np.where(after, d2, 0.0)
+
+
 def real_poles_transfer_function(taus: list[float]) -> tuple[np.ndarray, np.ndarray]:
     """(num, den) of 1/prod(1 + s tau_i) in descending powers of s."""
     den = np.array([1.0])
@@ -110,6 +132,9 @@ def real_pole_form(n: int) -> Form:
 
     def transfer_function(**shape: float) -> tuple[np.ndarray, np.ndarray]:
         return real_poles_transfer_function([shape[k] for k in names])
+
+    def step_derivatives(t_rel: np.ndarray, **shape: float):
+        return real_poles_step_derivatives(t_rel, _sorted_taus(shape, n))
 
     def canonical(shape: Mapping[str, float]) -> dict[str, float]:
         return dict(zip(names, _sorted_taus(shape, n)))
@@ -145,6 +170,7 @@ def real_pole_form(n: int) -> Form:
         shape=tuple(ParamSpec(k, "s", "time", f"{ORDINALS[i + 1]} time constant")
                     for i, k in enumerate(names)),
         unit_step=unit_step,
+        step_derivatives=step_derivatives,
         transfer_function=transfer_function,
         guess=guess,
         derived=derived,
