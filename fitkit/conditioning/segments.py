@@ -215,7 +215,8 @@ def average_segments(segments: Sequence[StepSegment], edges: Sequence[Edge], *,
     direction's median span (an edge cut short by the end of the record) are
     left out. The others are interpolated onto a common axis of whole sample
     intervals relative to their edge times, covering the span that all of
-    them share, and averaged. The averaged segment's ``time`` is that axis
+    them share (each raw window ending where the next one starts), and
+    averaged. The averaged segment's ``time`` is that axis
     shifted to the first averaged edge's time; ``start``/``stop`` are the first
     averaged edge's window; ``noise_rms`` is the mean single-edge noise divided
     by the square root of the number of edges.
@@ -233,7 +234,7 @@ def average_segments(segments: Sequence[StepSegment], edges: Sequence[Edge], *,
         keep = (pre >= 0.9 * np.median(pre)) & (post >= 0.9 * np.median(post))
         group = [g for g, k in zip(group, keep) if k]
         first_rel = max(float(s.time[0] - s.edge_time) for s, _ in group)
-        last_rel = min(float(s.time[-1] - s.edge_time) for s, _ in group)
+        last_rel = min(_window_end(s, segments, sample_interval) - s.edge_time for s, _ in group)
         onset_rel = min(float(s.time[e.onset_index - s.start] - s.edge_time) for s, e in group)
         k0 = math.ceil(first_rel / sample_interval - 1e-9)
         k1 = math.floor(last_rel / sample_interval + 1e-9)
@@ -266,9 +267,49 @@ def average_segments(segments: Sequence[StepSegment], edges: Sequence[Edge], *,
                               averaged_edges=n, sample_interval=sample_interval)
         result.append(replace(avg, start=first_seg.start, stop=first_seg.stop,
                               noise_rms=noise, alignment_variance=alignment_variance(
-                                  group, grid, out_sum / n, in_sum is not None, sample_interval, shifts)))
+                                  group, grid, out_sum / n, in_sum is not None, sample_interval, shifts),
+                              previous_edges=_previous_edges([s for s, _ in group], segments)))
     result.sort(key=lambda s: s.edge_time)
     return tuple(result)
+
+
+def _window_end(seg: StepSegment, segments: Sequence[StepSegment], sample_interval: float) -> float:
+    """Time (s) of the last sample of raw ``seg`` that no later window holds: the
+    sample before the next window's first when the two overlap (as the joint fit
+    cuts consecutive windows, fitkit.fitting.edge_windows), else its own last.
+    An average over the whole window would hold the next edge's onset at its end."""
+    later = [s for s in segments if s.edge_time > seg.edge_time and s.start <= seg.stop]
+    if not later:
+        return float(seg.time[-1])
+    nxt = min(later, key=lambda s: s.edge_time)
+    return min(float(seg.time[-1]), float(nxt.time[0]) - sample_interval)
+
+
+def _previous_edges(averaged: Sequence[StepSegment], segments: Sequence[StepSegment]
+                    ) -> tuple[float, float, float] | None:
+    """(mean seconds from the previous edge, mean output step V, mean input step V
+    or NaN) over the ``averaged`` raw segments, the previous edge being the
+    segment before each in ``segments`` when its window touches or overlaps
+    this one's (as :meth:`fitkit.fitting.joint_model.JointModel.previous_tail`
+    takes it for a raw edge); an edge without one counts a step of 0. None when
+    no averaged edge has one."""
+    deltas, out_steps, in_steps = [], [], []
+    order = {id(seg): i for i, seg in enumerate(segments)}
+    for seg in averaged:
+        i = order.get(id(seg), 0)
+        prev = segments[i - 1] if i > 0 else None
+        if prev is None or prev.stop < seg.start or not prev.edge_time < seg.edge_time:
+            out_steps.append(0.0)
+            in_steps.append(0.0)
+            continue
+        deltas.append(seg.edge_time - prev.edge_time)
+        size = prev.step_size if math.isfinite(prev.step_size) else prev.final - prev.baseline
+        out_steps.append(size)
+        both = seg.input_before is not None and prev.input_before is not None
+        in_steps.append(seg.input_before - prev.input_before if both else math.nan)
+    if not deltas:
+        return None
+    return float(np.mean(deltas)), float(np.mean(out_steps)), float(np.mean(in_steps))
 
 
 def _nearest_samples(seg: StepSegment, at: np.ndarray, sample_interval: float

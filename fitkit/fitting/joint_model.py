@@ -187,13 +187,15 @@ class JointModel:
         scaled by the fitted gain with the rest of the response); else the
         output's measured step (its error is a small fraction of a small tail).
         """
+        seg = self.segments[i]
+        sc = self.scaling
+        if seg.averaged_edges != 1:
+            return self._previous_step_averaged(seg)
         if i == 0:
             return None
-        seg, prev = self.segments[i], self.segments[i - 1]
-        if seg.averaged_edges != 1 or prev.averaged_edges != 1 or prev.stop < seg.start \
-                or not prev.edge_time < seg.edge_time:
+        prev = self.segments[i - 1]
+        if prev.averaged_edges != 1 or prev.stop < seg.start or not prev.edge_time < seg.edge_time:
             return None
-        sc = self.scaling
         if self.measured_input:
             if seg.input_before is None or prev.input_before is None:
                 return None
@@ -203,6 +205,24 @@ class JointModel:
             step = size / sc.volt_unit
         delta = (seg.edge_time - prev.edge_time) / sc.time_unit
         return (delta, step) if math.isfinite(step) and step != 0.0 and delta > 0 else None
+
+    def _previous_step_averaged(self, seg: StepSegment) -> tuple[float, float] | None:
+        """:meth:`_previous_step` of a coherent average: its averaged edges' own
+        previous edges, as conditioning recorded them (``StepSegment.previous_edges``)."""
+        if seg.previous_edges is None:
+            return None
+        delta_s, out_step, in_step = seg.previous_edges
+        sc = self.scaling
+        step = in_step / sc.input_unit if self.measured_input else out_step / sc.volt_unit
+        delta = delta_s / sc.time_unit
+        return (delta, step) if math.isfinite(step) and step != 0.0 and delta > 0 else None
+
+    def follows_previous_delay(self, i: int) -> bool:
+        """Whether edge i's tail moves with the fitted delay of edge i - 1 (a raw
+        edge after a raw edge, ideal-step mode); an average's previous edges are
+        not among the fitted ones, and their tail is placed by the recorded times."""
+        return (not self.measured_input and i > 0 and self.segments[i].averaged_edges == 1
+                and self.segments[i - 1].averaged_edges == 1)
 
     def previous_tail(self, i: int, shape: Mapping[str, float], values: Mapping[str, float]) -> np.ndarray | float:
         """The previous edge's still-settling response over edge i's points (see
@@ -222,7 +242,7 @@ class JointModel:
         # error is w^2 s'' / 24, under 1 % of the (already small) tail for the
         # widest bins (half a time unit), and the model costs one evaluation per
         # point instead of three.
-        shift = delta if self.measured_input else delta - previous_t0
+        shift = delta - previous_t0 if self.follows_previous_delay(i) else delta
         return step * (self.form.unit_step(d.t_point + shift, **shape) - final)
 
     def kernel_for(self, shape: Mapping[str, float], dt: float) -> np.ndarray:
@@ -294,9 +314,10 @@ class JointModel:
             e = st.edge_of_point
             step = st.tail_steps[e]
             has = step != 0.0
-            shift = st.tail_deltas[e] - np.concatenate([[0.0], delays[:-1]])[e]
+            follows = st.tail_follows_delay[e]
+            shift = st.tail_deltas[e] - (np.concatenate([[0.0], delays[:-1]]) * st.tail_follows_delay)[e]
             _, d1, _ = self.form.step_and_derivatives(st.t_point[has] + shift[has], 1e-5, **shape)
-            tail_slope[has] = -step[has] * d1  # d tail / d (previous edge's delay)
+            tail_slope[has] = -step[has] * d1 * follows[has]  # d tail / d (previous edge's delay)
         out: dict[str, tuple[np.ndarray, np.ndarray]] = {}
         for i, (lo, hi) in enumerate(zip(self.bounds[:-1], self.bounds[1:])):
             points = np.arange(lo, hi)
@@ -316,7 +337,7 @@ class JointModel:
         if st.tail_steps is None:
             return 0.0
         e = st.edge_of_point
-        previous = np.concatenate([[0.0], delays[:-1]])
+        previous = np.concatenate([[0.0], delays[:-1]]) * st.tail_follows_delay
         final = getattr(self.form, "final_value", 1.0)
         step = st.tail_steps[e]
         has = step != 0.0

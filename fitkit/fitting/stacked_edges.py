@@ -27,7 +27,9 @@ class StackedEdges:
     t_point: (n,) representative scaled time of each point;
     tail_steps, tail_deltas: per edge, the previous edge's step and the time since
         it (:meth:`JointModel._previous_step`; step 0 where there is none), or
-        None when no edge has a previous tail.
+        None when no edge has a previous tail;
+    tail_follows_delay: per edge, 1.0 when its tail moves with the previous
+        edge's fitted delay (:meth:`JointModel.follows_previous_delay`), else 0.0.
     """
 
     t_nodes: np.ndarray
@@ -36,6 +38,7 @@ class StackedEdges:
     t_point: np.ndarray
     tail_steps: np.ndarray | None
     tail_deltas: np.ndarray | None
+    tail_follows_delay: np.ndarray | None = None
 
     @property
     def active(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
@@ -68,12 +71,13 @@ class StackedEdges:
             weights.append(w)
         edge_of_point = np.repeat(np.arange(len(joint.data)), [d.y.size for d in joint.data])
         prev = joint.previous_steps
-        steps = deltas = None
+        steps = deltas = follows = None
         if any(p is not None for p in prev):
             steps = np.array([0.0 if p is None else p[1] for p in prev])
             deltas = np.array([0.0 if p is None else p[0] for p in prev])
+            follows = np.array([float(joint.follows_previous_delay(i)) for i in range(len(prev))])
         return cls(np.vstack(nodes), np.vstack(weights), edge_of_point,
-                   np.concatenate([d.t_point for d in joint.data]), steps, deltas)
+                   np.concatenate([d.t_point for d in joint.data]), steps, deltas, follows)
 
 
 class EdgeSums:
