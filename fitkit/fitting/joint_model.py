@@ -310,14 +310,12 @@ class JointModel:
         shape = self.shape_scaled(values)
         f, slope, _ = self.stacked_responses_and_slopes(shape, delays, 1e-5)
         tail_slope = np.zeros(f.size)
-        if st.tail_steps is not None:
-            e = st.edge_of_point
-            step = st.tail_steps[e]
-            has = step != 0.0
-            follows = st.tail_follows_delay[e]
-            shift = st.tail_deltas[e] - (np.concatenate([[0.0], delays[:-1]]) * st.tail_follows_delay)[e]
-            _, d1, _ = self.form.step_and_derivatives(st.t_point[has] + shift[has], 1e-5, **shape)
-            tail_slope[has] = -step[has] * d1 * follows[has]  # d tail / d (previous edge's delay)
+        tail = self._tail_points(delays)
+        if tail is not None:
+            has, step, t = tail
+            _, d1, _ = self.form.step_and_derivatives(t, 1e-5, **shape)
+            # d tail / d (previous edge's delay), where the tail follows that delay
+            tail_slope[has] = -step * d1 * st.tail_follows_delay[st.edge_of_point[has]]
         out: dict[str, tuple[np.ndarray, np.ndarray]] = {}
         for i, (lo, hi) in enumerate(zip(self.bounds[:-1], self.bounds[1:])):
             points = np.arange(lo, hi)
@@ -333,18 +331,25 @@ class JointModel:
 
     def stacked_tails(self, shape: Mapping[str, float], delays: np.ndarray) -> np.ndarray | float:
         """:meth:`previous_tail` of every edge (ideal step), all points (0.0 when none has one)."""
+        tail = self._tail_points(delays)
+        if tail is None:
+            return 0.0
+        has, step, t = tail
+        out = np.zeros(self.stacked.t_point.size)
+        out[has] = step * (self.form.unit_step(t, **shape) - getattr(self.form, "final_value", 1.0))
+        return out
+
+    def _tail_points(self, delays: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+        """(the points that carry a previous edge's tail, that edge's step on each,
+        the time since it at each, scaled), or None when no edge has a tail."""
         st = self.stacked
         if st.tail_steps is None:
-            return 0.0
+            return None
         e = st.edge_of_point
         previous = np.concatenate([[0.0], delays[:-1]]) * st.tail_follows_delay
-        final = getattr(self.form, "final_value", 1.0)
         step = st.tail_steps[e]
         has = step != 0.0
-        shift = st.tail_deltas[e] - previous[e]
-        out = np.zeros(st.t_point.size)
-        out[has] = step[has] * (self.form.unit_step(st.t_point[has] + shift[has], **shape) - final)
-        return out
+        return has, step[has], st.t_point[has] + (st.tail_deltas[e] - previous[e])[has]
 
     def input_responses(self, shape: Mapping[str, float]) -> np.ndarray:
         """Measured-input mode: every edge's response to its own measured input,
