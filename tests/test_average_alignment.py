@@ -163,7 +163,7 @@ def test_average_stops_where_the_next_window_starts_and_models_the_previous_tail
         segments = analyse_steps(Capture.from_arrays(t, channels), average=True).segments
         rising, falling = segments
         assert rising.time[-1] < falling.time[0]  # the average never reaches the next window
-        delta, out_step, _ = rising.previous_edges
+        delta, out_step, _ = rising.previous_edges[0]
         assert delta == pytest.approx(1e-3, rel=1e-3)
         assert out_step == pytest.approx(-0.8, abs=2e-3)  # 4 of the 5 rising edges follow a falling one
         ff = fit_form(segments, get_form("first-order"))

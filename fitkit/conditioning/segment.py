@@ -72,12 +72,13 @@ class StepSegment:
         kernel its alignment smeared the output with: the edges' sub-sample
         interpolation and, when they were located on the output itself, the
         jitter of those locations (:func:`.segments.average_segments`); 0 for a raw edge.
-    previous_edges: for a coherent average, (seconds from the previous edge to
-        this one, that edge's output step in V, its input step in V or NaN),
-        averaged over the averaged edges (a step of 0 for an edge whose window
-        does not follow another's in the record), so that the fit can model the
-        previous edges' still-settling tail as it does for a raw edge; None for
-        a raw edge or when no averaged edge follows another.
+    previous_edges: for a coherent average, for the previous edge and each
+        earlier one whose response had not settled: (seconds from that edge to
+        this one, its output step in V, its input step in V or NaN), averaged
+        over the averaged edges (a step of 0 for an edge without one), so that
+        the fit can model their still-settling tails as it does for a raw edge
+        (:mod:`fitkit.fitting.previous_tails`); None for a raw edge or when no
+        averaged edge follows another.
     """
 
     start: int
@@ -101,7 +102,7 @@ class StepSegment:
     settled: bool = True
     sample_interval: float = float("nan")
     alignment_variance: float = 0.0
-    previous_edges: tuple[float, float, float] | None = None
+    previous_edges: tuple[tuple[float, float, float], ...] | None = None
 
     def __post_init__(self) -> None:
         if not math.isfinite(self.sample_interval):

@@ -285,31 +285,49 @@ def _window_end(seg: StepSegment, segments: Sequence[StepSegment], sample_interv
     return min(float(seg.time[-1]), float(nxt.time[0]) - sample_interval)
 
 
+#: Edges back from each averaged edge whose tails are recorded (the first always,
+#: earlier ones while the windows between are unsettled; the fit's own limit
+#: for raw edges is fitkit.fitting.previous_tails.MAX_EARLIER_EDGES).
+MAX_PREVIOUS_EDGES = 9
+
+
 def _previous_edges(averaged: Sequence[StepSegment], segments: Sequence[StepSegment]
-                    ) -> tuple[float, float, float] | None:
-    """(mean seconds from the previous edge, mean output step V, mean input step V
-    or NaN) over the ``averaged`` raw segments, the previous edge being the
-    segment before each in ``segments`` when its window touches or overlaps
-    this one's (as :meth:`fitkit.fitting.joint_model.JointModel.previous_tail`
-    takes it for a raw edge); an edge without one counts a step of 0. None when
-    no averaged edge has one."""
-    deltas, out_steps, in_steps = [], [], []
+                    ) -> tuple[tuple[float, float, float], ...] | None:
+    """For k = 1, 2, ...: (mean seconds from the k-th edge back, mean output step
+    V, mean input step V or NaN) over the ``averaged`` raw segments. The edge k
+    back counts while the windows from it on touch or overlap (as
+    :mod:`fitkit.fitting.previous_tails` takes them for a raw edge) and, beyond
+    the previous edge, while the windows between are unsettled; an edge without
+    it counts a step of 0. None when no averaged edge has a previous edge."""
     order = {id(seg): i for i, seg in enumerate(segments)}
+    found: list[list[tuple[float, float, float]]] = []
     for seg in averaged:
         i = order.get(id(seg), 0)
-        prev = segments[i - 1] if i > 0 else None
-        if prev is None or prev.stop < seg.start or not prev.edge_time < seg.edge_time:
-            out_steps.append(0.0)
-            in_steps.append(0.0)
-            continue
-        deltas.append(seg.edge_time - prev.edge_time)
-        size = prev.step_size if math.isfinite(prev.step_size) else prev.final - prev.baseline
-        out_steps.append(size)
-        both = seg.input_before is not None and prev.input_before is not None
-        in_steps.append(seg.input_before - prev.input_before if both else math.nan)
-    if not deltas:
+        chain = []
+        for k in range(1, MAX_PREVIOUS_EDGES + 1):
+            j = i - k
+            if j < 0:
+                break
+            earlier, later = segments[j], segments[j + 1]
+            if earlier.averaged_edges != 1 or earlier.stop < later.start or not earlier.edge_time < later.edge_time:
+                break
+            if k > 1 and later.settled:
+                break
+            size = earlier.step_size if math.isfinite(earlier.step_size) else earlier.final - earlier.baseline
+            both = later.input_before is not None and earlier.input_before is not None
+            chain.append((seg.edge_time - earlier.edge_time, size,
+                          later.input_before - earlier.input_before if both else math.nan))
+        found.append(chain)
+    depth = max((len(c) for c in found), default=0)
+    if depth == 0:
         return None
-    return float(np.mean(deltas)), float(np.mean(out_steps)), float(np.mean(in_steps))
+    out = []
+    for k in range(depth):
+        have = [c[k] for c in found if len(c) > k]
+        out.append((float(np.mean([h[0] for h in have])),
+                    float(np.sum([h[1] for h in have])) / len(found),
+                    float(np.sum([h[2] for h in have])) / len(found)))
+    return tuple(out)
 
 
 def _nearest_samples(seg: StepSegment, at: np.ndarray, sample_interval: float

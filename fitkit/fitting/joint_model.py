@@ -40,6 +40,7 @@ from ..forms.base import Form
 from .binning import discrete_mean_nodes, pre_edge_weights, variable_bins
 from .measured_input import fft_convolve, response_by_superposition, superposition_kernel, uniform_step
 from .scaling import RUNAWAY_LOG, Scaling
+from .previous_tails import earlier_steps, previous_step
 from .stacked_edges import EdgeSums, StackedEdges
 
 #: Segments longer than this are bin-averaged before the nonlinear fit.
@@ -116,6 +117,10 @@ class JointModel:
         self.weights = np.sqrt(np.concatenate([d.counts for d in self.data]).astype(float))
         self.bounds = np.cumsum([0] + [d.y.size for d in self.data])
         self.previous_steps = tuple(self._previous_step(i) for i in range(len(self.segments)))
+        #: per edge, the (time since, step) of the edges before the previous one
+        #: whose tails still reach its window (:func:`.previous_tails.earlier_steps`)
+        self.earlier_steps = tuple(earlier_steps(self.segments, i, self.scaling, self.measured_input)
+                                   for i in range(len(self.segments)))
 
     def with_segments(self, segments: Sequence[StepSegment]) -> "JointModel":
         """The same model (form, units, mode, point budget) over other segments."""
@@ -173,49 +178,9 @@ class JointModel:
 
     # -- the previous edge's tail ------------------------------------------------
     def _previous_step(self, i: int) -> tuple[float, float] | None:
-        """(time since the previous edge, its step) for edge i, scaled, or None.
-
-        A window starts a quarter interval before its edge, so the response to
-        the previous edge has had only about 3/4 of the interval to settle
-        (e^-7.5 = 5.5e-4 of the step left at ten time constants). At high SNR
-        or over a long record that tail is far above the noise, so it is
-        modelled: the previous edge, taken as an ideal step of its measured
-        size, contributes step_prev (s(t + delta) - s_final) to this window.
-        Only for consecutive raw edges of one record (windows that touch or
-        overlap); the first edge and averaged segments have none. In
-        measured-input mode the step is the input's, normalised (it is then
-        scaled by the fitted gain with the rest of the response); else the
-        output's measured step (its error is a small fraction of a small tail).
-        """
-        seg = self.segments[i]
-        sc = self.scaling
-        if seg.averaged_edges != 1:
-            return self._previous_step_averaged(seg)
-        if i == 0:
-            return None
-        prev = self.segments[i - 1]
-        if prev.averaged_edges != 1 or prev.stop < seg.start or not prev.edge_time < seg.edge_time:
-            return None
-        if self.measured_input:
-            if seg.input_before is None or prev.input_before is None:
-                return None
-            step = (seg.input_before - prev.input_before) / sc.input_unit
-        else:
-            size = prev.step_size if math.isfinite(prev.step_size) else prev.final - prev.baseline
-            step = size / sc.volt_unit
-        delta = (seg.edge_time - prev.edge_time) / sc.time_unit
-        return (delta, step) if math.isfinite(step) and step != 0.0 and delta > 0 else None
-
-    def _previous_step_averaged(self, seg: StepSegment) -> tuple[float, float] | None:
-        """:meth:`_previous_step` of a coherent average: its averaged edges' own
-        previous edges, as conditioning recorded them (``StepSegment.previous_edges``)."""
-        if seg.previous_edges is None:
-            return None
-        delta_s, out_step, in_step = seg.previous_edges
-        sc = self.scaling
-        step = in_step / sc.input_unit if self.measured_input else out_step / sc.volt_unit
-        delta = delta_s / sc.time_unit
-        return (delta, step) if math.isfinite(step) and step != 0.0 and delta > 0 else None
+        """(time since the previous edge, its step) for edge i, scaled, or None
+        (:func:`.previous_tails.previous_step`)."""
+        return previous_step(self.segments, i, self.scaling, self.measured_input)
 
     def follows_previous_delay(self, i: int) -> bool:
         """Whether edge i's tail moves with the fitted delay of edge i - 1 (a raw
@@ -243,7 +208,10 @@ class JointModel:
         # widest bins (half a time unit), and the model costs one evaluation per
         # point instead of three.
         shift = delta - previous_t0 if self.follows_previous_delay(i) else delta
-        return step * (self.form.unit_step(d.t_point + shift, **shape) - final)
+        tail = step * (self.form.unit_step(d.t_point + shift, **shape) - final)
+        for earlier_delta, earlier_step in self.earlier_steps[i]:
+            tail = tail + earlier_step * (self.form.unit_step(d.t_point + earlier_delta, **shape) - final)
+        return tail
 
     def kernel_for(self, shape: Mapping[str, float], dt: float) -> np.ndarray:
         """Superposition kernel for the longest edge, computed once per shape (the
@@ -335,8 +303,14 @@ class JointModel:
         if tail is None:
             return 0.0
         has, step, t = tail
+        final = getattr(self.form, "final_value", 1.0)
         out = np.zeros(self.stacked.t_point.size)
-        out[has] = step * (self.form.unit_step(t, **shape) - getattr(self.form, "final_value", 1.0))
+        out[has] = step * (self.form.unit_step(t, **shape) - final)
+        earlier = self.stacked.earlier_tails
+        if earlier is not None:
+            points, earlier_step, earlier_t = earlier
+            out += np.bincount(points, weights=earlier_step * (self.form.unit_step(earlier_t, **shape) - final),
+                               minlength=out.size)
         return out
 
     def _tail_points(self, delays: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:

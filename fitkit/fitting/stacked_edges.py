@@ -29,7 +29,10 @@ class StackedEdges:
         it (:meth:`JointModel._previous_step`; step 0 where there is none), or
         None when no edge has a previous tail;
     tail_follows_delay: per edge, 1.0 when its tail moves with the previous
-        edge's fitted delay (:meth:`JointModel.follows_previous_delay`), else 0.0.
+        edge's fitted delay (:meth:`JointModel.follows_previous_delay`), else 0.0;
+    earlier_tails: (point, step, scaled time since that edge) for every point
+        and every edge before the previous one still reaching it
+        (:attr:`JointModel.earlier_steps`), or None when there are none.
     """
 
     t_nodes: np.ndarray
@@ -39,6 +42,7 @@ class StackedEdges:
     tail_steps: np.ndarray | None
     tail_deltas: np.ndarray | None
     tail_follows_delay: np.ndarray | None = None
+    earlier_tails: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
 
     @property
     def active(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
@@ -76,8 +80,17 @@ class StackedEdges:
             steps = np.array([0.0 if p is None else p[1] for p in prev])
             deltas = np.array([0.0 if p is None else p[0] for p in prev])
             follows = np.array([float(joint.follows_previous_delay(i)) for i in range(len(prev))])
-        return cls(np.vstack(nodes), np.vstack(weights), edge_of_point,
-                   np.concatenate([d.t_point for d in joint.data]), steps, deltas, follows)
+        t_point = np.concatenate([d.t_point for d in joint.data])
+        points, earlier_steps, earlier_times = [], [], []
+        for i, pairs in enumerate(joint.earlier_steps):
+            own = np.arange(joint.bounds[i], joint.bounds[i + 1])
+            for delta, step in pairs:
+                points.append(own)
+                earlier_steps.append(np.full(own.size, step))
+                earlier_times.append(t_point[own] + delta)
+        earlier = (np.concatenate(points), np.concatenate(earlier_steps), np.concatenate(earlier_times)) \
+            if points else None
+        return cls(np.vstack(nodes), np.vstack(weights), edge_of_point, t_point, steps, deltas, follows, earlier)
 
 
 class EdgeSums:
