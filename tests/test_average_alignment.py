@@ -29,7 +29,7 @@ from fitkit.fitting.form_fit import fit_form
 from fitkit.fitting.estimates import shape_estimates
 from fitkit.forms import get_form
 
-from support.square_waves import Q, ringing_square_wave
+from support.square_waves import Q, rc_square_wave, ringing_square_wave
 
 
 def test_predicted_smear_is_the_bias_it_causes():
@@ -134,22 +134,6 @@ def test_a_runaway_shape_value_is_clipped_not_an_overflow():
     assert sc.shape_from_log_scaled(spec, 0.5) == math.exp(0.5) * 1e-6
 
 
-def _rc_square_wave(n: int = 100_000, edges: int = 10, dt: float = 1e-7):
-    """(time s, drive V, response V, tau s): a 0/1 V square wave, edges half way
-    between samples, through an RC of tau = 1/10 of the half period (textbook
-    response 1 - exp(-t/tau) per edge), noise-free."""
-    half = n // edges
-    tau = half * dt / 10
-    k = np.arange(n)
-    t = k * dt
-    drive = (((k + half // 2) // half) % 2 == 1).astype(float)
-    y = np.zeros(n)
-    for i in range(edges):
-        x = np.clip(t - (half // 2 + i * half - 0.5) * dt, 0.0, None)
-        y += (1.0 if i % 2 == 0 else -1.0) * -np.expm1(-x / tau)
-    return t, drive, y, tau
-
-
 def test_average_stops_where_the_next_window_starts_and_models_the_previous_tail():
     """An averaged window ends where the next edge's window starts (as the joint
     fit cuts raw windows), and the previous edges' still-settling tail (e^-7.5
@@ -158,7 +142,7 @@ def test_average_stops_where_the_next_window_starts_and_models_the_previous_tail
     before, -4.5e-4 of tau without the drive channel (the window's end held
     the next edge's onset) and 1.5e-4 with it (the tail, 1.2 standard errors
     of a 1M-sample capture's average, 3 once averaged over fewer edges)."""
-    t, drive, y, tau = _rc_square_wave()
+    t, drive, y, tau = rc_square_wave(100_000, 10, 1e-7)  # noise-free
     for channels in ({"vout": y}, {"vin": drive, "vout": y}):
         segments = analyse_steps(Capture.from_arrays(t, channels), average=True).segments
         rising, falling = segments

@@ -21,6 +21,7 @@ from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 from fitkit.fitting import fit_capture
 from support.fitting_sims import coloured_noise, first_order_tf, second_order_tf, square_wave_capture, two_pole_tf
+from support.square_waves import rc_square_wave
 
 
 def single_edge_capture(tf, *, dt: float, n: int, edge: float, rng, noise: float, band: float | None = None,
@@ -134,15 +135,8 @@ def test_a_form_a_set_aside_candidate_far_outfits_is_refused(monkeypatch):
 
     import fitkit.fitting.step_fit as step_fit
 
-    n, edges, dt = 20_000, 12, 1e-7
-    half = n // edges
-    tau = half * dt / 10
-    t = np.arange(n) * dt
-    y = np.zeros(n)
-    for i in range(edges):
-        x = np.clip(t - (half // 2 + i * half - 0.5) * dt, 0.0, None)
-        y += (1.0 if i % 2 == 0 else -1.0) * -np.expm1(-x / tau)
-    cap = Capture.from_arrays(t, {"vout": y + np.random.default_rng(3).normal(0.0, 0.03, n)})
+    t, _, y, _ = rc_square_wave(20_000, 12, 1e-7, sigma=0.03, seed=3)
+    cap = Capture.from_arrays(t, {"vout": y})
     right = fit_capture(cap)
     assert right.model == "first-order" and right.describes_data
     real_fit_form = step_fit.fit_form

@@ -23,6 +23,7 @@ from fitkit.fitting import block_jacobian, edge_delays
 from fitkit.fitting.least_squares import covariance_from_jacobian
 from fitkit.fitting.form_fit import fit_form
 from fitkit.forms import get_form
+from support.square_waves import rc_square_wave
 
 DT, SIGMA = 1e-7, 0.01
 
@@ -229,14 +230,8 @@ def test_first_order_edges_on_samples_converge():
     went unchecked). Textbook RC response 1 - exp(-t/tau)."""
     failed = 0
     for seed in range(40):
-        n, edges, dt = 4800, 12, 1e-6
-        half = n // edges
-        t = np.arange(n) * dt
-        y = np.zeros(n)
-        for i in range(edges):
-            x = np.clip(t - (half // 2 + i * half) * dt, 0.0, None)
-            y += (1.0 if i % 2 == 0 else -1.0) * -np.expm1(-x / (30 * dt))
-        y += np.random.default_rng(seed).normal(0.0, 0.05, n)
+        # 400 samples a half period, tau 30 samples
+        t, _, y, _ = rc_square_wave(4800, 12, 1e-6, 400 / 30, sigma=0.05, seed=seed, before_sample=0.0)
         segments = analyse_steps(capture(t, y)).segments
         failed += not fit_form(segments[:8], get_form("first-order")).converged
     assert failed == 0
@@ -252,17 +247,7 @@ def test_a_response_that_does_not_settle_between_edges_is_fitted_with_every_tail
     at two time constants and 0.5 % low at three, 5.8 standard errors, with
     the drive channel. Textbook RC response 1 - exp(-t/tau) per edge,
     superposed; 20 edges, 40 dB."""
-    n, edges, dt = 20_000, 20, 1e-6
-    half = n // edges
-    tau = half * dt / half_period_in_tau
-    k = np.arange(n)
-    t = k * dt
-    drive = (((k + half // 2) // half) % 2 == 1).astype(float)
-    y = np.zeros(n)
-    for i in range(edges):
-        x = np.clip(t - (half // 2 + i * half - 0.5) * dt, 0.0, None)
-        y += (1.0 if i % 2 == 0 else -1.0) * -np.expm1(-x / tau)
-    y += np.random.default_rng(1).normal(0.0, 0.01, n)
+    t, drive, y, tau = rc_square_wave(20_000, 20, 1e-6, half_period_in_tau, sigma=0.01, seed=1)
     cap = Capture(time=t, channels=(Channel("input", drive, "V", "V"), Channel("output", y, "V", "V")))
     for average in (False, True):
         est = fit_capture(cap, model="first-order", average=average).parameters["tau"]
