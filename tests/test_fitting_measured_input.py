@@ -17,12 +17,15 @@ and the input's own noise was not in the intervals.
 from __future__ import annotations
 
 import json
+import math
 from pathlib import Path
 
 import numpy as np
 import pytest
 from scipy import signal
 
+from fitkit.capture import Capture
+from fitkit.conditioning import analyse_steps
 from fitkit.conditioning.segment import StepSegment
 from fitkit.fitting import fit_capture, fit_segments
 from fitkit.fitting.measured_input import (response_by_superposition, superposition_adjoint,
@@ -162,3 +165,37 @@ def test_demo_truth_from_the_measured_input_is_inside_the_interval(name, model, 
     assert r.details.mode == "measured input"
     est = r.parameters.get(quantity) or r.derived[quantity]
     assert est.contains(truth), (est.value, est.ci95, truth)
+
+
+def test_eight_bit_drive_flickering_after_its_edge_keeps_q_intervals_honest():
+    # A series RLC measured across C (R 100 Ohm, L 10 mH, C 70 nF: f0 6.0 kHz, Q 3.78; transfer
+    # function 1 / (LC s^2 + RC s + 1), Nilsson & Riedel, Electric Circuits, ch. 8), driven by a
+    # 0 -> 1 V step and simulated with scipy.signal.lsim; both channels carry 3 mV of
+    # band-limited noise and are rounded to 8 bits over -1.2 .. 1.3 V (9.8 mV codes: the noise is
+    # 0.3 codes). Before the edge the drive sits near a code's middle and rarely changes code;
+    # after it, 1 V sits 0.3 codes from a code and the recorded drive flickers a code up a quarter
+    # of the time. The input's noise estimated before the edge alone understated what reaches
+    # the model (Q's 95 % interval held the truth in 51 of 60 captures; 57 after).
+    R_, L_, C_ = 100.0, 10e-3, 70e-9
+    q_truth = math.sqrt(L_ / C_) / R_
+    slow = 2 * L_ / R_
+    t = np.linspace(-0.7 * slow, 6.3 * slow, 1000)
+    drive = (t >= 0).astype(float)
+    _, clean, _ = signal.lsim(([1.0], [L_ * C_, R_ * C_, 1.0]), drive, t - t[0])
+    b, a = signal.butter(2, 0.2)
+    code = 2.5 / 256
+    rng = np.random.default_rng(100)
+
+    def scope(x):
+        w = signal.lfilter(b, a, rng.normal(0, 1, x.size))
+        return np.round((x + 1.2 + 3e-3 * w / w.std()) / code) * code - 1.2
+
+    hits, n = 0, 60
+    for _ in range(n):
+        u = scope(drive)
+        y = scope(clean)
+        capture = Capture.from_arrays(t, {"input": u, "output": y})
+        segments = analyse_steps(capture, input="input", output="output").segments
+        r = fit_segments(segments, "second-order", intervals="covariance", derived=False)
+        hits += r.parameters["Q"].contains(q_truth)
+    assert hits / n >= 0.93, hits

@@ -14,7 +14,10 @@ Two ways, chosen from the trace itself:
   above the noise. A trace that ends at another level than it started is a
   step, not jumps, even when its histogram shows no clear second level (a
   resonant response still ringing): its ringing swings are as steep as its
-  edge, so it is read by level crossings.
+  edge, so it is read by level crossings. A band-pass response (a series RLC
+  measured across R) leaps at its edge, rings and returns to where it started:
+  a swing that turns the trace back before it rests, no steeper than the swing
+  before it, is that edge's ringing, not an edge (``_rings_on``).
 
 In both, the edge time is the interpolated 50 % crossing of the transition
 (IEEE Std 181's mid reference level instant, with linear interpolation
@@ -224,6 +227,8 @@ def edges_by_jumps(time: np.ndarray, values: np.ndarray, noise_rms: float) -> Ed
     tol_floor = 3 * noise
     edges: list[Edge] = []
     floor = 0
+    swing: _Swing | None = None   # the last jump seen: a kept edge or its ringing
+    kept: _Swing | None = None    # the last kept edge's jump
     for g0, g1 in zip(starts, stops):
         first, last = int(cand[g0]), int(cand[g1]) + 1
         direction = int(sign[g0])
@@ -231,6 +236,12 @@ def edges_by_jumps(time: np.ndarray, values: np.ndarray, noise_rms: float) -> Ed
         after = float(values[last])
         if not abs(after - before) > least_jump:
             continue
+        steepest = float(np.max(size[first:last]))
+        seen = _Swing(direction, first, last, after, steepest)
+        if swing is not None and kept is not None and _rings_on(values, swing, seen, edges[-1], kept, noise):
+            swing = seen
+            continue
+        swing = kept = seen
         mid = 0.5 * (before + after)
         if (values[first] - mid) * (after - mid) >= 0:  # keep the bracketing samples straddling mid
             mid = 0.5 * (float(values[first]) + after)
@@ -240,6 +251,62 @@ def edges_by_jumps(time: np.ndarray, values: np.ndarray, noise_rms: float) -> Ed
         edges.append(Edge(index, t_edge, direction, onset, before, after))
         floor = last
     return EdgeSearch(tuple(edges), method)
+
+
+@dataclass(frozen=True)
+class _Swing:
+    """A jump of the trace as seen by the jump search: its direction, the indices where its
+    group of large differences starts and ends, the level at the end (V) and its largest
+    difference (V)."""
+
+    direction: int
+    start: int
+    end: int
+    level: float
+    steepest: float
+
+
+def _rings_on(values: np.ndarray, swing: _Swing, seen: _Swing, edge: Edge, kept: _Swing,
+              noise: float) -> bool:
+    """True when the jump ``seen`` is a ringing swing of the response to ``edge`` (the last kept
+    edge, whose jump is ``kept``), not a new edge: it turns the trace back after ``swing`` (the
+    last jump seen, the edge itself or an earlier swing of its ringing), and
+
+    * the trace went on past where that swing's steep part ended, in its direction, before
+      turning (a resonance swings through a turning point; after an edge of a response that
+      only decays back, a high-pass or RL trace, the trace turns at once);
+    * the trace did not rest between the two at the level the edge left (within max(3 noise
+      sigma, 5 % of the edge) of it for as many samples as the edge's own steep part, and at
+      least MIN_DWELL_SAMPLES): a ringing swing only passes through that level, a response
+      that rests there before the next edge has ended;
+    * the swing is no steeper than the one before (by 2 sqrt(2) noise sigma): a free
+      oscillation decays, while a drive edge adds its own slope to whatever the trace does.
+
+    A jump in the direction of a ringing swing just seen, with no rest between, is the same
+    swing (its steep part broken by noise or rounding): the first condition is then not asked.
+    A drive edge during a ringing response that passes all three is taken for ringing; the
+    trace then does not rest between its edges, which a trace of jumps is assumed to do.
+    The decaying free response of a resonance and its continuous slope at a turning point
+    are textbook (Nilsson & Riedel, Electric Circuits, 10th ed., Pearson 2015, ch. 8, the
+    underdamped step response); the margins are common practice, no source.
+    """
+    same_swing = seen.direction == swing.direction and swing is not kept
+    if not (same_swing or seen.direction == -swing.direction) or seen.start <= swing.end:
+        return False
+    gap = values[swing.end:seen.start + 1]
+    went_on = (np.max(gap) - swing.level) if swing.direction > 0 else (swing.level - np.min(gap))
+    edge_size = abs(edge.level_after - edge.level_before)
+    resting = np.abs(gap - edge.level_before) <= max(3 * noise, 0.05 * edge_size)
+    return bool((same_swing or went_on > max(4 * noise, 0.05 * edge_size))
+                and _longest_run(resting) < max(MIN_DWELL_SAMPLES, kept.end - kept.start)
+                and seen.steepest <= swing.steepest + 2 * np.sqrt(2.0) * noise)
+
+
+def _longest_run(flags: np.ndarray) -> int:
+    """Length of the longest run of True in a boolean array."""
+    padded = np.concatenate(([0], flags.astype(np.int8), [0]))
+    ends = np.flatnonzero(np.diff(padded))
+    return int(np.max(ends[1::2] - ends[::2])) if ends.size else 0
 
 
 def _merged_jumps(cand: np.ndarray, sign: np.ndarray, starts: np.ndarray,

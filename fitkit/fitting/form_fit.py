@@ -185,6 +185,9 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     """
     if not segments:
         raise FitError("no step segments to fit", hint="check that the capture holds at least one edge")
+    # the scaled units come from the windows as given: a circuit form is built in the time unit
+    # make_scaling gives for them (fitkit.part_values.direct), and the cut must not change it
+    given = segments
     segments = consecutive_windows_cut(segments)
     has_input = has_measured_input(segments)
     measured_input = has_input if measured_input is None else measured_input
@@ -195,7 +198,7 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
         # its baseline (every low-pass form, and the band-pass forms, which
         # return to 0 without jumping) has its edge time fitted.
         free_t0 = not has_input and not form.edge_jumps
-    scaling = make_scaling(segments, form, measured_input)
+    scaling = make_scaling(given, form, measured_input)
     joint = JointModel(form, segments, scaling, measured_input=measured_input, free_t0=free_t0,
                        max_points=max_points)
     # a wrapper's own given parameter (a stated pulse width) is held wherever the form is fitted

@@ -35,27 +35,55 @@ from .uncertainty import autoregressive_autocorrelation, residual_autocorrelatio
 
 #: Fewest points before the edge for a coloured (autoregressive) noise estimate.
 MIN_PRE_EDGE_POINTS = 32
+#: The window's second half counts as a rest of the drive when its range is under this share of
+#: the edge's step (a pulse's return or a further edge inside it is not noise; common practice, no source).
+SETTLED_SHARE = 0.2
 
 
 def input_noise_autocovariance(joint: JointModel, i: int) -> np.ndarray:
-    """Autocovariance gamma(0..n-1) of the normalised input noise of edge i at the fit's resolution."""
+    """Autocovariance gamma(0..n-1) of the normalised input noise of edge i at the fit's resolution.
+
+    Estimated where the drive rests: before the edge, and (unbinned) over the second half of
+    the window when the drive rests there too (its range under SETTLED_SHARE of the edge's
+    step; a straight line taken out); the larger long-run variance of the two is kept. A
+    drive rounded to codes with noise below one code has noise that depends on where its
+    level sits between two codes (a level near a code's middle rarely flickers, one near
+    its edge often does), so the level before the edge can understate the noise at the
+    level after it, which drives most of the window (Widrow & Kollar, Quantization Noise, Cambridge UP 2008, ch. 4, from memory:
+    the rounding error is not independent of the signal when the noise is under a code).
+    """
     d = joint.data[i]
     n = d.u.size
     before = d.u[d.u_initial_weights > 0] if d.u_initial_weights is not None else np.zeros(0)
+    rests = [before] if before.size >= MIN_PRE_EDGE_POINTS else []
+    after = d.u[n // 2:] if d.bin_size == 1 else np.zeros(0)
+    initial = d.u_initial if d.u_initial is not None else (float(d.u[0]) if n else 0.0)
+    step = abs(float(np.mean(after)) - initial) if after.size else 0.0
+    if after.size >= MIN_PRE_EDGE_POINTS and float(np.ptp(after)) < SETTLED_SHARE * step:
+        # a slow drift of the level (a loaded generator settling) is not noise: a line is taken out
+        k = np.arange(after.size, dtype=float)
+        rests.append(after - np.polyval(np.polyfit(k, after, 1), k))
+    if rests:
+        return max((_rest_autocovariance(rest, n) for rest in rests), key=lambda g: g[0] + 2 * g[1:].sum())
     gamma = np.zeros(n)
-    if before.size >= MIN_PRE_EDGE_POINTS:
-        e = before - before.mean()
-        var = float(e @ e) / max(e.size - 1, 1)
-        max_lag = int(min(e.size // 4, 200))
-        rho = residual_autocorrelation([e], max_lag)
-        model_rho, _ = autoregressive_autocorrelation(rho, e.size, max_lag=min(n - 1, 4 * max_lag) or 1)
-        m = min(model_rho.size, n)
-        gamma[:m] = var * model_rho[:m]
-        return gamma
     # white noise from the first differences (the one estimator; its median ignores the edge itself)
     sigma = noise_from_differences(d.u)
     if np.isfinite(sigma):
         gamma[0] = sigma ** 2
+    return gamma
+
+
+def _rest_autocovariance(rest: np.ndarray, n: int) -> np.ndarray:
+    """Autocovariance gamma(0..n-1) of the noise of a stretch where the drive rests: its
+    variance and an autoregressive model of its autocorrelation (Yule-Walker, order by AIC)."""
+    gamma = np.zeros(n)
+    e = rest - rest.mean()
+    var = float(e @ e) / max(e.size - 1, 1)
+    max_lag = int(min(e.size // 4, 200))
+    rho = residual_autocorrelation([e], max_lag)
+    model_rho, _ = autoregressive_autocorrelation(rho, e.size, max_lag=min(n - 1, 4 * max_lag) or 1)
+    m = min(model_rho.size, n)
+    gamma[:m] = var * model_rho[:m]
     return gamma
 
 
