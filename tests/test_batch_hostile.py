@@ -88,7 +88,11 @@ def test_captures_lost_with_a_dead_worker_are_retried_once(monkeypatch):
     assert done == {"a": ("fitted", True), "b": ("fitted", True), "c": ("error", False)}
 
 
-def _start_batch(tmp_path, copies=16):
+def _start_batch(tmp_path, copies=120):
+    """A batch of ``copies`` demo captures started on two workers, returned once
+    the workers are busy; enough captures that the batch is still running when
+    the test interrupts it (16 were all fitted within the 3 s wait once fits
+    became faster)."""
     folder = tmp_path / "in"
     folder.mkdir()
     body = (DEMO / "good_board_sallen_key.csv").read_bytes()

@@ -93,3 +93,21 @@ def test_fft_lagged_sums_match_numpy_correlate():
     model, order = autoregressive_autocorrelation(rho, 10_000, max_lag=39)
     assert order == 1
     assert np.allclose(model, rho, atol=1e-9)
+
+
+def test_ar_autocovariance_is_the_impulse_response_lag_sums():
+    """The autocovariance of a stationary AR model from its power spectrum equals
+    the lag sums of its impulse response as scipy.signal.lfilter runs it, for
+    models up to order 24 with poles up to 0.995 from the origin."""
+    from scipy import signal
+
+    from fitkit.fitting.uncertainty import ar_autocovariance
+
+    rng = np.random.default_rng(0)
+    for _ in range(40):
+        p = int(rng.integers(1, 13))
+        roots = rng.uniform(0.0, 0.995, p) * np.exp(1j * rng.uniform(0.0, np.pi, p))
+        phi = -np.poly(np.concatenate([roots, roots.conj()]))[1:].real
+        h = signal.lfilter([1.0], np.concatenate([[1.0], -phi]), np.r_[1.0, np.zeros(100_000)])
+        expected = np.array([h[:h.size - k] @ h[k:] for k in range(40)])
+        np.testing.assert_allclose(ar_autocovariance(phi, 39), expected, rtol=0, atol=1e-6 * expected[0])
