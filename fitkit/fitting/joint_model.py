@@ -214,15 +214,17 @@ class JointModel:
         return tail
 
     def kernel_for(self, shape: Mapping[str, float], dt: float) -> np.ndarray:
-        """Superposition kernel for the longest edge, computed once per shape (the
-        edges of one evaluation share it)."""
-        key = (tuple(sorted(shape.items())), dt)
+        """Superposition kernel for the longest edge, computed once per shape and
+        bin width (the edges of one evaluation share it; edges binned at other
+        widths keep theirs while the shape stays)."""
+        shape_key = tuple(sorted(shape.items()))
         cached = getattr(self, "_kernel_cache", None)
-        if cached is not None and cached[0] == key:
-            return cached[1]
-        n = max(d.u.size for d in self.data if d.u is not None)
-        kernel = superposition_kernel(lambda t: self.form.unit_step(t, **shape), n, dt)
-        self._kernel_cache = (key, kernel)
+        if cached is None or cached[0] != shape_key:
+            cached = self._kernel_cache = (shape_key, {})
+        kernel = cached[1].get(dt)
+        if kernel is None:
+            n = max(d.u.size for d in self.data if d.u is not None)
+            kernel = cached[1][dt] = superposition_kernel(lambda t: self.form.unit_step(t, **shape), n, dt)
         return kernel
 
     # -- every edge at once (ideal-step mode) ------------------------------------------
