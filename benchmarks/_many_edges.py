@@ -160,6 +160,10 @@ def coverage(trials: int, edges: int, samples: int, response: str = "rc", seed: 
             failed += 1
             print(f"trial {i}: {err}", file=sys.stderr)
             continue
+        if not r.describes_data:  # refused as not describing the capture: counted as failed
+            failed += 1
+            print(f"trial {i}: {r.adequacy.finding}", file=sys.stderr)
+            continue
         if r.model != form and not (not form_given and r.model == CHOSEN_NAME.get(form)):
             other += 1
             continue

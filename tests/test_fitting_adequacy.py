@@ -126,7 +126,7 @@ def test_a_form_a_set_aside_candidate_far_outfits_is_refused(monkeypatch):
     next admissible one (critically damped, one parameter too) can land within
     twice the noise, under the adequacy gate's threshold; but two-real-pole,
     set aside for a pole faster than a sample (it is first order), leaves
-    residuals more than 1.1 times smaller at an AICc lower by more than the
+    residuals more than 1.03 times smaller at an AICc lower by more than the
     selection margin. That critically damped answer would be confidently wrong
     (its tau 40 % off, interval tight): it is refused with the finding. Capture:
     an RC square wave at SNR 33, 12 edges half way between samples, each the

@@ -253,3 +253,21 @@ def test_a_response_that_does_not_settle_between_edges_is_fitted_with_every_tail
         est = fit_capture(cap, model="first-order", average=average).parameters["tau"]
         assert est.ci95[0] <= tau <= est.ci95[1], (average, est.value / tau)
         assert abs(est.value / tau - 1) < 3e-3
+
+
+def test_output_only_edges_that_cannot_be_placed_are_refused():
+    """Without the drive channel, a response that does not settle between edges
+    (two time constants per half period) has its edges read off the output a
+    third of an interval late, and the windows start after the true edges:
+    first order then fits with tau 3.5 % low and a tight interval. Two-real-pole,
+    set aside (its Q lies beyond its range), fits far better (AICc lower by
+    150, residuals 1.07 times smaller), so the first-order answer is refused as
+    not describing the capture. At three time constants it holds the truth.
+    Textbook RC response 1 - exp(-t/tau) per edge, superposed; 20 edges, 40 dB."""
+    for half_period_in_tau, described in ((2.0, False), (3.0, True)):
+        t, _, y, tau = rc_square_wave(20_000, 20, 1e-6, half_period_in_tau, sigma=0.01, seed=1)
+        result = fit_capture(capture(t, y))
+        assert result.describes_data is described
+        if described:
+            est = result.parameters["tau"]
+            assert est.ci95[0] <= tau <= est.ci95[1]

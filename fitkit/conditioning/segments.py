@@ -285,39 +285,42 @@ def _window_end(seg: StepSegment, segments: Sequence[StepSegment], sample_interv
     return min(float(seg.time[-1]), float(nxt.time[0]) - sample_interval)
 
 
-#: Edges back from each averaged edge whose tails are recorded (the first always,
-#: earlier ones while the windows between are unsettled; the fit's own limit
-#: for raw edges is fitkit.fitting.previous_tails.MAX_EARLIER_EDGES).
-MAX_PREVIOUS_EDGES = 9
+#: Most edges back whose still-settling responses are taken to reach a window.
+MAX_REACHING_EDGES = 9
+
+
+def reaching_edges(segments: Sequence[StepSegment], i: int) -> list[int]:
+    """Indices of the raw edges before raw edge i whose responses still reach its
+    window, nearest first: the previous edge when the two windows touch or
+    overlap (one record), and each earlier one while the windows keep touching
+    and the window after it is marked unsettled (its response still moving at
+    its end); at most :data:`MAX_REACHING_EDGES`."""
+    out: list[int] = []
+    j = i - 1
+    while j >= 0 and len(out) < MAX_REACHING_EDGES:
+        earlier, later = segments[j], segments[j + 1]
+        if (earlier.averaged_edges != 1 or later.averaged_edges != 1 or earlier.stop < later.start
+                or not earlier.edge_time < later.edge_time or (out and later.settled)):
+            break
+        out.append(j)
+        j -= 1
+    return out
 
 
 def _previous_edges(averaged: Sequence[StepSegment], segments: Sequence[StepSegment]
                     ) -> tuple[tuple[float, float, float], ...] | None:
     """For k = 1, 2, ...: (mean seconds from the k-th edge back, mean output step
-    V, mean input step V or NaN) over the ``averaged`` raw segments. The edge k
-    back counts while the windows from it on touch or overlap (as
-    :mod:`fitkit.fitting.previous_tails` takes them for a raw edge) and, beyond
-    the previous edge, while the windows between are unsettled; an edge without
-    it counts a step of 0. None when no averaged edge has a previous edge."""
+    V, mean input step V or NaN) over the ``averaged`` raw segments, the edges
+    back being those whose responses reach each one's window
+    (:func:`reaching_edges`, as :mod:`fitkit.fitting.previous_tails` takes them
+    for a raw edge); an edge without the k-th counts a step of 0. None when no
+    averaged edge has a previous edge."""
     order = {id(seg): i for i, seg in enumerate(segments)}
-    found: list[list[tuple[float, float, float]]] = []
+    found = []
     for seg in averaged:
         i = order.get(id(seg), 0)
-        chain = []
-        for k in range(1, MAX_PREVIOUS_EDGES + 1):
-            j = i - k
-            if j < 0:
-                break
-            earlier, later = segments[j], segments[j + 1]
-            if earlier.averaged_edges != 1 or earlier.stop < later.start or not earlier.edge_time < later.edge_time:
-                break
-            if k > 1 and later.settled:
-                break
-            size = earlier.step_size if math.isfinite(earlier.step_size) else earlier.final - earlier.baseline
-            both = later.input_before is not None and earlier.input_before is not None
-            chain.append((seg.edge_time - earlier.edge_time, size,
-                          later.input_before - earlier.input_before if both else math.nan))
-        found.append(chain)
+        found.append([(seg.edge_time - segments[j].edge_time, edge_step(segments, j),
+                       input_step(segments, j)) for j in reaching_edges(segments, i)])
     depth = max((len(c) for c in found), default=0)
     if depth == 0:
         return None
@@ -328,6 +331,21 @@ def _previous_edges(averaged: Sequence[StepSegment], segments: Sequence[StepSegm
                     float(np.sum([h[1] for h in have])) / len(found),
                     float(np.sum([h[2] for h in have])) / len(found)))
     return tuple(out)
+
+
+def edge_step(segments: Sequence[StepSegment], j: int) -> float:
+    """The output step (V) of raw edge j: its measured step size, else final - baseline."""
+    seg = segments[j]
+    return seg.step_size if math.isfinite(seg.step_size) else seg.final - seg.baseline
+
+
+def input_step(segments: Sequence[StepSegment], j: int) -> float:
+    """The input step (V) of raw edge j: the input's level before the next edge less
+    its level before this one; NaN when either is not measured or j is the last."""
+    if j + 1 >= len(segments):
+        return math.nan
+    after, before = segments[j + 1].input_before, segments[j].input_before
+    return after - before if after is not None and before is not None else math.nan
 
 
 def _nearest_samples(seg: StepSegment, at: np.ndarray, sample_interval: float

@@ -47,8 +47,8 @@ SELECTION_EDGES = 8
 REAL_POLES_ONLY = ("three-real-pole", "four-real-pole", "five-real-pole")
 #: A candidate set aside that lowers the criterion by more than the selection margin
 #: and leaves an RMS residual smaller by more than this factor shows a misfit of the
-#: chosen form of at least half the noise (sqrt(1.1^2 - 1)): see _outfitted.
-OUTFITTED_RATIO = 1.1
+#: chosen form of at least a quarter of the noise (sqrt(1.03^2 - 1)): see _outfitted.
+OUTFITTED_RATIO = 1.03
 #: RMS residual above this multiple of the noise earns a warning even when the form is kept
 #: (the adequacy gate, fitkit.fitting.adequacy, refuses far larger structured misfits).
 STRUCTURE_RATIO = 1.5
@@ -388,7 +388,7 @@ def _outfitted(chosen: Form, scores: Sequence) -> str:
     """The finding when a candidate set aside fits the capture far better than the
     chosen form ('' when none does): criterion lower by more than the selection
     margin and an RMS residual smaller by more than OUTFITTED_RATIO (the chosen
-    form then leaves a misfit of at least half the noise, which that candidate
+    form then leaves a misfit of at least a quarter of the noise, which that candidate
     explains). It is set aside for what its parameters say (a pole faster than a
     sample, Q at its range's end), but the chosen form, reported instead, misses
     something the data show: its numbers would be confidently wrong. (The chosen
