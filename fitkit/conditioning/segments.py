@@ -278,11 +278,18 @@ def _window_end(seg: StepSegment, segments: Sequence[StepSegment], sample_interv
     sample before the next window's first when the two overlap (as the joint fit
     cuts consecutive windows, fitkit.fitting.edge_windows), else its own last.
     An average over the whole window would hold the next edge's onset at its end."""
-    later = [s for s in segments if s.edge_time > seg.edge_time and s.start <= seg.stop]
+    later = [s for s in segments if windows_touch(seg, s)]
     if not later:
         return float(seg.time[-1])
     nxt = min(later, key=lambda s: s.edge_time)
     return min(float(seg.time[-1]), float(nxt.time[0]) - sample_interval)
+
+
+def windows_touch(earlier: StepSegment, later: StepSegment) -> bool:
+    """Raw windows of one record, in time order, that touch or overlap: the
+    later one starts before the earlier one stops."""
+    return (earlier.averaged_edges == 1 and later.averaged_edges == 1 and not earlier.stop < later.start
+            and earlier.edge_time < later.edge_time)
 
 
 #: Most edges back whose still-settling responses are taken to reach a window.
@@ -299,8 +306,7 @@ def reaching_edges(segments: Sequence[StepSegment], i: int) -> list[int]:
     j = i - 1
     while j >= 0 and len(out) < MAX_REACHING_EDGES:
         earlier, later = segments[j], segments[j + 1]
-        if (earlier.averaged_edges != 1 or later.averaged_edges != 1 or earlier.stop < later.start
-                or not earlier.edge_time < later.edge_time or (out and later.settled)):
+        if not windows_touch(earlier, later) or (out and later.settled):
             break
         out.append(j)
         j -= 1

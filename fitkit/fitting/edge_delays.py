@@ -38,7 +38,7 @@ from typing import Mapping
 import numpy as np
 from scipy import optimize
 
-from .joint_model import JointModel
+from .joint_model import DELAY_DIFFERENCE, JointModel
 from .stacked_edges import EdgeSums
 
 #: The delays are solved inside the shape search from this many edges on
@@ -63,8 +63,8 @@ CHECKED_STEP = 1e-6
 HALVINGS = 12
 #: Largest delay step of one sweep (scaled time units): a step beyond it is cut back.
 MAX_DELAY_STEP = 0.25
-#: Central-difference step of a delay (scaled time units) and of a log shape parameter.
-DELAY_STEP = 1e-5
+#: Central-difference step of a log shape parameter (a delay's is the joint model's
+#: DELAY_DIFFERENCE, for forms without closed-form time derivatives).
 SHAPE_STEP = 1e-6
 
 
@@ -100,7 +100,7 @@ def _levels(sums: EdgeSums, f: np.ndarray, target: np.ndarray) -> tuple[np.ndarr
 def _response_and_slope(joint: JointModel, shape: Mapping[str, float], delays: np.ndarray
                         ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Unit responses at the delays, and their first and second derivatives in the delay."""
-    return joint.stacked_responses_and_slopes(shape, delays, DELAY_STEP)
+    return joint.stacked_responses_and_slopes(shape, delays, DELAY_DIFFERENCE)
 
 
 def solve_delays(joint: JointModel, shape: Mapping[str, float], start: np.ndarray) -> DelayFit:

@@ -19,6 +19,7 @@ from typing import Sequence
 import numpy as np
 
 from ..conditioning.segment import StepSegment
+from ..conditioning.segments import windows_touch
 from .joint_model import JointModel
 from .least_squares import ModelFit
 
@@ -31,7 +32,7 @@ def consecutive_windows_cut(segments: Sequence[StepSegment]) -> tuple[StepSegmen
     segs = list(segments)
     for i in range(len(segs) - 1):
         seg, nxt = segs[i], segments[i + 1]
-        if seg.averaged_edges == 1 and nxt.averaged_edges == 1 and seg.stop >= nxt.start:
+        if windows_touch(seg, nxt):
             segs[i] = _cut_at(seg, float(nxt.time[0]))
     return tuple(segs)
 

@@ -89,6 +89,9 @@ class SegmentData:
         return float(self.u_initial_weights @ self.u)
 
 
+#: Central-difference step (scaled time) of a form without closed-form time derivatives
+#: (Form.step_derivatives) in the delay columns of the Jacobian.
+DELAY_DIFFERENCE = 1e-5
 #: Ideal-step joint models of at least this many edges evaluate all edges in one call.
 STACKED_FROM_EDGES = 2
 
@@ -116,7 +119,10 @@ class JointModel:
         #: least-squares weights: a bin mean of k samples has 1/k of the variance
         self.weights = np.sqrt(np.concatenate([d.counts for d in self.data]).astype(float))
         self.bounds = np.cumsum([0] + [d.y.size for d in self.data])
-        self.previous_steps = tuple(self._previous_step(i) for i in range(len(self.segments)))
+        #: per edge, (time since the previous edge, its step), scaled, or None
+        #: (:func:`.previous_tails.previous_step`)
+        self.previous_steps = tuple(previous_step(self.segments, i, self.scaling, self.measured_input)
+                                    for i in range(len(self.segments)))
         #: per edge, the (time since, step) of the edges before the previous one
         #: whose tails still reach its window (:func:`.previous_tails.earlier_steps`)
         self.earlier_steps = tuple(earlier_steps(self.segments, i, self.scaling, self.measured_input)
@@ -177,11 +183,6 @@ class JointModel:
         return (self.form.unit_step(d.t_nodes - t0, **shape) * d.node_weights).sum(axis=1)
 
     # -- the previous edge's tail ------------------------------------------------
-    def _previous_step(self, i: int) -> tuple[float, float] | None:
-        """(time since the previous edge, its step) for edge i, scaled, or None
-        (:func:`.previous_tails.previous_step`)."""
-        return previous_step(self.segments, i, self.scaling, self.measured_input)
-
     def follows_previous_delay(self, i: int) -> bool:
         """Whether edge i's tail moves with the fitted delay of edge i - 1 (a raw
         edge after a raw edge, ideal-step mode); an average's previous edges are
@@ -190,8 +191,8 @@ class JointModel:
                 and self.segments[i - 1].averaged_edges == 1)
 
     def previous_tail(self, i: int, shape: Mapping[str, float], values: Mapping[str, float]) -> np.ndarray | float:
-        """The previous edge's still-settling response over edge i's points (see
-        :meth:`_previous_step`): scaled volts in ideal-step mode, normalised input
+        """The previous edges' still-settling responses over edge i's points (see
+        :mod:`.previous_tails`): scaled volts in ideal-step mode, normalised input
         units (times the gain) in measured-input mode; 0.0 when there is none.
         ``values``: the internal parameter values, for the previous edge's fitted
         delay (scaled, from its reported time) when delays are free."""
@@ -278,12 +279,12 @@ class JointModel:
         st = self.stacked
         delays = self.delays_of(values)
         shape = self.shape_scaled(values)
-        f, slope, _ = self.stacked_responses_and_slopes(shape, delays, 1e-5)
+        f, slope, _ = self.stacked_responses_and_slopes(shape, delays, DELAY_DIFFERENCE)
         tail_slope = np.zeros(f.size)
         tail = self._tail_points(delays)
         if tail is not None:
             has, step, t = tail
-            _, d1, _ = self.form.step_and_derivatives(t, 1e-5, **shape)
+            _, d1, _ = self.form.step_and_derivatives(t, DELAY_DIFFERENCE, **shape)
             # d tail / d (previous edge's delay), where the tail follows that delay
             tail_slope[has] = -step * d1 * st.tail_follows_delay[st.edge_of_point[has]]
         out: dict[str, tuple[np.ndarray, np.ndarray]] = {}

@@ -169,11 +169,8 @@ def sample_model(ff: FormFit) -> JointModel | None:
 def code_step(ff: FormFit, joint: JointModel) -> float | None:
     """The code step (scaled volts) when the quantised likelihood applies to ``ff``
     over the samples of ``joint``, else None."""
-    steps = {s.quantisation_step for s in joint.segments}
-    if len(steps) != 1 or None in steps or joint.measured_input or not ff.converged:
-        return None
-    q = float(next(iter(steps))) / joint.scaling.volt_unit
-    if not q > 0:
+    q = _lattice_step(joint)
+    if q is None or joint.measured_input or not ff.converged:
         return None
     residual = joint.y - joint.evaluate(None, **ff.fit.values)
     if not math.sqrt(float(np.mean(residual**2))) < RESIDUAL_CODES * q:
@@ -189,12 +186,18 @@ def _noise_many_codes(ff: FormFit) -> bool:
     beyond twice the residual limit of :func:`code_step` in codes, or there is
     no single code step: the refit cannot apply (the margin covers the
     difference between a binned fit's estimate and the rms over every sample)."""
-    joint = getattr(ff.joint, "unwhitened", ff.joint)
+    q = _lattice_step(getattr(ff.joint, "unwhitened", ff.joint))
+    return q is None or (math.isfinite(ff.fit.s2) and math.sqrt(ff.fit.s2) >= 2.0 * RESIDUAL_CODES * q)
+
+
+def _lattice_step(joint: JointModel) -> float | None:
+    """The one code step (scaled volts) that every segment of ``joint`` is
+    quantised to, or None when they have none, several, or a zero one."""
     steps = {s.quantisation_step for s in joint.segments}
     if len(steps) != 1 or None in steps:
-        return True
+        return None
     q = float(next(iter(steps))) / joint.scaling.volt_unit
-    return q > 0 and math.isfinite(ff.fit.s2) and math.sqrt(ff.fit.s2) >= 2.0 * RESIDUAL_CODES * q
+    return q if q > 0 else None
 
 
 def quantised_refit(ff: FormFit, correlation: str = "auto") -> FormFit | None:

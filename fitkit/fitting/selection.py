@@ -35,6 +35,10 @@ SHORTER_THAN_SAMPLE = "is shorter than one sample interval"
 #: ... and promoted back only when its interval lies above this fraction of the sample interval.
 RESOLVED_FRACTION = 0.5
 CRITERION = "AICc"
+#: A candidate set aside that lowers the criterion by more than the selection margin
+#: and leaves an RMS residual smaller by more than this factor shows a misfit of the
+#: chosen form of at least a quarter of the noise (sqrt(1.03^2 - 1)): see outfitted_finding.
+OUTFITTED_RATIO = 1.03
 #: Default candidates, simplest first, used when they exist in FORMS.
 DEFAULT_CANDIDATES = ("first-order", "first-order-decay", "two-real-pole", "underdamped", "three-real-pole")
 #: Candidates for a response that returns to its baseline after each edge, simplest first: the
@@ -229,3 +233,25 @@ def _set_aside_beyond_range(candidates: Sequence[Candidate]) -> list[Candidate]:
 def rms_residual(ff: FormFit) -> float:
     """RMS residual per sample (V) of a fit."""
     return math.sqrt(ff.fit.rss / max(ff.fit.n, 1)) * ff.joint.scaling.volt_unit
+
+
+def outfitted_finding(chosen: Form, scores: Sequence[CandidateScore]) -> str:
+    """The finding when a candidate set aside fits the capture far better than the
+    chosen form ('' when none does): criterion lower by more than the selection
+    margin and an RMS residual smaller by more than OUTFITTED_RATIO (the chosen
+    form then leaves a misfit of at least a quarter of the noise, which that candidate
+    explains). It is set aside for what its parameters say (a pole faster than a
+    sample, Q at its range's end), but the chosen form, reported instead, misses
+    something the data show: its numbers would be confidently wrong. (The chosen
+    form lands there when the right one failed to converge.)"""
+    own = next((sc for sc in scores if sc.model == chosen.name), None)
+    if own is None or not math.isfinite(own.rms_residual):
+        return ""
+    for sc in scores:
+        if (sc.model != chosen.name and sc.converged and sc.delta < -MARGIN
+                and math.isfinite(sc.rms_residual) and own.rms_residual > OUTFITTED_RATIO * sc.rms_residual):
+            why = f" (set aside: {sc.note})" if sc.note else ""
+            return (f"the {chosen.name} form does not describe this capture: {sc.model}{why} leaves residuals "
+                    f"{own.rms_residual / sc.rms_residual:.1f} times smaller, {CRITERION} lower by {-sc.delta:.0f}; "
+                    f"the {chosen.name} residuals hold a misfit beyond the noise; its numbers are not measurements")
+    return ""

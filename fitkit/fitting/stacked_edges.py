@@ -26,7 +26,7 @@ class StackedEdges:
     edge_of_point: (n,) the edge each point belongs to;
     t_point: (n,) representative scaled time of each point;
     tail_steps, tail_deltas: per edge, the previous edge's step and the time since
-        it (:meth:`JointModel._previous_step`; step 0 where there is none), or
+        it (:attr:`JointModel.previous_steps`; step 0 where there is none), or
         None when no edge has a previous tail;
     tail_follows_delay: per edge, 1.0 when its tail moves with the previous
         edge's fitted delay (:meth:`JointModel.follows_previous_delay`), else 0.0;

@@ -33,8 +33,8 @@ from .estimates import derived_estimates, level_estimates, shape_estimates
 from .noise_record import NoiseRecord
 from .response_shape import moves_wrong_way, returns_to_baseline
 from .quantised import ROUNDED_GAUSSIAN, quantised_refit
-from .selection import (CRITERION, FALLBACK_CANDIDATES, MARGIN, Candidate, admissibility, choose,
-                        default_candidates, needs_fallback)
+from .selection import (CRITERION, FALLBACK_CANDIDATES, Candidate, admissibility, choose, default_candidates,
+                        needs_fallback, outfitted_finding)
 
 #: Above this many samples per segment, candidate forms are compared on bins
 #: of at most this many points per segment (see fit_segments).
@@ -45,10 +45,6 @@ SELECTION_POINTS_PER_SEGMENT = 1000
 SELECTION_EDGES = 8
 #: Forms of real poles alone (no zero): their step response rises without overshoot.
 REAL_POLES_ONLY = ("three-real-pole", "four-real-pole", "five-real-pole")
-#: A candidate set aside that lowers the criterion by more than the selection margin
-#: and leaves an RMS residual smaller by more than this factor shows a misfit of the
-#: chosen form of at least a quarter of the noise (sqrt(1.03^2 - 1)): see _outfitted.
-OUTFITTED_RATIO = 1.03
 #: RMS residual above this multiple of the noise earns a warning even when the form is kept
 #: (the adequacy gate, fitkit.fitting.adequacy, refuses far larger structured misfits).
 STRUCTURE_RATIO = 1.5
@@ -165,7 +161,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
     shape, notes = shape_estimates(final, intervals)
     chosen = Candidate(chosen.form, final, shape, True, "")
     result = _build(chosen, scores, reason, sel_warn + notes + list(warnings), file, segments, derived)
-    outfitted = _outfitted(chosen.form, scores) if result.describes_data else ""
+    outfitted = outfitted_finding(chosen.form, scores) if result.describes_data else ""
     if outfitted:
         result = replace(result, adequacy=replace(result.adequacy, describes_data=False, finding=outfitted))
     if not result.describes_data:
@@ -382,28 +378,6 @@ def _fitted_segments(ff: FormFit) -> tuple[FittedSegment, ...]:
         out.append(FittedSegment(time=time, data=data, fitted=sc.volt_origin + piece * sc.volt_unit,
                                  edge_time=seg.edge_time, direction=seg.direction))
     return tuple(out)
-
-
-def _outfitted(chosen: Form, scores: Sequence) -> str:
-    """The finding when a candidate set aside fits the capture far better than the
-    chosen form ('' when none does): criterion lower by more than the selection
-    margin and an RMS residual smaller by more than OUTFITTED_RATIO (the chosen
-    form then leaves a misfit of at least a quarter of the noise, which that candidate
-    explains). It is set aside for what its parameters say (a pole faster than a
-    sample, Q at its range's end), but the chosen form, reported instead, misses
-    something the data show: its numbers would be confidently wrong. (The chosen
-    form lands there when the right one failed to converge.)"""
-    own = next((sc for sc in scores if sc.model == chosen.name), None)
-    if own is None or not math.isfinite(own.rms_residual):
-        return ""
-    for sc in scores:
-        if (sc.model != chosen.name and sc.converged and sc.delta < -MARGIN
-                and math.isfinite(sc.rms_residual) and own.rms_residual > OUTFITTED_RATIO * sc.rms_residual):
-            why = f" (set aside: {sc.note})" if sc.note else ""
-            return (f"the {chosen.name} form does not describe this capture: {sc.model}{why} leaves residuals "
-                    f"{own.rms_residual / sc.rms_residual:.1f} times smaller, {CRITERION} lower by {-sc.delta:.0f}; "
-                    f"the {chosen.name} residuals hold a misfit beyond the noise; its numbers are not measurements")
-    return ""
 
 
 def _alternative_forms(chosen: Form, candidates: Sequence[Candidate],

@@ -36,7 +36,7 @@ from typing import Callable, Mapping, Sequence
 import numpy as np
 from scipy import special
 
-from .edge_blocks import edge_batches
+from .edge_blocks import EdgeBatch, edge_batches
 
 #: Ljung-Box test level and number of lags.
 LJUNG_BOX_ALPHA = 0.01
@@ -105,7 +105,8 @@ def _lagged_sums(x: np.ndarray, max_lag: int) -> np.ndarray:
     return out
 
 
-def white_noise_shortfall(jacobian, bounds: Sequence[int], bread: np.ndarray, max_lag: int) -> np.ndarray:
+def white_noise_shortfall(jacobian, bounds: Sequence[int], bread: np.ndarray, max_lag: int,
+                          batches: Sequence[EdgeBatch] | None = None) -> np.ndarray:
     """How far below zero the pooled residual autocorrelation lies at lags
     0..min(max_lag, LJUNG_BOX_LAGS) when the noise is white, for the test of
     :func:`ljung_box_correlated` (zero beyond): residuals r = (I - P) e of
@@ -116,7 +117,8 @@ def white_noise_shortfall(jacobian, bounds: Sequence[int], bread: np.ndarray, ma
     """
     n, p = jacobian.shape
     lags = min(max_lag, LJUNG_BOX_LAGS)
-    traces = sum((batch.hat_lag_sums(bread, lags) for batch in edge_batches(jacobian, bounds)),
+    batches = edge_batches(jacobian, bounds) if batches is None else batches
+    traces = sum((batch.hat_lag_sums(bread, lags) for batch in batches),
                  np.zeros(lags + 1))
     out = np.zeros(max_lag + 1)
     # sum_t P[t, t] is p for a well-conditioned fit; far from it, bread is not
@@ -244,7 +246,7 @@ def lagged_products(u: np.ndarray, v: np.ndarray, max_lag: int) -> np.ndarray:
 
 
 def projection_bias(gamma: np.ndarray, jacobian: np.ndarray, bounds: Sequence[int],
-                    bread: np.ndarray, max_lag: int) -> np.ndarray:
+                    bread: np.ndarray, max_lag: int, batches: Sequence[EdgeBatch] | None = None) -> np.ndarray:
     """How much the pooled residual autocovariance falls short of the noise's.
 
     Residuals are r = (I - P) e with P = J (J^T J)^-1 J^T, so for noise of
@@ -259,7 +261,7 @@ def projection_bias(gamma: np.ndarray, jacobian: np.ndarray, bounds: Sequence[in
     # edges: a few per edge), edges of similar length in one batch
     # (:mod:`.edge_blocks`); with u = J bread and v = Sigma J, the terms are
     # sums over those columns only, and u w u^T = J (bread w bread) J^T.
-    batches = edge_batches(jacobian, bounds)
+    batches = edge_batches(jacobian, bounds) if batches is None else batches
     w = np.zeros((p, p))
     sigma_j = []
     for batch in batches:
@@ -294,15 +296,18 @@ class NoiseAutocovariance:
 
 
 def noise_autocovariance(jacobian: np.ndarray, residual_pieces: Sequence[np.ndarray], bounds: Sequence[int],
-                         bread: np.ndarray, max_lag: int) -> NoiseAutocovariance:
+                         bread: np.ndarray, max_lag: int, batches: Sequence[EdgeBatch] | None = None
+                         ) -> NoiseAutocovariance:
     """Autocovariance of the noise from the residuals of a least-squares fit.
 
     The residual autocovariance falls short of the noise's by the projection
     bias (the fit's parameters absorb part of the slow noise); it is added back
     in :data:`PROJECTION_PASSES` passes, each with the bias computed from the
     AR model of the previous estimate (:func:`autoregressive_autocorrelation`).
-    jacobian: weighted Jacobian (n, p); bread: (J^T J)^-1.
+    jacobian: weighted Jacobian (n, p); bread: (J^T J)^-1; batches: its
+    :func:`.edge_blocks.edge_batches` over ``bounds`` when already made.
     """
+    batches = edge_batches(jacobian, bounds) if batches is None else batches
     n = int(sum(len(r) for r in residual_pieces))
     p = jacobian.shape[1]
     rho = residual_autocorrelation(residual_pieces, max_lag)
@@ -311,7 +316,7 @@ def noise_autocovariance(jacobian: np.ndarray, residual_pieces: Sequence[np.ndar
     gamma = model_rho * gamma0 * n / max(n - p, 1)
     acov = rho * gamma0
     for _ in range(PROJECTION_PASSES):
-        bias = projection_bias(gamma, jacobian, bounds, bread, max_lag)
+        bias = projection_bias(gamma, jacobian, bounds, bread, max_lag, batches)
         corrected_acov = rho * gamma0 + bias
         if not corrected_acov[0] > 0:
             break
@@ -341,10 +346,11 @@ def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequen
     if p == 0 or not np.all(np.isfinite(covariance)):
         return none
     bread = covariance / s2
-    if mode == "auto" and not ljung_box_correlated(rho + white_noise_shortfall(jacobian, jac_pieces_bounds, bread,
-                                                                               rho.size - 1), n):
+    batches = edge_batches(jacobian, jac_pieces_bounds)  # once, for every sum over the edges below
+    if mode == "auto" and not ljung_box_correlated(
+            rho + white_noise_shortfall(jacobian, jac_pieces_bounds, bread, rho.size - 1, batches), n):
         return none
-    noise = noise_autocovariance(jacobian, residual_pieces, jac_pieces_bounds, bread, max_lag)
+    noise = noise_autocovariance(jacobian, residual_pieces, jac_pieces_bounds, bread, max_lag, batches)
     model_rho, order, gamma = noise.model_rho, noise.order, noise.model_autocovariance
     # lags beyond which the model autocorrelation is negligible
     significant = np.nonzero(np.abs(model_rho) > 1e-3)[0]
@@ -352,7 +358,7 @@ def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequen
     # meat = sum over edges of J^T Sigma J, Sigma the Toeplitz matrix of gamma
     # cut at m_max (= gamma_0 J^T J + sum_k gamma_k (C(k) + C(k)^T)), by FFT
     meat = np.zeros((p, p))
-    for batch in edge_batches(jacobian, jac_pieces_bounds):
+    for batch in batches:
         batch.add_inner_products(batch.toeplitz_times(gamma[:m_max + 1]), meat)
     meat = 0.5 * (meat + meat.T)
     variance_ratio = max(1.0, 1.0 + 2.0 * float(np.sum(model_rho[1:m_max + 1])))
