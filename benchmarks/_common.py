@@ -41,6 +41,20 @@ def _run(cmd: Sequence[str]) -> str:
         return ""
 
 
+def corpus_study_output(description: str, argv: list[str] | None, corpus: Path) -> Path | None:
+    """The output folder of a study of the real captures (its --out option, default
+    benchmarks/results), or None, said on stdout, when the captures are not at ``corpus``."""
+    import argparse
+
+    parser = argparse.ArgumentParser(description=description)
+    parser.add_argument("--out", type=Path, default=Path(__file__).resolve().parent / "results")
+    args = parser.parse_args(argv)
+    if not corpus.exists():
+        print(f"reference captures not found at {corpus}; nothing to study")
+        return None
+    return args.out
+
+
 def load_average() -> str:
     """`uptime` load averages (1, 5, 15 min) as a string; other engineers share the cores."""
     try:

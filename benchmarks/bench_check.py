@@ -7,6 +7,7 @@ kind x time unit x ADC bits, plus nominal boards of each kind.
     python benchmarks/bench_check.py --sample 24     # a reproducible random sample of the grid
     python benchmarks/bench_check.py --sample 24 --budget 240   # ... stopping after 240 s
     python benchmarks/bench_check.py --kinds "measured input,output only" --sample 40
+    python benchmarks/bench_check.py --resume        # go on with a stopped run of the same options
 
 The covering subset keeps every board (topology x part x fault, swaps, nominal)
 in every capture kind, and rotates the time unit and the ADC bits across those
@@ -32,7 +33,9 @@ among the tied leaders at all (or whose swap is named); the share whose
 implied value's 95 % interval holds the truth, the share of nominal boards
 that fail or list a part outside, the number of reported values at a search
 bound, and the mean seconds per check. Writes benchmarks/results/check.json
-and check.md.
+and check.md for the covering subset, check_sample.* for a sample, check_grid.json and
+check_grid.md for the full grid, each with its rows log (.rows.jsonl) that
+--resume goes on from.
 """
 
 from __future__ import annotations
@@ -150,8 +153,8 @@ def run_cell(cell: tuple, seed: int, folder: Path) -> dict:
     except Exception as exc:  # noqa: BLE001 - a study records every outcome
         # the message names the temporary file; the results keep only its name (no machine path)
         message = str(exc).replace(f"{folder}/", "")
-        return {"cell": list(map(str, cell)), "error": f"{type(exc).__name__}: {message}"}
-    out = {"cell": list(map(str, cell)), "seconds": time.perf_counter() - t0, "verdict": r.verdict,
+        return {"cell": list(map(str, cell)), "seed": seed, "error": f"{type(exc).__name__}: {message}"}
+    out = {"cell": list(map(str, cell)), "seed": seed, "seconds": time.perf_counter() - t0, "verdict": r.verdict,
            "at_bound": sum(1 for s in r.suspects if s.value is not None and s.nominal
                            and abs(math.log(s.value / s.nominal)) >= math.log(PLAUSIBLE_SPAN))}
     if fault == "nominal":
@@ -224,7 +227,7 @@ def choose(args) -> tuple[list[tuple], int]:
 def run_cells(cells: list[tuple[int, tuple]], seed: int, workers: int, budget: float, log: Path) -> list[dict]:
     """Check every (index, cell) (on ``workers`` processes), one JSON line per cell appended to
     ``log`` as it ends; a cell's seed is its index among the chosen cells, so the rows do not
-    depend on the workers or on where a run started (--start)."""
+    depend on the workers or on where a run started (--start, --resume)."""
     rows, start = [], time.perf_counter()
     with tempfile.TemporaryDirectory() as tmp, ProcessPoolExecutor(max_workers=workers) as pool:
         pending = {pool.submit(run_cell, cell, 1000 * seed + i, Path(tmp)) for i, cell in cells}
@@ -240,18 +243,19 @@ def run_cells(cells: list[tuple[int, tuple]], seed: int, workers: int, budget: f
     return rows
 
 
-def write_report(rows: list[dict], n_grid: int, elapsed: float, workers: int, cover: bool) -> list[str]:
+def write_report(rows: list[dict], n_grid: int, elapsed: float, workers: int, cover: bool, stem: str) -> list[str]:
     table = summarise(rows)
     out = ROOT / "benchmarks" / "results"
-    (out / "check.json").write_text(json.dumps({"grid_cells": n_grid, "covering_subset": cover, "checked": len(rows),
+    (out / f"{stem}.json").write_text(json.dumps({"grid_cells": n_grid, "covering_subset": cover, "checked": len(rows),
                                                 "seconds": elapsed, "workers": workers,
                                                 "by_capture_kind": table, "rows": rows}, indent=2))
     pct = lambda x: "-" if x is None else f"{x:.0%}"  # noqa: E731
-    per = elapsed * workers / max(len(rows), 1)
+    timed = [r["seconds"] for r in rows if "seconds" in r]
+    per = sum(timed) / max(len(timed), 1)   # the checks' own times: a resumed run's rows count too
     lines = ["# Board-check study", "",
-             f"{len(rows)} of {n_grid} grid cells checked ({'covering subset' if cover else 'grid'}) in "
-             f"{elapsed:.0f} s on {workers} worker(s) ({per:.1f} worker-s a check; the full grid would take "
-             f"about {n_grid * per / 3600:.1f} worker-hours at that rate).", "",
+             f"{len(rows)} of {n_grid} grid cells checked ({'covering subset' if cover else 'grid'}); "
+             f"this run {elapsed:.0f} s on {workers} worker(s); {per:.1f} s a check (the full grid is "
+             f"about {n_grid * per / 3600:.1f} worker-hours of checks).", "",
              "| capture | faulty | right part first | first or interchangeable tie | among tied leaders | "
              "interval holds truth | nominal | nominal flagged | values at a bound | errors | s per check |",
              "| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |"]
@@ -268,7 +272,7 @@ def write_report(rows: list[dict], n_grid: int, elapsed: float, workers: int, co
     lines += [f"- {' / '.join(r['cell'])}: " + (r.get("error") or f"{r.get('verdict')}"
               + ("" if r.get("leads", True) else ", not a leader")
               + ("" if r.get("holds", True) else ", interval misses the truth")) for r in misses] or ["- none"]
-    (out / "check.md").write_text("\n".join(lines) + "\n")
+    (out / f"{stem}.md").write_text("\n".join(lines) + "\n")
     return lines
 
 
@@ -280,6 +284,8 @@ def main() -> None:
     parser.add_argument("--sample", type=int, default=0, help="check a random sample of this many cells (0: all)")
     parser.add_argument("--start", type=int, default=0,
                         help="skip the first N chosen cells (continue a run; the rows log is appended to)")
+    parser.add_argument("--resume", action="store_true",
+                        help="go on with a stopped run: skip the cells its rows log already holds")
     parser.add_argument("--limit", type=int, default=0, help="check only the first N chosen cells (0: all)")
     parser.add_argument("--budget", type=float, default=0.0, help="stop after this many seconds (0: none)")
     parser.add_argument("--workers", type=int, default=1, help="processes checking cells at once")
@@ -290,13 +296,18 @@ def main() -> None:
     out = ROOT / "benchmarks" / "results"
     out.mkdir(parents=True, exist_ok=True)
     start = time.perf_counter()
-    log = out / "check.rows.jsonl"
-    if not args.start:
+    stem = "check" if args.cover else "check_sample" if args.sample else "check_grid"
+    log = out / f"{stem}.rows.jsonl"
+    earlier = [json.loads(line) for line in log.read_text().splitlines() if line.strip()] \
+        if (args.start or args.resume) and log.exists() else []
+    if args.resume:   # a cell's seed names it: 1000 * seed + its index among the chosen cells
+        done = {row["seed"] for row in earlier if "seed" in row}
+        cells = [(i, cell) for i, cell in cells if 1000 * args.seed + i not in done]
+    if not earlier:
         log.write_text("")
-    rows = run_cells(cells, args.seed, max(args.workers, 1), args.budget, log)
-    if args.start:   # the report covers every row of the log: the earlier part of the run too
-        rows = [json.loads(line) for line in log.read_text().splitlines() if line.strip()]
-    print("\n".join(write_report(rows, n_grid, time.perf_counter() - start, max(args.workers, 1), args.cover)))
+    rows = earlier + run_cells(cells, args.seed, max(args.workers, 1), args.budget, log)
+    elapsed = time.perf_counter() - start   # this run's time only (a resumed run's rate is per its own cells)
+    print("\n".join(write_report(rows, n_grid, elapsed, max(args.workers, 1), args.cover, stem)))
 
 
 if __name__ == "__main__":

@@ -9,7 +9,6 @@ ranges of tests/support/real_corpus.py (from that folder's SOURCE.md), and the v
 
 from __future__ import annotations
 
-import argparse
 import json
 import sys
 import time
@@ -18,6 +17,7 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent / "tests"))
 
+from _common import corpus_study_output  # noqa: E402
 from support.real_corpus import CASES, judge, run_fitkit  # noqa: E402
 
 
@@ -26,11 +26,8 @@ def _fmt(x: float | None) -> str:
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--out", type=Path, default=HERE / "results")
-    args = parser.parse_args(argv)
-    if not CASES[0].path.parent.exists():
-        print(f"reference captures not found at {CASES[0].path.parent}; nothing to study")
+    folder = corpus_study_output(__doc__.splitlines()[0], argv, CASES[0].path.parent)
+    if folder is None:
         return 1
     rows = []
     for case in CASES:
@@ -44,8 +41,8 @@ def main(argv: list[str] | None = None) -> int:
                      "verdict": out.verdict, "why": out.why, "message": out.message, "seconds": round(seconds, 2)})
         print(f"{out.verdict:8s} {case.file}: {out.why}", flush=True)
     counts = {v: sum(r["verdict"] == v for r in rows) for v in ("right", "refused", "wrong")}
-    args.out.mkdir(parents=True, exist_ok=True)
-    (args.out / "real_captures.json").write_text(json.dumps({"counts": counts, "rows": rows}, indent=1))
+    folder.mkdir(parents=True, exist_ok=True)
+    (folder / "real_captures.json").write_text(json.dumps({"counts": counts, "rows": rows}, indent=1))
     lines = ["| file | options | exit | form | answer | expected | verdict |", "|---|---|---|---|---|---|---|"]
     for r in rows:
         answer = ", ".join(f"{k} {_fmt(v)}" for k, v in r["answer"].items()) or r["message"][:90]
@@ -55,7 +52,7 @@ def main(argv: list[str] | None = None) -> int:
                      f"{expected} | {r['verdict']} |")
     lines.append("")
     lines.append(f"right {counts['right']}, refused naming a fix {counts['refused']}, wrong {counts['wrong']}")
-    (args.out / "real_captures.md").write_text("\n".join(lines) + "\n")
+    (folder / "real_captures.md").write_text("\n".join(lines) + "\n")
     print(lines[-1])
     return 0
 

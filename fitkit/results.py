@@ -142,16 +142,22 @@ class FitDiagnostics:
 @dataclass(frozen=True)
 class EdgeAdequacy:
     """The residuals of one edge: RMS per sample (V) overall, before the fitted response
-    settles (baseline and moving response) and in the settled tail (quiet)."""
+    settles (baseline and moving response) and in the settled tail (quiet); and how far the
+    residual moves across the quiet tail (a straight line through it), as a share of the
+    fitted response's swing and in standard errors (NaN when the tail is too short)."""
 
     edge_time: float
     rms: float
     moving_rms: float
     quiet_rms: float
+    quiet_drift_share: float = math.nan
+    quiet_drift_z: float = math.nan
 
     def to_dict(self) -> dict[str, Any]:
         return {"edge_time": json_number(self.edge_time), "rms": json_number(self.rms),
-                "moving_rms": json_number(self.moving_rms), "quiet_rms": json_number(self.quiet_rms)}
+                "moving_rms": json_number(self.moving_rms), "quiet_rms": json_number(self.quiet_rms),
+                "quiet_drift_share": json_number(self.quiet_drift_share),
+                "quiet_drift_z": json_number(self.quiet_drift_z)}
 
 
 @dataclass(frozen=True)

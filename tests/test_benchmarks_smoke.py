@@ -149,3 +149,23 @@ def test_cli_fuzz_study_runs_and_scores_its_cases(tmp_path):
     assert set(data["counts"]) == {"internal", "traceback_or_warning", "long_error", "undocumented_status",
                                    "timeout"}
     assert data["counts"]["internal"] == 0
+
+
+def test_real_crops_study_tells_an_honest_interval_from_a_confident_wrong_one():
+    """benchmarks/study_real_crops.py: a value outside its range is "wide" when its interval
+    reaches the range, "wrong" when it does not; a first-order tau stands for tau1."""
+    import study_real_crops
+    from support.real_corpus import CASES
+
+    case = next(c for c in CASES if c.file.endswith("scope_6.csv"))   # tau1 160-205 us, tau2 45-70 us
+
+    def run(model, **params):
+        table = {k: {"value": v, "ci95": ci, "determined": True} for k, (v, ci) in params.items()}
+        return json.dumps({"model": model, "parameters": table, "derived": {}})
+
+    assert study_real_crops.judge(case, 0, run("two-real-pole", tau1=(180e-6, [170e-6, 190e-6]),
+                                               tau2=(50e-6, [40e-6, 60e-6])), "")[0] == "right"
+    assert study_real_crops.judge(case, 0, run("first-order", tau=(215e-6, [150e-6, 300e-6])), "")[0] == "wide"
+    assert study_real_crops.judge(case, 0, run("first-order", tau=(260e-6, [250e-6, 270e-6])), "")[0] == "wrong"
+    assert study_real_crops.judge(case, 6, "", "fitkit: FILE: does not describe")[0] == "refused"
+    assert study_real_crops.judge(case, 70, "", "fitkit: internal error: ...")[0] == "internal"

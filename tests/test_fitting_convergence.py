@@ -78,3 +78,18 @@ def test_auto_selection_converges_on_ringing_and_slow_responses():
     for q, expected in ((5.0, "underdamped"), (30.0, "underdamped")):
         seg = _segment(second_order_tf(1e6, q), 1e-6, 1 / (1e6 * 40), 4000, 5, edge_error=0.1e-6)
         assert fit_segments([seg], "auto", derived=False).model == expected
+
+
+def test_a_runaway_time_constant_is_put_in_order_without_overflow():
+    """A candidate fit whose time constant ran away (a log of 900: exp overflows a float) goes
+    through the check of its form's canonical order at the joint model's clip instead of raising
+    OverflowError (a half record of a real RLC capture crashed this way)."""
+    from dataclasses import replace
+
+    from fitkit.fitting.form_fit import _canonical, fit_form
+    from fitkit.forms import get_form
+
+    seg = _segment(two_pole_tf(1e-3, 2e-4), 1e-3, 2e-5, 500, 3, edge_error=0.0)
+    fitted = fit_form([seg], get_form("two-real-pole"))
+    runaway = replace(fitted.fit, values={**fitted.fit.values, "log_tau0": 900.0})
+    assert _canonical(fitted.joint, runaway).values == runaway.values

@@ -16,9 +16,11 @@ import tempfile
 from pathlib import Path
 
 import numpy as np
-from hypothesis import HealthCheck, given, settings
+import pytest
+from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
+from fitkit.errors import CaptureError
 from fitkit.io import load_capture
 
 SETTINGS = dict(deadline=None, derandomize=True, max_examples=25,
@@ -103,6 +105,7 @@ def test_date_and_time_text_is_time_from_the_first_sample(fmt, step_ms, start, s
 @given(step_ms=st.integers(1, 50), start_ms=st.integers(0, 10_000), seed=st.integers(0, 1000),
        delim=st.sampled_from([",", " ; ", "\t"]))
 def test_whole_milliseconds_without_a_unit_are_read_as_ms_and_warned(step_ms, start_ms, seed, delim):
+    assume(not (step_ms == 1 and start_ms <= 1))   # 0, 1, 2, ... may count samples: refused, below
     n = 60
     stamps = start_ms + step_ms * np.arange(n)
     v = _response(n, seed)
@@ -163,6 +166,23 @@ def test_counts_at_an_adc_end_code_are_called_saturated(bits, clipped, seed):
     top = 2 ** bits - 1
     codes = np.round(np.linspace(0.2, 1.0, n) * top).astype(int)
     codes[n - clipped:] = top  # a smooth rise into the converter's top code
-    cap = load_capture(_write([f"{i};{c}" for i, c in enumerate(codes)]))
+    cap = load_capture(_write([f"{i};{c}" for i, c in enumerate(codes)]), sample_interval=1e-3)
     assert any(f"the top code of a {bits}-bit converter, for {clipped + (codes[:n - clipped] == top).sum()} samples"
                in w for w in cap.warnings)
+
+
+@pytest.mark.parametrize("first", [0, 1])
+def test_a_column_that_counts_samples_is_refused_without_an_interval_and_read_with_one(first):
+    """0, 1, 2, ... (a scope's sample index, or a 1 ms counter: the file cannot say) is refused
+    naming the fix; with --sample-interval it is sample number x interval; with --time-unit ms,
+    milliseconds."""
+    n = 60
+    v = _response(n, 3)
+    path = _write(["X,CH1"] + [f"{first + i},{x:.5f}" for i, x in enumerate(v)])
+    with pytest.raises(CaptureError, match="counts 0, 1, 2") as err:
+        load_capture(path)
+    assert "--sample-interval" in err.value.hint
+    cap = load_capture(path, sample_interval=2e-6)
+    np.testing.assert_allclose(cap.time, 2e-6 * (first + np.arange(n)), rtol=1e-12)
+    assert not any("ignored" in w for w in cap.warnings)
+    np.testing.assert_allclose(load_capture(path, time_unit="ms").time, 1e-3 * (first + np.arange(n)))

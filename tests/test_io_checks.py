@@ -207,7 +207,7 @@ def test_stated_interval_that_disagrees_with_the_time_column_is_reported(tmp_pat
 
 
 def test_row_with_extra_fields_far_below_the_header_names_its_line(tmp_path):
-    lines = ["# comment", "", "t,v", ""] + [f"{k},{k % 7}" for k in range(1000)]
+    lines = ["# comment", "", "t,v", ""] + [f"{2 * k},{k % 7}" for k in range(1000)]
     lines[703] += ",5"  # file line 704
     p = tmp_path / "extra.csv"
     p.write_text("\n".join(lines) + "\n")

@@ -105,9 +105,9 @@ def _capture_arrays(path):
 @pytest.mark.parametrize("text", [
     "Time (s),A (V),B (mV)\n" + "".join(f"{k * 1e-6:.6e},{k % 7 - 3.5:.4f},{k % 5:.3f}\n" for k in range(3000)),
     "x-axis,1\nsecond,Volt\n" + "".join(f"{k * 4e-8 - 1e-5:.5e},{(k % 50) / 25 - 1:.3f}\n" for k in range(2000)),
-    "t;v\n" + "".join(f"{k};{k * 0.25 - 3}\n" for k in range(500)),  # integer cells
-    "t,v\n" + "".join(f"{k},{'' if k == 100 else k * 0.5}\n" for k in range(500)),  # one empty cell
-    "t,v\n" + "".join(f"{k},{k * 0.5}\n" for k in range(500)) + "\n\n",  # blank lines at the end
+    "t;v\n" + "".join(f"{3 * k};{k * 0.25 - 3}\n" for k in range(500)),  # integer cells
+    "t,v\n" + "".join(f"{3 * k},{'' if k == 100 else k * 0.5}\n" for k in range(500)),  # one empty cell
+    "t,v\n" + "".join(f"{3 * k},{k * 0.5}\n" for k in range(500)) + "\n\n",  # blank lines at the end
 ])
 def test_capture_is_the_same_with_either_reader(tmp_path, monkeypatch, text):
     path = tmp_path / "c.csv"
@@ -125,7 +125,7 @@ def test_capture_is_the_same_with_either_reader(tmp_path, monkeypatch, text):
 def test_large_block_goes_to_pandas(tmp_path, monkeypatch):
     """Above PLAIN_PARTS parts, pandas' threaded reader is used (numpy's is single-threaded)."""
     path = tmp_path / "big.csv"
-    path.write_text("t,v\n" + "".join(f"{k},{k * 0.5}\n" for k in range(3000)))
+    path.write_text("t,v\n" + "".join(f"{3 * k},{k * 0.5}\n" for k in range(3000)))
     calls = []
     monkeypatch.setattr(bulk, "PART_BYTES", 1000)
     monkeypatch.setattr(bulk, "parse_plain_block", lambda *a, **k: calls.append(1))
@@ -137,7 +137,7 @@ def test_large_block_goes_to_pandas(tmp_path, monkeypatch):
 @pytest.mark.parametrize("text", [
     "Time (s),A (V),B (mV)\n" + "".join(f"{k * 1e-6:.6e},{k % 7 - 3.5:.4f},{k % 5:.3f}\n" for k in range(3000)),
     "x-axis,1\n\nsecond,Volt\n" + "".join(f"{k * 4e-8 - 1e-5:.5e},{(k % 50) / 25 - 1:.3f}\n" for k in range(2000)),
-    "t,v\r\n" + "".join(f"{k},{'' if k == 100 else k * 0.5}\r\n" for k in range(500)),  # CR LF, one empty cell
+    "t,v\r\n" + "".join(f"{3 * k},{'' if k == 100 else k * 0.5}\r\n" for k in range(500)),  # CR LF, one empty cell
 ])
 def test_reading_by_path_equals_reading_in_slices(tmp_path, monkeypatch, text):
     """pandas on the path itself (fast) and the sliced reader (exact error lines) agree value for value."""
@@ -156,7 +156,7 @@ def test_reading_by_path_is_declined_when_the_first_row_does_not_match(tmp_path)
     # an offset that lands on the header instead of the first data line: the
     # check against the first line parsed on its own refuses the result
     path = tmp_path / "c.csv"
-    path.write_text("t,v\n" + "".join(f"{k},{k * 0.5}\n" for k in range(50)))
+    path.write_text("t,v\n" + "".join(f"{3 * k},{k * 0.5}\n" for k in range(50)))
     kwargs = bulk.read_options(2, [0, 1], ",", ".", None)
     assert bulk._read_whole_by_path(str(path), encoding="utf-8", offset=0, columns=[0, 1], kwargs=kwargs,
                                     delimiter=",", decimal=".") is None

@@ -29,6 +29,7 @@ from .noise import NoiseEstimate, estimate_noise
 from .roles import assign_roles
 from .quality import MAX_CLIPPED_SHARE, clipped_error, clipped_runs, clipped_share, no_edge_error, segment_flags
 from .segment import StepSegment
+from .record_ends import record_ends, rest_band
 from .segments import average_segments, cut_segments, window_bounds
 
 
@@ -239,6 +240,13 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
         bounds = [window_bounds(time, context)[context.index(edges[0])]]
         decisions.append(f"the window of the forced edge is bounded by {len(neighbours)} other edge(s) "
                          "found in the record")
+    if bounds is None:
+        bounds = window_bounds(time, edges)
+    ends = record_ends(time, out_ch.values, edges, bounds[0][0],
+                       rest_band(out_ch.values, out_noise.rms, out_noise.quantisation_step),
+                       edges_in_output=edge_ch is out_ch and search.by_levels and pulse_width is None)
+    bounds = [(ends.first_start, bounds[0][1]), *bounds[1:]]
+    bounds[-1] = (bounds[-1][0], min(bounds[-1][1], ends.last_stop))
     segments = cut_segments(time, out_ch.values, in_values, edges, channel_noise=out_noise.rms,
                             quantisation_step=out_noise.quantisation_step, settling_band=settling_band,
                             bounds=bounds, sample_interval=dt)
@@ -257,7 +265,7 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
     segments = tuple(replace(s, flags=s.flags + segment_flags(s, m, clipped=clipped, pulse=pulses,
                                                              first=i == 0 and s.averaged_edges == 1))
                      for i, (s, m) in enumerate(zip(segments, metrics)))
-    flags: list[str] = [spike_note] if spike_note else []
+    flags: list[str] = [note for note in (spike_note, ends.start_note, ends.stop_note) if note]
     if repeated:
         flags.append(f"{repeated} samples repeat the previous time stamp (times rounded in the file?); "
                      "edge and metric times are only as fine as the printed times")

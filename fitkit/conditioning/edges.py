@@ -91,6 +91,8 @@ class EdgeSearch:
 
     edges: tuple[Edge, ...]
     method: str
+    #: found by crossings between two state levels (each edge's levels are the trace's rest levels)
+    by_levels: bool = False
 
 
 def is_two_level(levels: StateLevels, noise_rms: float) -> bool:
@@ -194,7 +196,7 @@ def edges_by_levels(time: np.ndarray, values: np.ndarray, levels: StateLevels,
         floor = first_new
     method = (f"crossings of the 50 % level between the state levels, with hysteresis "
               f"between {100 * LOW_THRESHOLD:.0f} % and {100 * HIGH_THRESHOLD:.0f} %")
-    return EdgeSearch(tuple(edges), method)
+    return EdgeSearch(tuple(edges), method, by_levels=True)
 
 
 def edges_by_jumps(time: np.ndarray, values: np.ndarray, noise_rms: float) -> EdgeSearch:
@@ -345,12 +347,12 @@ def detect_edges(time: np.ndarray, values: np.ndarray, levels: StateLevels,
         # trace of jumps (leaving one level and returning to it) does not; its
         # ringing swings are as steep as the edge and would pass for jumps
         found = edges_by_levels(time, values, levels, noise_rms)
-        return EdgeSearch(found.edges, found.method + " (the trace does not settle at its levels)")
+        return EdgeSearch(found.edges, found.method + " (the trace does not settle at its levels)", by_levels=True)
     jumps = edges_by_jumps(time, values, noise_rms)
     if jumps.edges or not levels_usable:
         return jumps
     found = edges_by_levels(time, values, levels, noise_rms)
-    return EdgeSearch(found.edges, found.method + " (the trace does not settle at its levels)")
+    return EdgeSearch(found.edges, found.method + " (the trace does not settle at its levels)", by_levels=True)
 
 
 def ends_apart(values: np.ndarray, spread: float) -> bool:

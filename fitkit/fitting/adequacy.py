@@ -19,10 +19,26 @@ noise. This module decides that from two measurements of the residuals:
   two parts is too short to measure, the residuals' lag-1 autocorrelation
   stands in for it.
 
+* **drift in the settled tail**: a straight line through an edge's residuals
+  where the fitted form has settled, weighted by the samples each point holds;
+  its change across that tail, against its standard error (widened for the
+  residuals' own lag-1 autocorrelation, Bartlett's large-lag factor
+  (1 + r) / (1 - r); Box, Jenkins & Reinsel, Time Series Analysis, ch. 2, from
+  memory) and against the fitted swing.
+
 A fit is refused ("does not describe the capture") when the misfit ratio
 exceeds :data:`MISFIT_RATIO` and the residual is structured (larger where the
 response moves, or larger where the fitted form has settled but the data have
-not), or whatever its shape when the ratio exceeds :data:`MISFIT_CEILING`. The thresholds come
+not), or whatever its shape when the ratio exceeds :data:`MISFIT_CEILING`, or
+whatever the ratio when the data still move where the fitted form has settled
+by more than :data:`DRIFT_SHARE_REFUSED` of the swing and :data:`DRIFT_Z`
+standard errors: a record that ends before a slow part of the response
+settles, which a fast form fits within the noise (a real series RL cut 0.2
+time constants after its edge was read as a 1.5 MHz ringing this way). A
+smaller drift, over :data:`DRIFT_SHARE` of the swing, is a warning
+(``drift_warning``): a slow creep the form leaves out, as a lossy capacitor
+or a mis-compensated probe gives (the real home-made foil capacitor of the
+corpus creeps 4 % of its step after its time constant has settled). The thresholds come
 from ../shared/reference/real-captures (benchmarks/study_real_captures.py): the
 fits whose forms were right left 1.0 to 1.9x the noise, or 2.5x unstructured;
 those whose forms were wrong left 7x to 340x, and the ladder's two-pole fit
@@ -53,6 +69,12 @@ MIN_PART_POINTS = 8
 #: A point is in the moving part when the fitted response is further than this
 #: fraction of the step from its final level (after the edge).
 MOVING_FRACTION = 0.02
+#: A settled tail whose residual moves by more than this share of the fitted swing ...
+DRIFT_SHARE = 0.02
+#: ... and by more than this many standard errors still moves (common practice, no source):
+#: a warning, and a refusal when it moves by more than this share of the swing.
+DRIFT_Z = 5.0
+DRIFT_SHARE_REFUSED = 0.1
 
 
 def capture_noise(segments) -> float:
@@ -78,7 +100,8 @@ def edge_residuals(ff) -> list[EdgeAdequacy]:
     for seg, d, r, f in zip(joint.segments, joint.data, weighted, fitted):
         counts = np.asarray(d.counts, dtype=float)
         after = d.t_point >= 0
-        final = float(np.mean(f[-max(3, f.size // 20):]))
+        tail = f[after]   # the final level from the response's own end (not the pre-edge baseline)
+        final = float(np.mean(tail[-max(3, tail.size // 20):])) if tail.size else float(f[-1])
         span = float(np.ptp(f)) or 1.0
         outside = after & (np.abs(f - final) > MOVING_FRACTION * span)
         # moving: from the edge until the fitted response enters its settling band for good
@@ -88,8 +111,31 @@ def edge_residuals(ff) -> list[EdgeAdequacy]:
         moving = ~quiet
         part = (lambda m: _rms(r[m], counts[m]) * sc.volt_unit
                 if np.count_nonzero(m) >= MIN_PART_POINTS else math.nan)
-        out.append(EdgeAdequacy(seg.edge_time, _rms(r, counts) * sc.volt_unit, part(moving), part(quiet)))
+        drift, z = _tail_drift(d.t_point[quiet], r[quiet] / np.sqrt(counts[quiet]), counts[quiet])
+        out.append(EdgeAdequacy(seg.edge_time, _rms(r, counts) * sc.volt_unit, part(moving), part(quiet),
+                                abs(drift) / span, z))
     return out
+
+
+def _tail_drift(t: np.ndarray, residual: np.ndarray, counts: np.ndarray) -> tuple[float, float]:
+    """(change across the span of ``t``, that change in standard errors) of a straight line
+    through bin-mean ``residual``s weighted by their sample ``counts``; NaNs when there are
+    fewer than 2 x MIN_PART_POINTS points."""
+    if t.size < 2 * MIN_PART_POINTS:
+        return math.nan, math.nan
+    w = counts / counts.sum()
+    tm, rm = float(w @ t), float(w @ residual)
+    sxx = float(counts @ (t - tm) ** 2)
+    if not sxx > 0:
+        return math.nan, math.nan
+    slope = float(counts @ ((t - tm) * (residual - rm))) / sxx
+    left = residual - rm - slope * (t - tm)
+    per_sample = float(counts @ left ** 2) / (t.size - 2)
+    lag1 = float(np.corrcoef(left[:-1], left[1:])[0, 1]) if np.std(left) > 0 else 0.0
+    lag1 = min(max(lag1 if math.isfinite(lag1) else 0.0, 0.0), 0.95)
+    se = math.sqrt(per_sample / sxx * (1.0 + lag1) / (1.0 - lag1))
+    change = slope * float(np.ptp(t))
+    return change, (abs(slope) / se if se > 0 else math.inf)
 
 
 def assess(ff, noise_rms: float, lag1: float) -> Adequacy:
@@ -109,9 +155,16 @@ def assess(ff, noise_rms: float, lag1: float) -> Adequacy:
         structured = structure > ACTIVE_TO_QUIET or structure < 1.0 / ACTIVE_TO_QUIET
     else:
         structured = math.isfinite(lag1) and lag1 > LAG1_STRUCTURED
+    drifting = [e for e in edges if e.quiet_drift_share > DRIFT_SHARE_REFUSED and e.quiet_drift_z > DRIFT_Z]
     describes = not (math.isfinite(ratio) and (ratio > MISFIT_CEILING or (ratio > MISFIT_RATIO and structured)))
     finding = ""
-    if not describes:
+    if describes and drifting:
+        describes, worst = False, max(drifting, key=lambda e: e.quiet_drift_share)
+        finding = (f"the {ff.form.name} form does not describe this capture: where it has settled, the data "
+                   f"still move (by {100 * worst.quiet_drift_share:.0f} % of the step after the edge at "
+                   f"{worst.edge_time:.6g} s, {worst.quiet_drift_z:.0f} standard errors); the record may end "
+                   "before a slower part of the response settles; its numbers are not measurements")
+    elif not describes:
         if math.isfinite(structure) and structure > ACTIVE_TO_QUIET:
             where = f"{structure:.1f} times larger where the response moves than where it is quiet"
         elif math.isfinite(structure) and structure < 1.0 / ACTIVE_TO_QUIET:
@@ -123,3 +176,17 @@ def assess(ff, noise_rms: float, lag1: float) -> Adequacy:
         finding = (f"the {ff.form.name} form does not describe this capture: its residuals are "
                    f"{ratio:.1f} times the noise and {where}; its numbers are not measurements")
     return Adequacy(describes, ratio, structure, structured, finding, (), tuple(edges))
+
+
+def drift_warning(adequacy: Adequacy, form_name: str) -> str:
+    """A warning for a settled tail that still creeps (over DRIFT_SHARE of the swing and DRIFT_Z
+    standard errors) in a fit that describes its capture; "" when none does."""
+    creeping = [e for e in adequacy.edges if e.quiet_drift_share > DRIFT_SHARE and e.quiet_drift_z > DRIFT_Z]
+    if not adequacy.describes_data or not creeping:
+        return ""
+    worst = max(creeping, key=lambda e: e.quiet_drift_share)
+    return (f"where the {form_name} form has settled, the data still creep by {100 * worst.quiet_drift_share:.0f} % "
+            f"of the step ({worst.quiet_drift_z:.0f} standard errors, after the edge at {worst.edge_time:.6g} s): "
+            "a slower part of the response that the form leaves out (a lossy capacitor, a mis-compensated "
+            "probe, a record that ends early) biases its time constants by more than their intervals show; "
+            "check the probe's compensation, or capture longer after each edge")

@@ -215,7 +215,7 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
         # for its shape (variable projection), which rescues poor level starts.
         given = dict(starts[0]) if starts else {}
         given.update(to_internal(joint, start))
-        shape = {p.name: math.exp(given["log_" + p.name]) for p in form.shape}
+        shape = joint.shape_scaled(given)
         delay = given.get("t0_0", fixed_int.get("t0_0", 0.0))
         projected = dict(given)
         projected.update(projected_levels(joint, shape, delay)[1])
@@ -368,7 +368,7 @@ def _piloted(joint: JointModel, starts: list[dict[str, float]], fixed: Mapping[s
             found = trial
     if found is None or not math.isfinite(found.rss):
         return starts
-    shape = {p.name: math.exp(found.values["log_" + p.name]) for p in joint.form.shape}
+    shape = joint.shape_scaled(found.values)
     delay = float(np.median(sub.delays_of(found.values))) if joint.free_t0 else 0.0
     start = {k: v for k, v in found.values.items() if k.startswith("log_") or k == "gain"}
     start.update(projected_levels(joint, shape, delay)[1])
@@ -419,7 +419,7 @@ def _canonical(joint: JointModel, fit: ModelFit) -> ModelFit:
     form = joint.form
     if getattr(form, "canonical", None) is None:
         return fit
-    shape = {p.name: math.exp(fit.values["log_" + p.name]) for p in form.shape}
+    shape = joint.shape_scaled(fit.values)
     canon = form.canonical_shape(shape)
     if all(canon[k] == shape[k] for k in shape):
         return fit

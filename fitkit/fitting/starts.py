@@ -173,7 +173,7 @@ def best_starts(joint: JointModel, keep: int = 3) -> list[dict[str, float]]:
     if sub is not None:
         out = []
         for start in best_starts(sub, keep):
-            shape = {p.name: math.exp(start["log_" + p.name]) for p in joint.form.shape}
+            shape = joint.shape_scaled(start)
             full = {k: v for k, v in start.items() if k.startswith("log_")}
             full.update(projected_levels(joint, shape, start.get("t0_0", 0.0))[1])
             out.append(full)

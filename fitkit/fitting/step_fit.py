@@ -23,7 +23,7 @@ from ..forms import FORMS, get_form, pulse_response
 from ..forms.base import Form
 from ..results import (ChannelRoles, Estimate, FitDetails, FitDiagnostics, FitResult,
                        FittedSegment)
-from .adequacy import assess, capture_noise
+from .adequacy import assess, capture_noise, drift_warning
 from .alignment_smear import SMEAR_LIMIT, smear_bias
 from .form_fit import FormFit, fit_form, sample_interval
 from .further_forms import rescued, with_dead_time
@@ -352,7 +352,7 @@ def _diagnostics(ff: FormFit, segments: Sequence[StepSegment]):
     shape_idx = [i for i, n in enumerate(fit.names) if n.startswith("log_")]
     widening = float(max((corr.widening[i] for i in shape_idx), default=1.0))
     structured = adequacy.structured and not adequacy.describes_data
-    warnings = []
+    warnings = [w for w in (drift_warning(adequacy, ff.form.name),) if w]
     if adequacy.describes_data and math.isfinite(expected) and rms > STRUCTURE_RATIO * expected:
         warnings.append(f"residuals ({rms:.3g} V rms) are {rms / expected:.1f} times the noise "
                         f"({expected:.3g} V rms): the {ff.form.name} form may not fully describe the "

@@ -145,10 +145,11 @@ def plan_read(sample: TextSample, shape: TextShape, *, sample_interval: float | 
         tfactor = _time_column_factor(shape, time_col, time_unit or units.get(time_col)
                                       or meta.get("Horizontal Units", ""), bool(time_unit),
                                       interval if interval_src != "given" else None,
-                                      decisions, warnings, path)
+                                      decisions, warnings, path, given_interval=sample_interval)
+    numbered = sample_interval is not None and time_col is not None and tfactor == float(sample_interval)
     if interval is not None and time_source != "column":
         decisions.append(f"sample interval: {interval:.6g} s ({interval_src})")
-    if sample_interval is not None and time_source == "column":
+    if sample_interval is not None and time_source == "column" and not numbered:
         warnings.append("--sample-interval ignored: the file has a time column "
                         "(add --time-column none to build the axis from the interval instead)")
         found = md.sample_interval(meta)
@@ -188,14 +189,19 @@ def plan_read(sample: TextSample, shape: TextShape, *, sample_interval: float | 
 
 
 def _time_column_factor(shape: TextShape, j: int, t_unit: str, given: bool, header_interval: float | None,
-                        decisions: list[str], warnings: list[str], path: str) -> float:
+                        decisions: list[str], warnings: list[str], path: str,
+                        given_interval: float | None = None) -> float:
     """Seconds per unit of the time column, with the decision written down.
 
     A unit written in the file (or given) is used. With none, whole-number
     stamps are a logger's millisecond counter unless the header's sample
     interval says otherwise; other stamps are taken as seconds, again unless
     the header's interval matches them read in another unit. Either way the
-    guess is a warning, so every command shows it.
+    guess is a warning, so every command shows it. A column that counts 0, 1,
+    2, ... (or from 1) is sample numbers as much as a 1 ms counter: it is read
+    with the given sample interval (``given_interval``, s), and refused without
+    one (a scope's sample index read as milliseconds put every time constant
+    off by the ratio of the two).
     """
     f = time_factor(t_unit) if t_unit else None
     if t_unit and f is None:
@@ -213,6 +219,14 @@ def _time_column_factor(shape: TextShape, j: int, t_unit: str, given: bool, head
             decisions.append(f"time unit: not written in the file; {unit}, which matches the "
                              f"header's sample interval of {header_interval:.6g} s")
             return _TIME_FACTORS[unit]
+    if _integers(shape, j) and _counts_samples(v):
+        if given_interval:
+            decisions.append(f"time: the column counts samples (0, 1, 2, ...): sample number x the given "
+                             f"sample interval of {given_interval:.6g} s")
+            return float(given_interval)
+        raise CaptureError("the time column counts 0, 1, 2, ... with no unit: sample numbers, or a 1 ms counter?",
+                           path=path, hint="give the scope's sample interval with --sample-interval (for example "
+                                           "--sample-interval 1u), or --time-unit ms if they are milliseconds")
     if _integers(shape, j):
         warnings.append("the time column holds whole numbers with no unit: taken as milliseconds "
                         "(a logger's millisecond counter); give --time-unit s if they are seconds")
@@ -423,6 +437,12 @@ def _counts_up(shape: TextShape, j: int) -> bool:
 def _integers(shape: TextShape, j: int) -> bool:
     cells = [c[j] for c in shape.data_cells if j < len(c)]
     return bool(cells) and all(re.fullmatch(r"[+-]?\d+", c) for c in cells)
+
+
+def _counts_samples(values: list[float]) -> bool:
+    """True for a column that counts 0, 1, 2, ... or 1, 2, 3, ... (at least 8 rows)."""
+    return (len(values) >= 8 and values[0] in (0.0, 1.0)
+            and all(b - a == 1.0 for a, b in zip(values, values[1:])))
 
 
 def _time_quantum(shape: TextShape, j: int) -> tuple[str, int] | None:
