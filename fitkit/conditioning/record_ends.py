@@ -127,6 +127,7 @@ def record_ends(time: np.ndarray, output: np.ndarray, edges: tuple[Edge, ...], f
     cut = cut_off_onset(output, edges[-1], band) if edges and edges_in_output else None
     stop_note = ""
     if cut is not None:
-        stop_note = (f"the record ends during an edge that leaves the last level after {format_value(float(time[cut]), 's')}: "
-                     "that edge is cut off and not fitted; the last window stops at its onset")
+        stop_note = (f"the record ends during an edge that leaves the last level after "
+                     f"{format_value(float(time[cut]), 's')}: that edge is cut off and not fitted; the last "
+                     "window stops at its onset")
     return RecordEnds(start, n if cut is None else cut + 1, start_note, stop_note)

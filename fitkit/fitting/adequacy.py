@@ -54,6 +54,7 @@ import math
 import numpy as np
 
 from ..results import Adequacy, EdgeAdequacy
+from ..units import format_value
 
 #: RMS residual above this multiple of the noise is "far above the noise".
 MISFIT_RATIO = 2.0
@@ -162,8 +163,8 @@ def assess(ff, noise_rms: float, lag1: float) -> Adequacy:
         describes, worst = False, max(drifting, key=lambda e: e.quiet_drift_share)
         finding = (f"the {ff.form.name} form does not describe this capture: where it has settled, the data "
                    f"still move (by {100 * worst.quiet_drift_share:.0f} % of the step after the edge at "
-                   f"{worst.edge_time:.6g} s, {worst.quiet_drift_z:.0f} standard errors); the record may end "
-                   "before a slower part of the response settles; its numbers are not measurements")
+                   f"{format_value(worst.edge_time, 's')}, {worst.quiet_drift_z:.0f} standard errors); the record "
+                   "may end before a slower part of the response settles; its numbers are not measurements")
     elif not describes:
         if math.isfinite(structure) and structure > ACTIVE_TO_QUIET:
             where = f"{structure:.1f} times larger where the response moves than where it is quiet"
@@ -186,7 +187,8 @@ def drift_warning(adequacy: Adequacy, form_name: str) -> str:
         return ""
     worst = max(creeping, key=lambda e: e.quiet_drift_share)
     return (f"where the {form_name} form has settled, the data still creep by {100 * worst.quiet_drift_share:.0f} % "
-            f"of the step ({worst.quiet_drift_z:.0f} standard errors, after the edge at {worst.edge_time:.6g} s): "
+            f"of the step ({worst.quiet_drift_z:.0f} standard errors, after the edge at "
+            f"{format_value(worst.edge_time, 's')}): "
             "a slower part of the response that the form leaves out (a lossy capacitor, a mis-compensated "
             "probe, a record that ends early) biases its time constants by more than their intervals show; "
             "check the probe's compensation, or capture longer after each edge")
