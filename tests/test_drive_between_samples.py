@@ -5,7 +5,9 @@ samples; a generator edge faster than the sampling jumps somewhere inside one
 interval. On a thousand edges of a response ringing ten samples a cycle, the
 difference between the line and a jump moved Q by about 40 of the joint fit's
 standard errors, and its interval missed the truth. fitkit adds that
-difference as a systematic term (fitkit/fitting/drive_between_samples.py).
+difference as a systematic term, and where in the interval the jump lies as a
+random one (fitkit/fitting/drive_between_samples.py; the coverage with jumps at
+random places: tests/test_fitting_measured_input.py).
 The captures are the textbook ringing step response summed over ideal edges
 half way between samples (tests/support/square_waves.py).
 """
@@ -39,11 +41,14 @@ def test_a_drive_edge_spread_over_samples_adds_nothing():
     assert not any(w.startswith("the drive jumps between two of its samples") for w in r.warnings)
 
 
-def test_a_jump_under_a_slow_response_adds_nothing():
-    # forty edges, fifty samples a ringing cycle: the difference is far below the noise
+def test_a_jump_under_a_slow_response_keeps_its_estimates():
+    # forty edges, fifty samples a ringing cycle: the line's sharpening is far below the noise,
+    # but where each edge lies inside its sample still counts (a delay of up to half a sample
+    # against a cycle of fifty), so the note may be given; the estimates stay honest
     t, u, y, f0 = ringing_square_wave(100_000, 40, sigma=0.01)
     r = fit_capture(Capture(time=t, channels=(Channel("input", u, "V", "V"), Channel("output", y, "V", "V"))))
-    assert not any(w.startswith("the drive jumps between two of its samples") for w in r.warnings)
+    note = [w for w in r.warnings if w.startswith("the drive jumps between two of its samples")]
+    assert all("anywhere in the interval" in w for w in note)
     # one fixed capture: its estimates within 4 of their standard errors (the
     # Monte Carlo of benchmarks/ covers the 95 % rate)
     for name, truth in (("Q", Q), ("f0", f0)):
