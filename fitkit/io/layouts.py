@@ -140,13 +140,12 @@ def plan_read(sample: TextSample, shape: TextShape, *, sample_interval: float | 
     if bad_interval:
         warnings.append(f"the header's sample interval {bad_interval[0]} = {bad_interval[1]} is not positive: "
                         "ignored, the time column is used")
-    tfactor = 1.0
+    tfactor, numbered = 1.0, False
     if time_col is not None:
-        tfactor = _time_column_factor(shape, time_col, time_unit or units.get(time_col)
-                                      or meta.get("Horizontal Units", ""), bool(time_unit),
-                                      interval if interval_src != "given" else None,
-                                      decisions, warnings, path, given_interval=sample_interval)
-    numbered = sample_interval is not None and time_col is not None and tfactor == float(sample_interval)
+        tfactor, numbered = _time_column_factor(shape, time_col, time_unit or units.get(time_col)
+                                                or meta.get("Horizontal Units", ""), bool(time_unit),
+                                                interval if interval_src != "given" else None,
+                                                decisions, warnings, path, given_interval=sample_interval)
     if interval is not None and time_source != "column":
         decisions.append(f"sample interval: {interval:.6g} s ({interval_src})")
     if sample_interval is not None and time_source == "column" and not numbered:
@@ -190,8 +189,9 @@ def plan_read(sample: TextSample, shape: TextShape, *, sample_interval: float | 
 
 def _time_column_factor(shape: TextShape, j: int, t_unit: str, given: bool, header_interval: float | None,
                         decisions: list[str], warnings: list[str], path: str,
-                        given_interval: float | None = None) -> float:
-    """Seconds per unit of the time column, with the decision written down.
+                        given_interval: float | None = None) -> tuple[float, bool]:
+    """(seconds per unit of the time column, whether it counts samples read with the given
+    interval), with the decision written down.
 
     A unit written in the file (or given) is used. With none, whole-number
     stamps are a logger's millisecond counter unless the header's sample
@@ -209,7 +209,7 @@ def _time_column_factor(shape: TextShape, j: int, t_unit: str, given: bool, head
                            hint="give the unit with --time-unit (s, ms, us, ns)")
     if f is not None:
         decisions.append(f"time unit: {clean_unit(t_unit)}" + (" (given)" if given else ""))
-        return f
+        return f, False
     v = _numbers(shape, j, shape.decimal)
     step = (v[-1] - v[0]) / (len(v) - 1) if len(v) >= 2 and v[-1] > v[0] else None
     if header_interval and step:
@@ -218,25 +218,25 @@ def _time_column_factor(shape: TextShape, j: int, t_unit: str, given: bool, head
         if unit:
             decisions.append(f"time unit: not written in the file; {unit}, which matches the "
                              f"header's sample interval of {header_interval:.6g} s")
-            return _TIME_FACTORS[unit]
+            return _TIME_FACTORS[unit], False
     if _integers(shape, j) and _counts_samples(v):
         if given_interval:
             decisions.append(f"time: the column counts samples (0, 1, 2, ...): sample number x the given "
                              f"sample interval of {given_interval:.6g} s")
-            return float(given_interval)
+            return float(given_interval), True
         raise CaptureError("the time column counts 0, 1, 2, ... with no unit: sample numbers, or a 1 ms counter?",
                            path=path, hint="give the scope's sample interval with --sample-interval (for example "
                                            "--sample-interval 1u), or --time-unit ms if they are milliseconds")
     if _integers(shape, j):
         warnings.append("the time column holds whole numbers with no unit: taken as milliseconds "
                         "(a logger's millisecond counter); give --time-unit s if they are seconds")
-        return 1e-3
+        return 1e-3, False
     if step is not None and step >= PLAUSIBLY_MS_STEP:
         warnings.append(f"the time column has no unit written and steps by {step:.6g}: taken as seconds "
                         "(give --time-unit ms if they are milliseconds)")
     else:
         decisions.append("time unit: not written in the file; taken as seconds")
-    return 1.0
+    return 1.0, False
 
 
 def _twin_time_columns(shape: TextShape, time_col: int | None, index_col: int | None,
