@@ -193,12 +193,15 @@ def test_a_settled_tail_after_a_long_baseline_passes(seed):
 def test_a_slow_creep_after_the_time_constant_is_named(seed):
     """94 % of the step with tau = 100 us and 6 % with ten times that (a lossy capacitor's
     creep), 0.94 / (1 + s tau) + 0.06 / (1 + 10 s tau) by scipy.signal.lsim: a first-order fit
-    is kept, but its warnings say the data still creep where it has settled (3 % of the step)."""
+    is kept, but its warnings say the data still creep where it has settled (3 % of the step).
+    The noise (5 mV) keeps the creep's misfit (about 10 mV rms) near twice the noise, as the real
+    foil capacitor's 2.4x; against 2 mV it is 5x, over the ceiling of a baseline-measured noise,
+    and refused."""
     tau, dt = 1e-4, 1e-6
     t = np.arange(int(25 * tau / dt)) * dt
     num = np.polyadd(0.94 * np.array([10 * tau, 1.0]), 0.06 * np.array([tau, 1.0]))
     _, y, _ = signal.lsim((num, np.polymul([tau, 1.0], [10 * tau, 1.0])), (t >= 3 * tau).astype(float), t)
-    y = y + np.random.default_rng(seed).normal(0.0, 0.002, t.size)
+    y = y + np.random.default_rng(seed).normal(0.0, 0.005, t.size)
     result = fit_capture(Capture.from_arrays(t, {"vout": y}), model="first-order")
     assert result.describes_data
     assert any("still creep by 3 % of the step" in w for w in result.warnings), result.warnings

@@ -326,3 +326,11 @@ def test_a_misfit_where_the_fitted_form_has_settled_is_refused(monkeypatch):
     # and ten times the noise is refused whatever its shape
     ff.fit.rss = (11.0e-3) ** 2 * 100
     assert not adequacy.assess(ff, 1.0e-3, 0.0).describes_data
+    # five times, when every edge's noise was measured on its settled baseline (which holds
+    # band-limited noise too), not the channel's sample-to-sample estimate
+    ff.fit.rss = (6.0e-3) ** 2 * 100
+    monkeypatch.setattr(adequacy, "edge_residuals",
+                        lambda ff: [EdgeAdequacy(0.0, 6.0e-3, moving_rms=6.0e-3, quiet_rms=6.0e-3)])
+    assert adequacy.assess(ff, 1.0e-3, 0.0).describes_data
+    ff.joint.segments = [SimpleNamespace(noise_on_baseline=True)]
+    assert not adequacy.assess(ff, 1.0e-3, 0.0).describes_data

@@ -131,9 +131,10 @@ def _neighbours(found: tuple[Edge, ...], forced: Edge) -> list[Edge]:
     return ([before[-1]] if before else []) + ([after[0]] if after else [])
 
 
-def _edge_search(capture: Capture, channel: Channel, noise: NoiseEstimate,
-                 edge_time: float | None) -> tuple[EdgeSearch, StateLevels, list[Edge]]:
-    """(edges, state levels, detected neighbours of a forced edge) of the edge channel."""
+def _edge_search(capture: Capture, channel: Channel, noise: NoiseEstimate, edge_time: float | None,
+                 edge_alone: bool = False) -> tuple[EdgeSearch, StateLevels, list[Edge]]:
+    """(edges, state levels, detected neighbours of a forced edge) of the edge channel; no
+    neighbours when ``edge_alone``."""
     time, values = capture.time, channel.values
     levels = state_levels(values, quantisation_step=noise.quantisation_step)
     if edge_time is not None:
@@ -143,7 +144,7 @@ def _edge_search(capture: Capture, channel: Channel, noise: NoiseEstimate,
                 f"({format_value(time[0], 's')} to {format_value(time[-1], 's')})",
                 path=capture.provenance.path or None, hint="give an --edge-time inside the record")
         edge = forced_edge(time, values, edge_time)
-        neighbours = _neighbours(detect_edges(time, values, levels, noise.rms).edges, edge)
+        neighbours = [] if edge_alone else _neighbours(detect_edges(time, values, levels, noise.rms).edges, edge)
         return EdgeSearch((edge,), f"edge time forced at {format_value(edge_time, 's')}"), levels, neighbours
     search = detect_edges(time, values, levels, noise.rms)
     if not search.edges:
@@ -167,12 +168,16 @@ def find_edges(capture: Capture, channel: str | int | None = None) -> tuple[Edge
 def analyse_steps(capture: Capture, *, input: str | int | None = None, output: str | int | None = None,
                   edge_time: float | None = None, average: bool = False,
                   reference_levels: tuple[float, float] = (0.1, 0.9),
-                  settling_band: float = 0.02, pulse_width: float | None = None) -> StepAnalysis:
+                  settling_band: float = 0.02, pulse_width: float | None = None,
+                  edge_alone: bool = False) -> StepAnalysis:
     """Condition a capture: channels, edges, segments, noise, metrics and quality flags.
 
     input, output: channel names or 1-based positions (None: chosen from the data;
         input "none": no drive channel).
     edge_time: force a single edge at this time (s) instead of searching.
+    edge_alone: with ``edge_time``, the forced edge's window runs to the ends of the record
+        (edges found elsewhere in the trace are taken as the response's own swings) instead
+        of ending at the edges found around it.
     average: coherently average the edges of each direction into one segment.
     reference_levels: (low, high) fractions of the step for rise/fall times.
     settling_band: half-width of the settling band as a fraction of the step.
@@ -217,7 +222,7 @@ def analyse_steps(capture: Capture, *, input: str | int | None = None, output: s
                       "mean of their neighbours: a glitch, not a response")
         decisions.append(spike_note)
     edge_noise = out_noise if edge_ch is out_ch else estimate_noise(edge_ch.values)
-    search, levels, neighbours = _edge_search(capture, edge_ch, edge_noise, edge_time)
+    search, levels, neighbours = _edge_search(capture, edge_ch, edge_noise, edge_time, edge_alone)
     edges = search.edges
     if in_ch is None and edge_time is None:
         decisions.append("no input channel: edge times are the output's own 50 % crossings, which come "

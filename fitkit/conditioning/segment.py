@@ -49,6 +49,10 @@ class StepSegment:
     final: output level the response settles to (or is heading for) after the edge (V).
     input_before, input_after: input levels before and after the edge (V), or None.
     noise_rms: robust estimate of the output noise standard deviation (V).
+    noise_on_baseline: True when ``noise_rms`` is the spread of the settled pre-edge
+        baseline (which holds band-limited noise too), False when the baseline was too
+        short and the channel's sample-to-sample estimate stands in (which band-limited
+        noise makes too low).
     quantisation_step: output quantisation step (V), or None when not visibly quantised.
     averaged_edges: number of edges coherently averaged into this segment (1 = raw).
     flags: plain-language quality warnings for this segment.
@@ -103,6 +107,7 @@ class StepSegment:
     sample_interval: float = float("nan")
     alignment_variance: float = 0.0
     previous_edges: tuple[tuple[float, float, float], ...] | None = None
+    noise_on_baseline: bool = False
 
     def __post_init__(self) -> None:
         if not math.isfinite(self.sample_interval):

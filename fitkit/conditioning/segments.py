@@ -153,7 +153,8 @@ def describe_window(time: np.ndarray, output: np.ndarray, input: np.ndarray | No
 
     floor = channel_noise if math.isfinite(channel_noise) else 0.0
     noise = _baseline_noise(t[:pre_stop], y[:pre_stop], quantisation_step is not None, floor)
-    if not np.isfinite(noise):
+    on_baseline = bool(np.isfinite(noise))
+    if not on_baseline:
         noise = channel_noise
     if quantisation_step is not None and not noise >= quantisation_step / math.sqrt(12.0):
         noise = quantisation_step / math.sqrt(12.0)
@@ -186,6 +187,7 @@ def describe_window(time: np.ndarray, output: np.ndarray, input: np.ndarray | No
     return StepSegment(start=start, stop=stop, time=t, output=y, input=u, edge_time=edge.time,
                        direction=edge.direction, baseline=baseline, final=final,
                        input_before=input_before, input_after=input_after, noise_rms=noise,
+                       noise_on_baseline=on_baseline,
                        quantisation_step=quantisation_step, averaged_edges=averaged_edges,
                        returns_to_baseline=bool(returns), step_size=float(step_size),
                        step_source=source, settled=bool(settled), sample_interval=sample_interval)
@@ -266,7 +268,8 @@ def average_segments(segments: Sequence[StepSegment], edges: Sequence[Edge], *,
                               quantisation_step=None, settling_band=settling_band,
                               averaged_edges=n, sample_interval=sample_interval)
         result.append(replace(avg, start=first_seg.start, stop=first_seg.stop,
-                              noise_rms=noise, alignment_variance=alignment_variance(
+                              noise_rms=noise, noise_on_baseline=all(s.noise_on_baseline for s, _ in group),
+                              alignment_variance=alignment_variance(
                                   group, grid, out_sum / n, in_sum is not None, sample_interval, shifts),
                               previous_edges=_previous_edges([s for s, _ in group], segments)))
     result.sort(key=lambda s: s.edge_time)

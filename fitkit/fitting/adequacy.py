@@ -29,7 +29,8 @@ noise. This module decides that from two measurements of the residuals:
 A fit is refused ("does not describe the capture") when the misfit ratio
 exceeds :data:`MISFIT_RATIO` and the residual is structured (larger where the
 response moves, or larger where the fitted form has settled but the data have
-not), or whatever its shape when the ratio exceeds :data:`MISFIT_CEILING`, or
+not), or whatever its shape when the ratio exceeds :data:`MISFIT_CEILING`
+(:data:`MISFIT_CEILING_BASELINE` when the noise was measured on the baselines), or
 whatever the ratio when the data still move where the fitted form has settled
 by more than :data:`DRIFT_SHARE_REFUSED` of the swing and :data:`DRIFT_Z`
 standard errors: a record that ends before a slow part of the response
@@ -58,11 +59,21 @@ from ..units import format_value
 
 #: RMS residual above this multiple of the noise is "far above the noise".
 MISFIT_RATIO = 2.0
+#: RMS residual above this multiple of the noise earns a warning even when the form is kept
+#: (fitkit.fitting.step_fit), and another reading of an output-only capture
+#: (fitkit.fitting.one_response).
+STRUCTURE_RATIO = 1.5
 #: Moving-part residual RMS above this multiple of the quiet part's is structure.
 ACTIVE_TO_QUIET = 1.6
-#: RMS residual above this multiple of the noise is misfit whatever its shape: the noise is
-#: measured on the settled baseline, which holds band-limited noise too (common practice, no source).
+#: RMS residual above this multiple of the noise is misfit whatever its shape (common practice,
+#: no source): the noise of an edge with a short baseline is the channel's sample-to-sample
+#: estimate, which band-limited noise makes several times too low ...
 MISFIT_CEILING = 10.0
+#: ... and this multiple when every edge's noise is the spread of its settled baseline, which
+#: holds band-limited noise too. In ../shared/reference/real-captures the right forms left at
+#: most 2.5x, the wrong ones 7x and more; a first-order form fitted to the rise of a simulated
+#: band-pass response (Q = 1, the return cut off by the window) left 6.3x spread evenly.
+MISFIT_CEILING_BASELINE = 5.0
 #: Lag-1 autocorrelation above this is structure when the parts cannot be compared.
 LAG1_STRUCTURED = 0.5
 #: A part needs at least this many points to be measured.
@@ -157,7 +168,10 @@ def assess(ff, noise_rms: float, lag1: float) -> Adequacy:
     else:
         structured = math.isfinite(lag1) and lag1 > LAG1_STRUCTURED
     drifting = [e for e in edges if e.quiet_drift_share > DRIFT_SHARE_REFUSED and e.quiet_drift_z > DRIFT_Z]
-    describes = not (math.isfinite(ratio) and (ratio > MISFIT_CEILING or (ratio > MISFIT_RATIO and structured)))
+    segments = getattr(ff.joint, "segments", ())
+    on_baselines = bool(segments) and all(getattr(seg, "noise_on_baseline", False) for seg in segments)
+    ceiling = MISFIT_CEILING_BASELINE if on_baselines else MISFIT_CEILING
+    describes = not (math.isfinite(ratio) and (ratio > ceiling or (ratio > MISFIT_RATIO and structured)))
     finding = ""
     if describes and drifting:
         describes, worst = False, max(drifting, key=lambda e: e.quiet_drift_share)

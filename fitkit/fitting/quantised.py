@@ -120,7 +120,7 @@ def sample_information(mean: np.ndarray, sigma: float, step: float, origin: floa
     # d/d ln sigma of Phi((a - m)/sigma) is -((a - m)/sigma) phi((a - m)/sigma)
     d_log_sigma = (lower * np.where(np.isfinite(lower), pdf_lo, 0.0)
                    - upper * np.where(np.isfinite(upper), pdf_hi, 0.0)) / root
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):  # a subnormal prob: not used
         inv = np.where(prob > 1e-300, 1.0 / prob, 0.0)
     return ((d_mean**2 * inv).sum(axis=1), (d_mean * d_log_sigma * inv).sum(axis=1),
             (d_log_sigma**2 * inv).sum(axis=1))

@@ -23,7 +23,7 @@ from ..forms import FORMS, get_form, pulse_response
 from ..forms.base import Form
 from ..results import (ChannelRoles, Estimate, FitDetails, FitDiagnostics, FitResult,
                        FittedSegment)
-from .adequacy import assess, capture_noise, drift_warning
+from .adequacy import STRUCTURE_RATIO, assess, capture_noise, drift_warning
 from .alignment_smear import SMEAR_LIMIT, smear_bias
 from .form_fit import FormFit, fit_form, sample_interval
 from .further_forms import rescued, with_dead_time
@@ -31,6 +31,7 @@ from .information import has_measured_input
 from .region_estimates import beyond_range_sigmas
 from .estimates import derived_estimates, level_estimates, shape_estimates
 from .noise_record import NoiseRecord
+from .one_response import better_reading, one_response_note, one_response_reading, worth_reading_again
 from .response_shape import moves_wrong_way, returns_to_baseline
 from .quantised import ROUNDED_GAUSSIAN, quantised_refit
 from .selection import (CRITERION, FALLBACK_CANDIDATES, Candidate, admissibility, choose, default_candidates,
@@ -45,9 +46,6 @@ SELECTION_POINTS_PER_SEGMENT = 1000
 SELECTION_EDGES = 8
 #: Forms of real poles alone (no zero): their step response rises without overshoot.
 REAL_POLES_ONLY = ("three-real-pole", "four-real-pole", "five-real-pole")
-#: RMS residual above this multiple of the noise earns a warning even when the form is kept
-#: (the adequacy gate, fitkit.fitting.adequacy, refuses far larger structured misfits).
-STRUCTURE_RATIO = 1.5
 
 
 def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
@@ -219,6 +217,15 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
                     f"{result.adequacy.misfit_ratio:.1f} times the noise; the output's edges fitted one by one "
                     "(each with the previous edge's tail) describe the capture")
             return dataclasses.replace(plain, warnings=(note,) + tuple(plain.warnings))
+    if pulse_width is None and worth_reading_again(result):
+        reading = one_response_reading(capture, analysis, edge_time)
+        try:
+            alt = None if reading is None else _fit_analysis(capture, reading, **options)
+        except FitkitError:
+            alt = None
+        if alt is not None and better_reading(result, alt):
+            note = one_response_note(analysis, reading, result.adequacy.misfit_ratio)
+            return dataclasses.replace(alt, warnings=(note,) + tuple(alt.warnings))
     if result.describes_data or (input is not None and output is not None):
         return result
     tried = []

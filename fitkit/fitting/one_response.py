@@ -1,0 +1,92 @@
+"""Another reading of an output-only capture: one response, not several edges.
+
+Without a drive channel the edges are found in the output itself, and an
+output that leaves its level and comes back reads two ways: a low-pass
+response to a pulse (two drive edges), or a band-pass or high-pass response to
+one drive edge, whose own return crosses the levels like a second edge. The
+level search takes the first reading; when the forms fitted to it do not
+describe the capture, :func:`one_response_reading` gives the second: one edge
+(the first found, or the one the user forced) whose window runs to the ends of
+the record, so that the forms which return to their baseline are tried on the
+whole response. A simulated series RLC with the voltage taken across R (Q = 1,
+an output-only step) was refused in the first reading (its return taken as a
+falling drive edge, 9.5 times the noise) and, forced at its edge, read as a
+first-order rise of tau 4.3 us over the window that the return cut short.
+
+The second reading is tried when the first does not describe the capture, or
+leaves more than STRUCTURE_RATIO times the noise (the misfit that earns a
+warning). A Q = 0.7 band-pass read as two edges was "described" by a
+first-order form at 9.6 times the noise (tau 7.8 us, its interval tight, its
+creep warned of): its short baselines left the noise to the sample-to-sample
+estimate and the ceiling at 10. A Q = 2 band-pass, whose first swings were
+found as two jumps, was read as an underdamped low-pass at 1.85 times the
+noise, f0 1 % and Q 4 % off and outside their intervals. The second reading is
+kept only when it describes the capture and leaves less misfit than the first
+(at most MISFIT_RATIO times the noise), and it is said so: the output alone
+cannot tell a drive that fell from a response that came back, and the drive
+recorded on a second channel can.
+"""
+
+from __future__ import annotations
+
+from ..capture import Capture
+from ..conditioning.analysis import StepAnalysis, analyse_steps
+from ..errors import FitkitError
+from ..results import FitResult
+from ..units import format_value
+from .adequacy import MISFIT_RATIO, STRUCTURE_RATIO
+
+
+#: A response's own return crosses the level search's hysteresis band (25 % to 75 %) once or
+#: twice: a Q = 3 band-pass swings back by 35 % of its peak. More edges than this are a drive
+#: that switched (a square wave), and the whole record is not read as one response.
+MAX_SWINGS = 4
+
+
+def one_response_reading(capture: Capture, analysis: StepAnalysis,
+                         edge_time: float | None = None) -> StepAnalysis | None:
+    """The capture conditioned as the output's response to its first edge alone (or to the
+    forced ``edge_time``, s), the window running to the record's ends; None when the
+    analysis has a drive channel, averages its edges, found more than MAX_SWINGS, or its
+    first window already runs to the end of the record."""
+    if analysis.input_channel is not None or analysis.averaged or not analysis.segments or not analysis.edges:
+        return None
+    if analysis.segments[0].stop >= capture.n_points or len(analysis.edges) > MAX_SWINGS:
+        return None
+    at = edge_time if edge_time is not None else float(capture.time[analysis.edges[0].onset_index])
+    try:
+        return analyse_steps(capture, input="none", output=analysis.output_channel, edge_time=at,
+                             edge_alone=True)
+    except FitkitError:
+        return None
+
+
+def worth_reading_again(first: FitResult) -> bool:
+    """True when the first reading's fit does not describe the capture or leaves over
+    STRUCTURE_RATIO times the noise."""
+    return first.adequacy is not None and (not first.describes_data
+                                           or first.adequacy.misfit_ratio > STRUCTURE_RATIO)
+
+
+def better_reading(first: FitResult, other: FitResult) -> bool:
+    """True when ``other`` describes the capture and, if ``first`` does too, leaves less misfit
+    and at most MISFIT_RATIO times the noise."""
+    if not other.describes_data:
+        return False
+    if not first.describes_data:
+        return True
+    ratio = other.adequacy.misfit_ratio if other.adequacy is not None else 1.0
+    return ratio <= MISFIT_RATIO and ratio < first.adequacy.misfit_ratio
+
+
+def one_response_note(analysis: StepAnalysis, reading: StepAnalysis, misfit_ratio: float) -> str:
+    """Why the capture was read as one response: the edges set aside and the misfit of the
+    first reading (residual RMS over noise)."""
+    at = reading.segments[0].edge_time
+    others = [e.time for e in analysis.edges[1:5]]
+    where = ", ".join(format_value(t, "s") for t in others)
+    return (f"read as one response to the edge at {format_value(at, 's')}: with its window ending at the "
+            f"output's next swing{' (at ' + where + ')' if where else ''} taken as a drive edge, the fit left "
+            f"residuals {misfit_ratio:.1f} times the noise; the output's swings after the edge are taken as the "
+            "response's own return (a band-pass or high-pass response), which the output alone cannot tell "
+            "from a drive that switched again: record the drive on a second channel to decide")
