@@ -37,21 +37,18 @@ from ..units import format_value
 from .adequacy import MISFIT_RATIO, STRUCTURE_RATIO
 
 
-#: A response's own return crosses the level search's hysteresis band (25 % to 75 %) once or
-#: twice: a Q = 3 band-pass swings back by 35 % of its peak. More edges than this are a drive
-#: that switched (a square wave), and the whole record is not read as one response.
-MAX_SWINGS = 4
-
-
 def one_response_reading(capture: Capture, analysis: StepAnalysis,
                          edge_time: float | None = None) -> StepAnalysis | None:
     """The capture conditioned as the output's response to its first edge alone (or to the
     forced ``edge_time``, s), the window running to the record's ends; None when the
-    analysis has a drive channel, averages its edges, found more than MAX_SWINGS, or its
-    first window already runs to the end of the record."""
+    analysis has a drive channel, averages its edges, or its first window already runs to
+    the end of the record. A square wave read this way is not described by any step form
+    (its later edges swing the output back and forth), so only a capture that holds one
+    response is changed by it; the cost is one more fit, and only for a first reading
+    that left over STRUCTURE_RATIO times the noise."""
     if analysis.input_channel is not None or analysis.averaged or not analysis.segments or not analysis.edges:
         return None
-    if analysis.segments[0].stop >= capture.n_points or len(analysis.edges) > MAX_SWINGS:
+    if analysis.segments[0].stop >= capture.n_points:
         return None
     at = edge_time if edge_time is not None else float(capture.time[analysis.edges[0].onset_index])
     try:
@@ -79,14 +76,16 @@ def better_reading(first: FitResult, other: FitResult) -> bool:
     return ratio <= MISFIT_RATIO and ratio < first.adequacy.misfit_ratio
 
 
-def one_response_note(analysis: StepAnalysis, reading: StepAnalysis, misfit_ratio: float) -> str:
+def one_response_note(analysis: StepAnalysis, reading: StepAnalysis, misfit_ratio: float | None) -> str:
     """Why the capture was read as one response: the edges set aside and the misfit of the
-    first reading (residual RMS over noise)."""
+    first reading (residual RMS over noise; None when no form could be fitted to it)."""
     at = reading.segments[0].edge_time
     others = [e.time for e in analysis.edges[1:5]]
     where = ", ".join(format_value(t, "s") for t in others)
+    outcome = ("no form could be fitted" if misfit_ratio is None
+               else f"the fit left residuals {misfit_ratio:.1f} times the noise")
     return (f"read as one response to the edge at {format_value(at, 's')}: with its window ending at the "
-            f"output's next swing{' (at ' + where + ')' if where else ''} taken as a drive edge, the fit left "
-            f"residuals {misfit_ratio:.1f} times the noise; the output's swings after the edge are taken as the "
+            f"output's next swing{' (at ' + where + ')' if where else ''} taken as a drive edge, {outcome}; "
+            "the output's swings after the edge are taken as the "
             "response's own return (a band-pass or high-pass response), which the output alone cannot tell "
             "from a drive that switched again: record the drive on a second channel to decide")

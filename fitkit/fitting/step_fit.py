@@ -206,6 +206,12 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
         result = _fit_analysis(capture, analysis, **options)
         note = f"--average not used: {err.message}; every edge fitted jointly instead"
         result = dataclasses.replace(result, warnings=(note,) + tuple(result.warnings))
+    except FitError:
+        # the edges found in the output could not be fitted: perhaps they are one response's swings
+        alt = _as_one_response(capture, analysis, None, edge_time, options) if pulse_width is None else None
+        if alt is None:
+            raise
+        return alt
     if pulse_width is not None and analysis.input_channel is None and not result.describes_data:
         # without a drive channel the output's own edges locate the pulses; a ringing response
         # crosses its levels many times, and then its edges fitted one by one (each with the
@@ -218,14 +224,9 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
                     "(each with the previous edge's tail) describe the capture")
             return dataclasses.replace(plain, warnings=(note,) + tuple(plain.warnings))
     if pulse_width is None and worth_reading_again(result):
-        reading = one_response_reading(capture, analysis, edge_time)
-        try:
-            alt = None if reading is None else _fit_analysis(capture, reading, **options)
-        except FitkitError:
-            alt = None
-        if alt is not None and better_reading(result, alt):
-            note = one_response_note(analysis, reading, result.adequacy.misfit_ratio)
-            return dataclasses.replace(alt, warnings=(note,) + tuple(alt.warnings))
+        alt = _as_one_response(capture, analysis, result, edge_time, options)
+        if alt is not None:
+            return alt
     if result.describes_data or (input is not None and output is not None):
         return result
     tried = []
@@ -251,6 +252,22 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
             "; ".join(tried) + ")"
         result = dataclasses.replace(result, adequacy=replace(result.adequacy, finding=finding))
     return result
+
+
+def _as_one_response(capture: Capture, analysis, first: FitResult | None, edge_time: float | None,
+                     options: dict) -> FitResult | None:
+    """The capture fitted as one response to its first (or forced) edge
+    (fitting/one_response.py), with the note that says so, when that reading describes it
+    better than ``first`` (None: the first reading could not be fitted at all); else None."""
+    reading = one_response_reading(capture, analysis, edge_time)
+    try:
+        alt = None if reading is None else _fit_analysis(capture, reading, **options)
+    except FitkitError:
+        return None
+    if alt is None or not (alt.describes_data if first is None else better_reading(first, alt)):
+        return None
+    note = one_response_note(analysis, reading, None if first is None else first.adequacy.misfit_ratio)
+    return dataclasses.replace(alt, warnings=(note,) + tuple(alt.warnings))
 
 
 def _fit_analysis(capture: Capture, analysis, *, model, edge_time, average, candidates, intervals,
