@@ -51,18 +51,25 @@ def _write(tmp_path, t, y, name="band_pass.csv"):
     return path
 
 
+def _read_as_one_response(records) -> dict[str, int]:
+    """For each (time, volts, f0, Q): the fit is the underdamped band-pass read as one
+    response; returns how many of f0's and Q's intervals hold the truth."""
+    held = {"f0": 0, "Q": 0}
+    for i, (t, v, f0, q) in enumerate(records):
+        result = fit_capture(_capture(t, v))
+        assert result.describes_data and result.model == "underdamped-band-pass", i
+        assert result.warnings[0].startswith("read as one response to the edge at"), i
+        for name, truth in (("f0", f0), ("Q", q)):
+            lo, hi = result.parameters[name].ci95
+            held[name] += lo <= truth <= hi
+    return held
+
+
 def test_band_pass_return_is_not_a_drive_edge():
     """The level search finds the response's return as a falling edge; that reading does not
     describe the capture, the one-response reading does, and f0 and Q hold the truth as often
     as 95 % intervals should (40 noise draws; 100 draws gave 97 % and 95 %)."""
-    held = {"f0": 0, "Q": 0}
-    for seed in range(40):
-        result = fit_capture(_capture(*_band_pass_record(seed)))
-        assert result.describes_data and result.model == "underdamped-band-pass", seed
-        assert result.warnings[0].startswith("read as one response to the edge at"), seed
-        for name, truth in (("f0", F0), ("Q", Q)):
-            lo, hi = result.parameters[name].ci95
-            held[name] += lo <= truth <= hi
+    held = _read_as_one_response((_band_pass_record(seed) + (F0, Q) for seed in range(40)))
     assert min(held.values()) >= 35, held
 
 
@@ -133,15 +140,7 @@ def test_ringing_swings_found_as_edges_are_one_response():
     a drive edge (read as an underdamped low-pass, or no form fitted at all); read as one
     response, f0 and Q hold the truth (the board-check grid's output-only series RLC with
     R1 a decade low had read R1 6.6 Ohm [5.9, 7.4] for 10 Ohm)."""
-    held = {"f0": 0, "Q": 0}
-    for seed in range(8):
-        t, v, f0, q = _ringing_record(seed)
-        result = fit_capture(_capture(t, v))
-        assert result.describes_data and result.model == "underdamped-band-pass", seed
-        assert result.warnings[0].startswith("read as one response"), seed
-        for name, truth in (("f0", f0), ("Q", q)):
-            lo, hi = result.parameters[name].ci95
-            held[name] += lo <= truth <= hi
+    held = _read_as_one_response(_ringing_record(seed) for seed in range(8))
     assert min(held.values()) >= 7, held
 
 
