@@ -27,11 +27,11 @@ import numpy as np
 from ..capture import Capture
 from ..circuits import transfer_function
 from ..conditioning import analyse_steps
-from ..errors import AverageSmearedError, FitkitError
+from ..errors import AverageSmearedError, FitError, FitkitError
 from ..results import Estimate, FitResult
 from .design import Design, load_design, resolve_limits
 from ..fitting.information import has_measured_input
-from ..fitting.one_response import better_reading, one_response_note, one_response_reading, worth_reading_again
+from ..fitting.one_response import as_one_response, worth_reading_again
 from .design import analysed_circuit
 from .diagnosis import Diagnosis, diagnose
 from .envelope import Envelope, EnvelopeComparison, compare, tolerance_envelope
@@ -156,21 +156,26 @@ def check_capture(capture: Capture, design: Design | str | Path, *, input: str |
     if not isinstance(design, Design):
         design = load_design(design)
     analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average)
+
+    def run(reading):
+        return _checked(capture, design, reading, envelope_trials, seed, "")
     try:
-        result = _checked(capture, design, analysis, envelope_trials, seed, "")
+        result = run(analysis)
     except AverageSmearedError as err:  # the average's alignment would bias it: every edge jointly
         analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time)
         result = _checked(capture, design, analysis, envelope_trials, seed, err.message)
-    reading = one_response_reading(capture, analysis, edge_time) if worth_reading_again(result.fit) else None
-    if reading is not None:  # the output's return may be the response's own, not a drive edge
-        try:
-            other = _checked(capture, design, reading, envelope_trials, seed, "")
-        except FitkitError:
-            other = None
-        if other is not None and better_reading(result.fit, other.fit):
-            note = one_response_note(analysis, reading, result.fit.adequacy.misfit_ratio)
-            return dataclasses.replace(other, warnings=(note,) + tuple(other.warnings))
+    except FitError:  # the edges found in the output could not be fitted: one response's swings?
+        other = as_one_response(capture, analysis, None, edge_time, run, _fit_of)
+        if other is None:
+            raise
+        return other
+    if worth_reading_again(result.fit):  # the output's return may be the response's own, not a drive edge
+        return as_one_response(capture, analysis, result.fit, edge_time, run, _fit_of) or result
     return result
+
+
+def _fit_of(result: CheckResult) -> FitResult:
+    return result.fit
 
 
 def _checked(capture: Capture, design: Design, analysis, envelope_trials: int, seed: int,

@@ -29,12 +29,18 @@ recorded on a second channel can.
 
 from __future__ import annotations
 
+import dataclasses
+from typing import Callable, TypeVar
+
 from ..capture import Capture
 from ..conditioning.analysis import StepAnalysis, analyse_steps
 from ..errors import FitkitError
 from ..results import FitResult
 from ..units import format_value
 from .adequacy import MISFIT_RATIO, STRUCTURE_RATIO
+
+#: a fit's or a check's result: a dataclass with ``warnings``
+Result = TypeVar("Result")
 
 
 def one_response_reading(capture: Capture, analysis: StepAnalysis,
@@ -89,3 +95,20 @@ def one_response_note(analysis: StepAnalysis, reading: StepAnalysis, misfit_rati
             "the output's swings after the edge are taken as the "
             "response's own return (a band-pass or high-pass response), which the output alone cannot tell "
             "from a drive that switched again: record the drive on a second channel to decide")
+
+
+def as_one_response(capture: Capture, analysis: StepAnalysis, first: FitResult | None, edge_time: float | None,
+                    run: Callable[[StepAnalysis], Result], fit_of: Callable[[Result], FitResult]) -> Result | None:
+    """``run`` (a fit or a check) on the capture read as one response (:func:`one_response_reading`),
+    its warnings led by :func:`one_response_note`, when that reading's fit (``fit_of`` its result)
+    describes the capture better than the first reading's fit ``first`` (None: the first reading
+    could not be fitted at all); else None."""
+    reading = one_response_reading(capture, analysis, edge_time)
+    try:
+        other = None if reading is None else run(reading)
+    except FitkitError:
+        return None
+    if other is None or not (fit_of(other).describes_data if first is None else better_reading(first, fit_of(other))):
+        return None
+    note = one_response_note(analysis, reading, None if first is None else first.adequacy.misfit_ratio)
+    return dataclasses.replace(other, warnings=(note,) + tuple(other.warnings))

@@ -31,7 +31,7 @@ from .information import has_measured_input
 from .region_estimates import beyond_range_sigmas
 from .estimates import derived_estimates, level_estimates, shape_estimates
 from .noise_record import NoiseRecord
-from .one_response import better_reading, one_response_note, one_response_reading, worth_reading_again
+from .one_response import as_one_response, worth_reading_again
 from .response_shape import moves_wrong_way, returns_to_baseline
 from .quantised import ROUNDED_GAUSSIAN, quantised_refit
 from .selection import (CRITERION, FALLBACK_CANDIDATES, Candidate, admissibility, choose, default_candidates,
@@ -196,8 +196,11 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
                    intervals=intervals, noise_record=noise_record, pulse_width=pulse_width)
     analysis = analyse_steps(capture, input=input, output=output, edge_time=edge_time, average=average,
                              pulse_width=pulse_width)
+
+    def run(reading):
+        return _fit_analysis(capture, reading, **options)
     try:
-        result = _fit_analysis(capture, analysis, **options)
+        result = run(analysis)
     except AverageSmearedError as err:
         # the average cannot give honest intervals here: every edge jointly instead, said so
         options["average"] = average = False
@@ -208,7 +211,7 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
         result = dataclasses.replace(result, warnings=(note,) + tuple(result.warnings))
     except FitError:
         # the edges found in the output could not be fitted: perhaps they are one response's swings
-        alt = _as_one_response(capture, analysis, None, edge_time, options) if pulse_width is None else None
+        alt = as_one_response(capture, analysis, None, edge_time, run, _itself) if pulse_width is None else None
         if alt is None:
             raise
         return alt
@@ -224,7 +227,7 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
                     "(each with the previous edge's tail) describe the capture")
             return dataclasses.replace(plain, warnings=(note,) + tuple(plain.warnings))
     if pulse_width is None and worth_reading_again(result):
-        alt = _as_one_response(capture, analysis, result, edge_time, options)
+        alt = as_one_response(capture, analysis, result, edge_time, run, _itself)
         if alt is not None:
             return alt
     if result.describes_data or (input is not None and output is not None):
@@ -254,20 +257,8 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
     return result
 
 
-def _as_one_response(capture: Capture, analysis, first: FitResult | None, edge_time: float | None,
-                     options: dict) -> FitResult | None:
-    """The capture fitted as one response to its first (or forced) edge
-    (fitting/one_response.py), with the note that says so, when that reading describes it
-    better than ``first`` (None: the first reading could not be fitted at all); else None."""
-    reading = one_response_reading(capture, analysis, edge_time)
-    try:
-        alt = None if reading is None else _fit_analysis(capture, reading, **options)
-    except FitkitError:
-        return None
-    if alt is None or not (alt.describes_data if first is None else better_reading(first, alt)):
-        return None
-    note = one_response_note(analysis, reading, None if first is None else first.adequacy.misfit_ratio)
-    return dataclasses.replace(alt, warnings=(note,) + tuple(alt.warnings))
+def _itself(result: FitResult) -> FitResult:
+    return result
 
 
 def _fit_analysis(capture: Capture, analysis, *, model, edge_time, average, candidates, intervals,
