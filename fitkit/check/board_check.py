@@ -195,7 +195,8 @@ def _checked(capture: Capture, design: Design, analysis, envelope_trials: int, s
     design_limits = resolve_limits(design, envelope.nominal_quantities)
     limits.update(design_limits)
     quantities = judge_quantities(estimates, limits, list(design_limits), envelope.nominal_quantities)
-    if not describes_capture(fit)[0]:  # the rejected fit's numbers are not measurements
+    described = describes_capture(fit)[0]
+    if not described:  # the rejected fit's numbers are not measurements
         quantities = tuple(dataclasses.replace(q, ci95=None, verdict="not determined") for q in quantities)
     comparison, env_volts = _compare(envelope, segments, fit, measured)
     diagnosis = None
@@ -210,7 +211,7 @@ def _checked(capture: Capture, design: Design, analysis, envelope_trials: int, s
         warnings.append(f"{100 * comparison.fraction_outside:.0f} % of the samples lie outside the tolerance "
                         "envelope by more than 3 noise sigma although every quantity is within its limits")
     resolve = _resolve(verdict, design, quantities, components, diagnosis, measured, analysis, span)
-    summary = _summary(verdict, quantities, diagnosis, design, describes_capture(fit)[0])
+    summary = _summary(verdict, quantities, diagnosis, design, described)
     return CheckResult(file, design, verdict, summary, components, quantities,
                        diagnosis.suspects if diagnosis else (), envelope, comparison, tuple(resolve),
                        tuple(dict.fromkeys(warnings)), fit, diagnosis, measured, env_volts,
