@@ -163,3 +163,25 @@ def test_check_whose_fit_does_not_describe_reports_no_measurement():
     assert "not measurements" in result.summary
     assert {q.name for q in result.quantities} == {"f0", "Q"}
     assert all(q.ci95 is None and q.verdict == "not determined" for q in result.quantities)
+
+
+def test_a_square_wave_of_many_edges_is_not_read_as_one_response():
+    """The second reading costs the whole record's fit and no step form describes a square
+    wave that way (a 20-edge square wave took 64 s): over MAX_SWINGS edges it is not tried.
+    Capture: an RC square wave, 1 - exp(-t/tau) per edge (the textbook step response)."""
+    from fitkit.conditioning import analyse_steps
+    from fitkit.fitting.one_response import MAX_SWINGS, one_response_reading
+
+    t = np.arange(20_000) * 1e-7
+    half = 1_000
+    y = np.zeros_like(t)
+    for k in range(20):
+        after = np.clip(t - (k * half + half // 2) * 1e-7, 0, None)
+        y += (-1) ** k * np.where(after > 0, 1 - np.exp(-after / 1e-5), 0.0)
+    capture = _capture(t, y + np.random.default_rng(9).normal(0, 3e-3, t.size))
+    analysis = analyse_steps(capture)
+    assert len(analysis.edges) > MAX_SWINGS
+    assert one_response_reading(capture, analysis) is None
+    short = _capture(t[:4 * half], y[:4 * half] + np.random.default_rng(10).normal(0, 3e-3, 4 * half))
+    few = analyse_steps(short)
+    assert 1 < len(few.edges) <= MAX_SWINGS and one_response_reading(short, few) is not None

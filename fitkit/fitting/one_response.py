@@ -43,18 +43,25 @@ from .adequacy import MISFIT_RATIO, STRUCTURE_RATIO
 Result = TypeVar("Result")
 
 
+#: A capture with more edges than this is not read as one response. A band-pass step's own
+#: swings crossed the levels 4 to 10 times at Q = 32 (3 mV of band-limited noise on 1 V). A
+#: square wave read as one response is described by no form but costs the whole record's
+#: fit: 1.0 s at 4 edges, 2.5 s at 10, 64 s at 20 and 39 s at 200 (100k samples, CPU).
+MAX_SWINGS = 10
+
+
 def one_response_reading(capture: Capture, analysis: StepAnalysis,
                          edge_time: float | None = None) -> StepAnalysis | None:
     """The capture conditioned as the output's response to its first edge alone (or to the
     forced ``edge_time``, s), the window running to the record's ends; None when the
-    analysis has a drive channel, averages its edges, or its first window already runs to
-    the end of the record. A square wave read this way is not described by any step form
-    (its later edges swing the output back and forth), so only a capture that holds one
-    response is changed by it; the cost is one more fit, and only for a first reading
-    that left over STRUCTURE_RATIO times the noise."""
+    analysis has a drive channel, averages its edges, found more than MAX_SWINGS of them,
+    or its first window already runs to the end of the record. A square wave read this way
+    is not described by any step form (its later edges swing the output back and forth), so
+    only a capture that holds one response is changed by it; the cost is one more fit, and
+    only for a first reading that left over STRUCTURE_RATIO times the noise."""
     if analysis.input_channel is not None or analysis.averaged or not analysis.segments or not analysis.edges:
         return None
-    if analysis.segments[0].stop >= capture.n_points:
+    if analysis.segments[0].stop >= capture.n_points or len(analysis.edges) > MAX_SWINGS:
         return None
     at = edge_time if edge_time is not None else float(capture.time[analysis.edges[0].onset_index])
     try:
