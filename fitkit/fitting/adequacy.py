@@ -169,7 +169,7 @@ def assess(ff, noise_rms: float, lag1: float) -> Adequacy:
         structured = math.isfinite(lag1) and lag1 > LAG1_STRUCTURED
     drifting = [e for e in edges if e.quiet_drift_share > DRIFT_SHARE_REFUSED and e.quiet_drift_z > DRIFT_Z]
     segments = getattr(ff.joint, "segments", ())
-    on_baselines = bool(segments) and all(getattr(seg, "noise_on_baseline", False) for seg in segments)
+    on_baselines = bool(segments) and all(seg.noise_on_baseline for seg in segments)
     ceiling = MISFIT_CEILING_BASELINE if on_baselines else MISFIT_CEILING
     describes = not (math.isfinite(ratio) and (ratio > ceiling or (ratio > MISFIT_RATIO and structured)))
     finding = ""

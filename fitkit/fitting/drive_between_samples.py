@@ -68,7 +68,7 @@ def drive_jump_terms(joint: JointModel, fit: ModelFit) -> tuple[np.ndarray, spar
     middles: dict[float, tuple[np.ndarray, np.ndarray]] = {}  # step response and slope at interval middles
     offset = 0
     for d in joint.data:
-        n = d.y.size
+        n, start = d.y.size, offset
         b = np.zeros(n)
         sharp.append(b)
         offset += n
@@ -81,13 +81,13 @@ def drive_jump_terms(joint: JointModel, fit: ModelFit) -> tuple[np.ndarray, spar
         if total == 0.0 or abs(du[j]) < JUMP_SHARE * abs(total):
             continue
         if d.dt not in middles:
+            # closed-form slopes where the form has them; differences a quarter sample wide,
+            # off the edge's kink, where it has not
             x = (np.arange(1, longest + 1) - 0.5) * d.dt
-            h = 0.25 * d.dt
-            slope = (joint.form.unit_step(x + h, **shape) - joint.form.unit_step(x - h, **shape)) / (2 * h)
-            middles[d.dt] = (joint.form.unit_step(x, **shape), slope)
+            middles[d.dt] = joint.form.step_and_derivatives(x, 0.25 * d.dt, **shape)[:2]
         step_mid, slope = middles[d.dt]
         b[j:] = gain * du[j] * (step_mid[:n - j] - joint.kernel_for(shape, d.dt)[1:n - j + 1])
-        rows.append(offset - n + np.arange(j, n))
+        rows.append(start + np.arange(j, n))
         vals.append(-gain * du[j] * slope[:n - j] * d.dt / math.sqrt(12.0))
         cols.append(np.full(n - j, len(cols)))
     if not rows:
@@ -99,8 +99,9 @@ def drive_jump_terms(joint: JointModel, fit: ModelFit) -> tuple[np.ndarray, spar
 
 def with_drive_between_samples(joint: JointModel, fit: ModelFit, correction: Correction
                                ) -> tuple[Correction, str]:
-    """The correction with the unresolved drive jump's systematic term added to
-    its covariance, and a plain-words note ("" when nothing was added)."""
+    """The correction with the drive's unresolved jumps added to its covariance (the
+    shape term and the random position term, :func:`drive_jump_terms`), and a plain-words
+    note ("" when nothing was added)."""
     terms = drive_jump_terms(joint, fit)
     if terms is None or fit.singular:
         return correction, ""
