@@ -13,13 +13,20 @@ automatically) and with ``--average`` (coherent average per direction); "output"
 mode keeps only the output channel (ideal-step model with per-edge delays),
 "input" mode keeps the drive (the model driven by the measured input).
 
-Reported: wall and CPU time of the fit, the child's peak memory, the form
+Reported: wall and CPU time of the fit (the best of up to three fits in the
+child while they take under 5 s together: the first pays for modules imported
+when first used), the child's peak memory, the form
 chosen, tau (RC) or f0 and Q (underdamped) with their 95 % intervals from
 both fits, and the Cramer-Rao bound of the joint model (see
 :func:`joint_bound`): per edge a baseline, a step and an edge time (output
 mode) or a baseline and one shared gain (input mode, edge times known), and
 the shared shape; white noise. The joint fit's standard error over that bound
 is its efficiency as the report states it.
+
+For the issue's target captures (200 edges, 100,000 samples) the command is
+also timed as a user runs it, ``fitkit fit FILE`` against ``fitkit fit
+--average FILE`` (``--input none`` in output mode): the wall time of the whole
+process (start-up, reading the file, the fit and the report), best of three.
 """
 
 from __future__ import annotations
@@ -57,20 +64,26 @@ from fitkit.fitting import fit_capture, fit_segments
 path, mode, average = sys.argv[1], sys.argv[2], sys.argv[3] == "average"
 channels = ["output"] if mode == "output" else None
 cap = load_capture(path, channels=channels)
-t = time.perf_counter()
-c = time.process_time()
-if average:
-    # the averaged fit itself (fit_capture would go on to the joint fit when the
-    # average is refused as smeared by its alignment; that refusal is recorded)
-    try:
-        r = fit_segments(analyse_steps(cap, average=True).segments)
-    except AverageSmearedError as err:
-        print(json.dumps({"fit_s": time.perf_counter() - t, "fit_cpu_s": time.process_time() - c,
-                          "model": "-", "refused": err.message}))
-        sys.exit(0)
-else:
-    r = fit_capture(cap)
-out = {"fit_s": time.perf_counter() - t, "fit_cpu_s": time.process_time() - c, "model": r.model,
+walls, cpus = [], []
+while True:  # the first fit pays for modules imported when first used; repeated while cheap
+    t = time.perf_counter()
+    c = time.process_time()
+    if average:
+        # the averaged fit itself (fit_capture would go on to the joint fit when the
+        # average is refused as smeared by its alignment; that refusal is recorded)
+        try:
+            r = fit_segments(analyse_steps(cap, average=True).segments)
+        except AverageSmearedError as err:
+            print(json.dumps({"fit_s": time.perf_counter() - t, "fit_cpu_s": time.process_time() - c,
+                              "model": "-", "refused": err.message}))
+            sys.exit(0)
+    else:
+        r = fit_capture(cap)
+    walls.append(time.perf_counter() - t)
+    cpus.append(time.process_time() - c)
+    if len(cpus) == 3 or sum(walls) > 5.0:
+        break
+out = {"fit_s": min(walls), "fit_cpu_s": min(cpus), "fit_cpu_runs_s": cpus, "model": r.model,
        "edges_fitted": len(r.segments)}
 for name in ("tau", "tau1", "f0", "Q"):
     e = r.parameters.get(name) or r.derived.get(name)
@@ -231,6 +244,15 @@ def run_child(cmd_runner, path: Path, mode: str, average: bool, timeout: float) 
     return res
 
 
+def run_command(cmd_runner, path: Path, mode: str, average: bool, timeout: float) -> dict:
+    """The ``fitkit fit`` command on the file, as a user runs it: best wall and CPU of three runs."""
+    cmd = [sys.executable, "-m", "fitkit", "fit", str(path)] + (["--input", "none"] if mode == "output" else []) \
+        + (["--average"] if average else [])
+    res = cmd_runner(cmd, 3, timeout)
+    res.pop("stdout", None)
+    return res
+
+
 def study(edges: list[int], samples: list[int], responses: list[str], modes: list[str], measured,
           timeout: float) -> list[dict]:
     """Every combination: the joint fit and the averaged fit, with the bound."""
@@ -246,6 +268,9 @@ def study(edges: list[int], samples: list[int], responses: list[str], modes: lis
                         row = {"truth": tr, "mode": mode, "bound": joint_bound(tr, mode),
                                "joint": run_child(measured, path, mode, False, timeout),
                                "average": run_child(measured, path, mode, True, timeout)}
+                        if m == 200 and n == 100_000:  # the issue's target capture, also as a command
+                            row["command_joint"] = run_command(measured, path, mode, False, timeout)
+                            row["command_average"] = run_command(measured, path, mode, True, timeout)
                         rows.append(row)
                         print(json.dumps(_brief(row)), flush=True)
                     path.unlink()
@@ -266,7 +291,12 @@ def targets(rows: list[dict]) -> dict:
         tr = row["truth"]
         if tr["edges"] == 200 and tr["samples"] == 100_000 and "fit_cpu_s" in row["joint"]:
             ratio = row["joint"]["fit_cpu_s"] / row["average"]["fit_cpu_s"]
-            out[f"200 edges {tr['response']} {row['mode']}: joint / average CPU {ratio:.1f} (target <= 3)"] = ratio <= 3
+            out[f"200 edges {tr['response']} {row['mode']}: the fit alone, joint / average CPU {ratio:.1f} "
+                "(target <= 3)"] = ratio <= 3
+        if "wall_s" in row.get("command_joint", {}) and "wall_s" in row.get("command_average", {}):
+            cj, ca = row["command_joint"]["wall_s"], row["command_average"]["wall_s"]
+            out[f"200 edges {tr['response']} {row['mode']}: the command, fitkit fit / fitkit fit --average wall "
+                f"{cj:.2f} / {ca:.2f} s = {cj / ca:.1f} (target <= 3)"] = cj / ca <= 3
     # "time per edge flat from 10 to 1,000 edges (within 2x)": per edge never more
     # than twice what it is with the fewest edges (the cost grows at most linearly)
     per_edge: dict[tuple, list[tuple[int, float]]] = {}

@@ -133,6 +133,7 @@ def test_a_form_a_set_aside_candidate_far_outfits_is_refused(monkeypatch):
     textbook RC step response 1 - exp(-t/tau)."""
     import dataclasses
 
+    import fitkit.fitting.further_forms as further_forms
     import fitkit.fitting.step_fit as step_fit
 
     t, _, y, _ = rc_square_wave(20_000, 12, 1e-7, sigma=0.03, seed=3)
@@ -147,7 +148,8 @@ def test_a_form_a_set_aside_candidate_far_outfits_is_refused(monkeypatch):
             ff = dataclasses.replace(ff, fit=dataclasses.replace(ff.fit, converged=False, message="forced"))
         return ff
 
-    monkeypatch.setattr(step_fit, "fit_form", first_order_fails)
+    monkeypatch.setattr(step_fit, "fit_form", first_order_fails)  # the fit to every edge
+    monkeypatch.setattr(further_forms, "fit_form", first_order_fails)  # the candidates
     result = fit_capture(cap)
     assert result.model == "critically-damped"
     assert result.adequacy.misfit_ratio < 2.0  # the gate alone would have passed it

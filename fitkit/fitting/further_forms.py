@@ -103,18 +103,26 @@ def rescued(chosen: Candidate, scores, reason: str, sel_warn: list[str], cands: 
     return best, _rescored(scores, crit, tried_now, best), reason, list(sel_warn)
 
 
-def _fitted(form, segments: Sequence[StepSegment], dt: float, kwargs: dict) -> Candidate | None:
-    """``form`` fitted to the segments as a candidate (its shape and admissibility), or None when
-    the fit fails or does not converge."""
+def fitted_candidate(form, segments: Sequence[StepSegment], dt: float, kwargs: dict,
+                     shape_start: dict[str, float] | None = None) -> Candidate:
+    """``form`` fitted to the segments as a candidate: its shape and admissibility, or, when the fit
+    fails or does not converge, a candidate without a shape that says why. shape_start: physical
+    shape values to start from (see form_fit.fit_form)."""
     try:
-        ff = fit_form(segments, form, **kwargs)
-    except FitError:
-        return None
+        ff = fit_form(segments, form, shape_start=shape_start, **kwargs)
+    except FitError as err:
+        return Candidate(form, None, {}, False, err.message)
     if not ff.converged:
-        return None
+        return Candidate(form, ff, {}, False, "did not converge")
     shape, _ = shape_estimates(ff, "covariance")
     ok, why = admissibility(form, shape, dt)
     return Candidate(form, ff, shape, ok, why)
+
+
+def _fitted(form, segments: Sequence[StepSegment], dt: float, kwargs: dict) -> Candidate | None:
+    """``form`` fitted to the segments as a candidate, or None when the fit fails or does not converge."""
+    cand = fitted_candidate(form, segments, dt, kwargs)
+    return cand if cand.fit is not None and cand.fit.converged else None
 
 
 def _rescored(scores, crit: float, added: list[tuple[Candidate, float]], chosen: Candidate) -> tuple:

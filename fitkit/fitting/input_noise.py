@@ -14,11 +14,11 @@ broadband noise), so it is added from a separate estimate of the input noise:
 
 (first-order propagation of errors in the regressor, "errors in variables"),
 with Sigma_n the Toeplitz covariance of the input noise within each edge.
-The noise's autocovariance is estimated from the input's points before the
-edge (where the input is at rest), smoothed by an autoregressive model
-(Yule-Walker, order by AIC) so that its long-run variance is stable; with
-too few points before the edge the noise is taken as white with the variance
-of the input's first differences / 2. Sigma_n M is computed by FFT
+The noise's autocovariance is estimated where the input rests (before each
+edge, and late in its window), pooled over the edges of one direction, and
+smoothed by an autoregressive model (Yule-Walker, order by AIC) so that its
+long-run variance is stable; with no rest long enough the noise is taken as
+white with the variance of the input's first differences / 2. Sigma_n M is computed by FFT
 (scipy.linalg.matmul_toeplitz), L^T by the adjoint in :mod:`.measured_input`.
 """
 
@@ -40,48 +40,79 @@ MIN_PRE_EDGE_POINTS = 32
 SETTLED_SHARE = 0.2
 
 
-def input_noise_autocovariance(joint: JointModel, i: int) -> np.ndarray:
-    """Autocovariance gamma(0..n-1) of the normalised input noise of edge i at the fit's resolution.
+def input_noise_autocovariances(joint: JointModel) -> list[np.ndarray]:
+    """Autocovariance gamma(0..n_i-1) of the normalised input noise of every edge i, at the fit's resolution.
 
-    Estimated where the drive rests: before the edge, and (unbinned) over the second half of
-    the window when the drive rests there too (its range under SETTLED_SHARE of the edge's
-    step; a straight line taken out); the larger long-run variance of the two is kept. A
-    drive rounded to codes with noise below one code has noise that depends on where its
-    level sits between two codes (a level near a code's middle rarely flickers, one near
-    its edge often does), so the level before the edge can understate the noise at the
-    level after it, which drives most of the window (Widrow & Kollar, Quantization Noise, Cambridge UP 2008, ch. 4, from memory:
-    the rounding error is not independent of the signal when the noise is under a code).
+    The drive's noise is one process over the record (the generator's and the scope channel's),
+    so it is estimated once for each group of edges of the same direction and bin width, from
+    the rests of all of them together: their points before the edge, and (unbinned) the second
+    half of each window where the drive rests there too (its range under SETTLED_SHARE of the
+    edge's step; a straight line taken out of each). The larger long-run variance of the two
+    pooled estimates is kept. One edge's rests hold a few hundred points, so an estimate per
+    edge varied from edge to edge and the larger of two such overstated the noise; pooled, a
+    square wave of hundreds of edges also needs one autoregressive model, not hundreds.
+
+    The before and after rests are kept apart because a drive rounded to codes with noise below
+    one code has noise that depends on where its level sits between two codes (a level near a
+    code's middle rarely flickers, one near its edge often does), so the level before the edge
+    can understate the noise at the level after it, which drives most of the window (Widrow &
+    Kollar, Quantization Noise, Cambridge UP 2008, ch. 4, from memory: the rounding error is
+    not independent of the signal when the noise is under a code). A group with no rest at all
+    takes white noise from each edge's first differences.
     """
-    d = joint.data[i]
+    groups: dict[tuple[float, int], list[int]] = {}
+    rests = [_rests(joint.data[i]) for i in range(len(joint.data))]
+    for i, d in enumerate(joint.data):
+        groups.setdefault((rests[i][2], d.bin_size), []).append(i)
+    out: list[np.ndarray] = [np.zeros(0)] * len(joint.data)
+    for members in groups.values():
+        n = max(joint.data[i].u.size for i in members)
+        pooled = [_rest_autocovariance(pieces, n) for pieces in
+                  ([rests[i][0] for i in members if rests[i][0] is not None],
+                   [rests[i][1] for i in members if rests[i][1] is not None]) if pieces]
+        if pooled:
+            gamma = max(pooled, key=lambda g: g[0] + 2 * g[1:].sum())
+            for i in members:
+                out[i] = gamma[:joint.data[i].u.size]
+            continue
+        for i in members:  # white noise from the first differences (their median ignores the edge)
+            gamma = np.zeros(joint.data[i].u.size)
+            sigma = noise_from_differences(joint.data[i].u)
+            if np.isfinite(sigma):
+                gamma[0] = sigma ** 2
+            out[i] = gamma
+    return out
+
+
+def _rests(d) -> tuple[np.ndarray | None, np.ndarray | None, float]:
+    """One edge's rests of the drive: (its points before the edge, the second half of its window
+    with a straight line taken out), each None when it does not count as a rest, and the sign
+    of the edge's step."""
     n = d.u.size
     before = d.u[d.u_initial_weights > 0] if d.u_initial_weights is not None else np.zeros(0)
-    rests = [before] if before.size >= MIN_PRE_EDGE_POINTS else []
     after = d.u[n // 2:] if d.bin_size == 1 else np.zeros(0)
     initial = d.u_initial if d.u_initial is not None else (float(d.u[0]) if n else 0.0)
-    step = abs(float(np.mean(after)) - initial) if after.size else 0.0
-    if after.size >= MIN_PRE_EDGE_POINTS and float(np.ptp(after)) < SETTLED_SHARE * step:
+    step = float(np.mean(after)) - initial if after.size else 0.0
+    rest_after = None
+    if after.size >= MIN_PRE_EDGE_POINTS and float(np.ptp(after)) < SETTLED_SHARE * abs(step):
         # a slow drift of the level (a loaded generator settling) is not noise: a line is taken out
         k = np.arange(after.size, dtype=float)
-        rests.append(after - np.polyval(np.polyfit(k, after, 1), k))
-    if rests:
-        return max((_rest_autocovariance(rest, n) for rest in rests), key=lambda g: g[0] + 2 * g[1:].sum())
-    gamma = np.zeros(n)
-    # white noise from the first differences (the one estimator; its median ignores the edge itself)
-    sigma = noise_from_differences(d.u)
-    if np.isfinite(sigma):
-        gamma[0] = sigma ** 2
-    return gamma
+        rest_after = after - np.polyval(np.polyfit(k, after, 1), k)
+    direction = float(np.sign(np.mean(d.u[n // 2:]) - initial)) if n else 0.0
+    return (before if before.size >= MIN_PRE_EDGE_POINTS else None), rest_after, direction
 
 
-def _rest_autocovariance(rest: np.ndarray, n: int) -> np.ndarray:
-    """Autocovariance gamma(0..n-1) of the noise of a stretch where the drive rests: its
-    variance and an autoregressive model of its autocorrelation (Yule-Walker, order by AIC)."""
+def _rest_autocovariance(rests: list[np.ndarray], n: int) -> np.ndarray:
+    """Autocovariance gamma(0..n-1) of the noise of stretches where the drive rests, pooled:
+    their variance about each one's mean and an autoregressive model of their autocorrelation
+    (Yule-Walker, order by AIC)."""
     gamma = np.zeros(n)
-    e = rest - rest.mean()
-    var = float(e @ e) / max(e.size - 1, 1)
-    max_lag = int(min(e.size // 4, 200))
-    rho = residual_autocorrelation([e], max_lag)
-    model_rho, _ = autoregressive_autocorrelation(rho, e.size, max_lag=min(n - 1, 4 * max_lag) or 1)
+    centred = [r - r.mean() for r in rests]
+    points = sum(e.size for e in centred)
+    var = sum(float(e @ e) for e in centred) / max(points - len(centred), 1)
+    max_lag = int(min(max(e.size for e in centred) // 4, 200))
+    rho = residual_autocorrelation(centred, max_lag)
+    model_rho, _ = autoregressive_autocorrelation(rho, points, max_lag=min(n - 1, 4 * max_lag) or 1)
     m = min(model_rho.size, n)
     gamma[:m] = var * model_rho[:m]
     return gamma
@@ -104,6 +135,7 @@ def input_noise_covariance(joint: JointModel, jacobian: np.ndarray, bread: np.nd
     dc = getattr(joint.form, "final_value", 1.0)
     w2 = joint.weights ** 2
     jacobian = by_rows(jacobian)
+    gammas = input_noise_autocovariances(joint)
     for i, d in enumerate(joint.data):
         lo, hi = joint.bounds[i], joint.bounds[i + 1]
         n = hi - lo
@@ -111,7 +143,7 @@ def input_noise_covariance(joint: JointModel, jacobian: np.ndarray, bread: np.nd
         weights = d.u_initial_weights if d.u_initial_weights is not None else np.eye(1, n)[0]
         cols, block = edge_columns(jacobian, lo, hi)  # the columns that move this edge
         m = superposition_adjoint(kernel, dc, weights, w2[lo:hi, None] * block)
-        gamma = input_noise_autocovariance(joint, i)
+        gamma = gammas[i]
         if not np.any(gamma):
             continue
         sm = linalg.matmul_toeplitz(gamma, m, check_finite=False)

@@ -272,10 +272,17 @@ class JointModel:
     def level_columns(self, values: Mapping[str, float]) -> dict[str, tuple[np.ndarray, np.ndarray]] | None:
         """The Jacobian columns of every edge's baseline, step and delay, in closed
         form: {name: (points, d model / d value)} over the points each one moves
-        (the delay also moves the next edge's points, through its tail). Ideal-step
-        mode of at least STACKED_FROM_EDGES edges only; None otherwise."""
-        if self.measured_input or len(self.data) < STACKED_FROM_EDGES:
+        (the delay also moves the next edge's points, through its tail); in
+        measured-input mode every edge's baseline and the common gain. At least
+        STACKED_FROM_EDGES edges only; None otherwise."""
+        if len(self.data) < STACKED_FROM_EDGES:
             return None
+        if self.measured_input:  # the model is baseline_i + gain * (the input's response)
+            response = self.input_responses(self.shape_scaled(values))
+            columns = {"gain": (np.arange(response.size), response)}
+            for i, (lo, hi) in enumerate(zip(self.bounds[:-1], self.bounds[1:])):
+                columns[f"baseline_{i}"] = (np.arange(lo, hi), np.ones(hi - lo))
+            return columns
         st = self.stacked
         delays = self.delays_of(values)
         shape = self.shape_scaled(values)

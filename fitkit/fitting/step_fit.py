@@ -26,7 +26,7 @@ from ..results import (ChannelRoles, Estimate, FitDetails, FitDiagnostics, FitRe
 from .adequacy import STRUCTURE_RATIO, assess, capture_noise, drift_warning
 from .alignment_smear import SMEAR_LIMIT, smear_bias
 from .form_fit import FormFit, fit_form, sample_interval
-from .further_forms import rescued, with_dead_time
+from .further_forms import fitted_candidate, rescued, with_dead_time
 from .information import has_measured_input
 from .region_estimates import beyond_range_sigmas
 from .estimates import derived_estimates, level_estimates, shape_estimates
@@ -116,24 +116,25 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         # leaves correlated residuals, and refitting it whitened cost seconds per
         # candidate); the chosen form's fit to every edge is whitened as usual
         select_kwargs = dict(select_kwargs, whitened_refit=False)
+    fitted_early: dict[str, Candidate] = {}
     while queue:
         f = queue.pop(0)
         rings = _rings(cands) if f.name in REAL_POLES_ONLY else ""
-        if rings:
+        if f.name in fitted_early:
+            cands.append(fitted_early.pop(f.name))
+        elif rings:
             cands.append(Candidate(f, None, {}, False, rings))
             continue
-        try:
-            ff = fit_form(trial, f, **select_kwargs)
-        except FitError as err:
-            cands.append(Candidate(f, None, {}, False, err.message))
-            continue
-        if not ff.converged:
-            cands.append(Candidate(f, ff, {}, False, "did not converge"))
-            continue
-        shape, _ = shape_estimates(ff, "covariance")
-        ok, why = admissibility(f, shape, dt)
-        cands.append(Candidate(f, ff, shape, ok, why))
-        if not queue and candidates is None and needs_fallback(cands):
+        elif f.name == "two-real-pole" and any(q.name == "underdamped" for q in queue):
+            # the underdamped form first: where it rings clearly, the two-real-pole fit (the same
+            # function of its coordinates) starts at its optimum instead of searching from the grid
+            under = next(q for q in queue if q.name == "underdamped")
+            fitted_early[under.name] = fitted_candidate(under, trial, dt, select_kwargs)
+            cands.append(fitted_candidate(f, trial, dt, select_kwargs, _ringing_start(fitted_early[under.name])))
+        else:
+            cands.append(fitted_candidate(f, trial, dt, select_kwargs))
+        last = cands[-1].fit
+        if not queue and candidates is None and last is not None and last.converged and needs_fallback(cands):
             tried = {c.form.name for c in cands}
             queue = [FORMS[n] for n in FALLBACK_CANDIDATES if n in FORMS and n not in tried]
     chosen, scores, reason, sel_warn = choose(cands, dt)
@@ -444,6 +445,16 @@ def _rings(candidates: Sequence[Candidate]) -> str:
                 return (f"not tried: the response rings (the two-real-pole fit lies {beyond:.1f} standard "
                         "errors above Q = 1/2), and real poles alone give a step response that cannot ring")
     return ""
+
+
+def _ringing_start(under: Candidate) -> dict[str, float] | None:
+    """The two-real-pole form's start (tau0 = 1/(2 pi f0), Q, the edge delay) at an underdamped
+    fit whose Q interval lies wholly above 1/2, else None (the grid of starts as usual)."""
+    q = under.shape.get("Q") if under.fit is not None else None
+    if q is None or q.ci95 is None or not q.ci95[0] > 0.5:
+        return None
+    start = _physical_shape(under.fit)
+    return {"tau0": 1.0 / (2.0 * math.pi * start.pop("f0")), **start}
 
 
 def _physical_shape(ff: FormFit) -> dict[str, float]:
