@@ -28,7 +28,7 @@ from fitkit.fitting import block_jacobian, fit_capture
 from fitkit.fitting.binning import MAX_BIN_WIDTH, variable_bins
 from fitkit.fitting.form_fit import fit_form
 from fitkit.fitting.input_noise import input_noise_autocovariances
-from fitkit.fitting.step_fit import _physical_shape
+from fitkit.fitting.form_fit import physical_shape
 from fitkit.forms import get_form
 from support.square_waves import ringing_square_wave
 
@@ -44,7 +44,7 @@ def test_a_ringing_two_real_pole_candidate_started_at_the_underdamped_optimum_is
     t, _, y, f0 = ringing_square_wave(20_000, 40, sigma=0.01, seed=5)
     segments = analyse_steps(_output_only(t, y)).segments[:8]
     under = fit_form(segments, get_form("underdamped"))
-    start = _physical_shape(under)
+    start = physical_shape(under)
     start = {"tau0": 1.0 / (2.0 * math.pi * start.pop("f0")), **start}
     form = get_form("two-real-pole")
     started = fit_form(segments, form, shape_start=start)

@@ -7,6 +7,7 @@ Sources named beside each check:
   w0 = 1/sqrt(LC), wd = sqrt(w0^2 - alpha^2); the voltage across R is R i,
   and Q = w0 / (2 alpha).
 * scipy.signal.lsim for the low-pass response to a real two-edge pulse.
+* A real series-RL capture (../shared/reference/real-captures, SOURCE.md) with noise added.
 """
 
 import json
@@ -21,8 +22,10 @@ from fitkit.check import check_capture
 from fitkit.cli import cli
 from fitkit.cli.errors_to_exit import run_with_error_handling
 from fitkit.fitting import fit_capture
+from fitkit.io import load_capture
 from fitkit.fitting.adequacy import MISFIT_CEILING_BASELINE
 
+from support.reference_paths import REAL_CAPTURES, needs_real_captures
 from test_check_diagnosis import design_for
 
 #: The board-check grid's series RLC across R, with L a decade low: Q = 1, f0 = 15.92 kHz
@@ -185,3 +188,58 @@ def test_a_square_wave_of_many_edges_is_not_read_as_one_response():
     short = _capture(t[:4 * half], y[:4 * half] + np.random.default_rng(10).normal(0, 3e-3, 4 * half))
     few = analyse_steps(short)
     assert 1 < len(few.edges) <= MAX_SWINGS and one_response_reading(short, few) is not None
+
+
+def _noisy_rl_inductor_step(seed: int) -> Capture:
+    """The voltage across the inductor of a series RL after a 3.9 V step, tau = L/R = 9.3 us,
+    through a probe of 0.1 us: s tau / ((1 + s tau)(1 + s tau_r)), whose step response is
+    tau / (tau - tau_r) (exp(-t/tau) - exp(-t/tau_r)) (the textbook first-order responses,
+    superposed; Nilsson & Riedel, from memory). Sampled as a real scope capture of such a
+    circuit was (40 ns, 1,516 samples, the edge at 40.36 us, 0.08 V codes), with 0.21 V of
+    noise: its decay crosses the mid level slowly enough for the noise to make that crossing
+    look like drive edges."""
+    tau, tau_r, dt = 9.3e-6, 1e-7, 4e-8
+    t = np.arange(1516) * dt
+    x = np.clip(t - 40.36e-6, 0.0, None)
+    clean = -0.12 + 3.9 * tau / (tau - tau_r) * (np.exp(-x / tau) - np.exp(-x / tau_r))
+    y = np.round((clean + np.random.default_rng(seed).normal(0.0, 0.21, t.size)) / 0.08) * 0.08
+    return Capture.from_arrays(t, {"Vout": y})
+
+
+def test_a_noisy_band_pass_decay_cut_into_edges_is_not_read_by_a_rarer_form():
+    """The noisy decay taken for drive edges cut the response into pieces that a pole-zero form
+    (fitted only when the usual forms fail) described at the noise, tau1 about 6 us with a tight
+    interval, in 14 of 20 draws. That reading is now set against the one response to the first
+    edge, which a usual band-pass form describes; the time constant is in its interval in at
+    least 9 of 10 draws and never read by a rarer form."""
+    tau = 9.3e-6
+    held, forms = 0, []
+    for seed in range(10):
+        result = fit_capture(_noisy_rl_inductor_step(seed))
+        est = result.parameters.get("tau1") or result.parameters.get("tau")
+        forms.append(result.model)
+        held += est is not None and est.ci95 is not None and est.ci95[0] <= tau <= est.ci95[1]
+    assert not {"pole-zero", "underdamped-zero", "four-real-pole"} & set(forms), forms
+    assert held >= 9, forms
+
+
+@needs_real_captures
+@pytest.mark.parametrize("seed", [12345, 1, 4, 5])
+def test_the_real_rl_capture_with_three_times_its_noise_keeps_its_time_constant(tmp_path, seed):
+    """The real series-RL capture (../shared/reference/real-captures/rl-square-scope.csv, its
+    decay near 9 us per SOURCE.md) with Gaussian noise of three times its own (0.2 V) added and
+    rounded to its 0.01 V print: with these draws a pole-zero form was chosen, tau1 5.8 to 6.8 us
+    with intervals that missed the range. Now tau (or tau1) lies in 8.0-10.5 us, or its interval
+    reaches that range, and the file is not changed."""
+    source = REAL_CAPTURES / "rl-square-scope.csv"
+    before = source.read_bytes()
+    lines = source.read_text().splitlines()
+    rows = [line.split(",") for line in lines[1:]]
+    noise = np.random.default_rng(seed).normal(0.0, 3 * 0.0678, len(rows))
+    noisy = tmp_path / "rl-noisy.csv"
+    noisy.write_text("\n".join([lines[0]] + [f"{r[0]},{float(r[1]) + e:.2f}" for r, e in zip(rows, noise)]) + "\n")
+    result = fit_capture(load_capture(noisy))
+    est = result.parameters.get("tau1") or result.parameters.get("tau")
+    assert result.model not in ("pole-zero", "underdamped-zero", "four-real-pole")
+    assert est.ci95 is not None and est.ci95[0] <= 10.5e-6 and est.ci95[1] >= 8.0e-6, (result.model, est)
+    assert source.read_bytes() == before

@@ -259,6 +259,19 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
     return _finished(joint, best, fixed_int, project, correlation, noise_record, segments, whitened_refit)
 
 
+def physical_shape(ff: FormFit) -> dict[str, float]:
+    """A fit's shape parameters in physical units by name, and its median edge delay
+    ``t0`` (s) when the edge times were fitted: the start of a refit of the same form
+    (``shape_start``)."""
+    joint, values = ff.joint, ff.fit.values
+    out = {spec.name: joint.scaling.shape_from_log_scaled(spec, values["log_" + spec.name])
+           for spec in ff.form.shape if "log_" + spec.name in values}
+    delays = [values[k] for k in values if k.startswith("t0_")]
+    if delays:
+        out["t0"] = float(np.median(delays)) * joint.scaling.time_unit
+    return out
+
+
 def _shape_started(joint: JointModel, shape_start: Mapping[str, float], fixed: Mapping[str, float]
                    ) -> dict[str, float]:
     """Internal start values from a physical shape: every edge's levels (and a

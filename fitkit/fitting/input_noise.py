@@ -29,7 +29,7 @@ from scipy import linalg
 
 from ..conditioning.noise import noise_from_differences
 from .block_jacobian import by_rows, edge_columns
-from .joint_model import JointModel
+from .joint_model import JointModel, SegmentData
 from .measured_input import superposition_adjoint
 from .uncertainty import autoregressive_autocorrelation, residual_autocorrelation
 
@@ -84,22 +84,21 @@ def input_noise_autocovariances(joint: JointModel) -> list[np.ndarray]:
     return out
 
 
-def _rests(d) -> tuple[np.ndarray | None, np.ndarray | None, float]:
-    """One edge's rests of the drive: (its points before the edge, the second half of its window
-    with a straight line taken out), each None when it does not count as a rest, and the sign
-    of the edge's step."""
+def _rests(d: SegmentData) -> tuple[np.ndarray | None, np.ndarray | None, float]:
+    """One edge's rests of the drive, each None when it does not count as one: its points before
+    the edge, and the second half of its window (unbinned) with a straight line taken out; and
+    the sign of the edge's step."""
     n = d.u.size
     before = d.u[d.u_initial_weights > 0] if d.u_initial_weights is not None else np.zeros(0)
-    after = d.u[n // 2:] if d.bin_size == 1 else np.zeros(0)
-    initial = d.u_initial if d.u_initial is not None else (float(d.u[0]) if n else 0.0)
-    step = float(np.mean(after)) - initial if after.size else 0.0
+    late = d.u[n // 2:]
+    initial = d.u_initial if d.u_initial is not None else float(d.u[0])
+    step = float(np.mean(late)) - initial
     rest_after = None
-    if after.size >= MIN_PRE_EDGE_POINTS and float(np.ptp(after)) < SETTLED_SHARE * abs(step):
+    if d.bin_size == 1 and late.size >= MIN_PRE_EDGE_POINTS and float(np.ptp(late)) < SETTLED_SHARE * abs(step):
         # a slow drift of the level (a loaded generator settling) is not noise: a line is taken out
-        k = np.arange(after.size, dtype=float)
-        rest_after = after - np.polyval(np.polyfit(k, after, 1), k)
-    direction = float(np.sign(np.mean(d.u[n // 2:]) - initial)) if n else 0.0
-    return (before if before.size >= MIN_PRE_EDGE_POINTS else None), rest_after, direction
+        k = np.arange(late.size, dtype=float)
+        rest_after = late - np.polyval(np.polyfit(k, late, 1), k)
+    return (before if before.size >= MIN_PRE_EDGE_POINTS else None), rest_after, float(np.sign(step))
 
 
 def _rest_autocovariance(rests: list[np.ndarray], n: int) -> np.ndarray:

@@ -13,16 +13,18 @@ an output-only step) was refused in the first reading (its return taken as a
 falling drive edge, 9.5 times the noise) and, forced at its edge, read as a
 first-order rise of tau 4.3 us over the window that the return cut short.
 
-The second reading is tried when the first does not describe the capture, or
+The second reading is tried when the first does not describe the capture,
 leaves more than STRUCTURE_RATIO times the noise (the misfit that earns a
-warning). A Q = 0.7 band-pass read as two edges was "described" by a
+warning), or needed one of the rarer forms fitted only when the usual ones
+fail (:func:`needed_rarer_form`). A Q = 0.7 band-pass read as two edges was "described" by a
 first-order form at 9.6 times the noise (tau 7.8 us, its interval tight, its
 creep warned of): its short baselines left the noise to the sample-to-sample
 estimate and the ceiling at 10. A Q = 2 band-pass, whose first swings were
 found as two jumps, was read as an underdamped low-pass at 1.85 times the
 noise, f0 1 % and Q 4 % off and outside their intervals. The second reading is
-kept only when it describes the capture and leaves less misfit than the first
-(at most MISFIT_RATIO times the noise), and it is said so: the output alone
+kept only when it describes the capture (at most MISFIT_RATIO times the noise)
+and leaves less misfit than the first or needs no rarer form where the first
+did, and it is said so: the output alone
 cannot tell a drive that fell from a response that came back, and the drive
 recorded on a second channel can.
 """
@@ -38,6 +40,7 @@ from ..errors import FitkitError
 from ..results import FitResult
 from ..units import format_value
 from .adequacy import MISFIT_RATIO, STRUCTURE_RATIO
+from .further_forms import RESCUE_CANDIDATES
 
 #: a fit's or a check's result: a dataclass with ``warnings``
 Result = TypeVar("Result")
@@ -72,30 +75,46 @@ def one_response_reading(capture: Capture, analysis: StepAnalysis,
 
 
 def worth_reading_again(first: FitResult) -> bool:
-    """True when the first reading's fit does not describe the capture or leaves over
-    STRUCTURE_RATIO times the noise."""
-    return first.adequacy is not None and (not first.describes_data
+    """True when the first reading's fit does not describe the capture, leaves over
+    STRUCTURE_RATIO times the noise, or needed a rarer form (:func:`needed_rarer_form`)."""
+    return first.adequacy is not None and (not first.describes_data or needed_rarer_form(first)
                                            or first.adequacy.misfit_ratio > STRUCTURE_RATIO)
 
 
+def needed_rarer_form(result: FitResult) -> bool:
+    """True when the fit's form is one of the rarer forms fitted only when the usual candidates
+    leave the capture undescribed (fitkit.fitting.further_forms.RESCUE_CANDIDATES)."""
+    return result.model in RESCUE_CANDIDATES
+
+
 def better_reading(first: FitResult, other: FitResult) -> bool:
-    """True when ``other`` describes the capture and, if ``first`` does too, leaves less misfit
-    and at most MISFIT_RATIO times the noise."""
+    """True when ``other`` describes the capture with at most MISFIT_RATIO times the noise and
+    ``first`` does not describe it, needed a rarer form where ``other`` did not, or leaves more
+    misfit. A rarer form (a zero that makes a lead network, a fourth pole) can follow a
+    band-pass response cut into pieces: on a real RL capture with three times its noise, the
+    decay's noisy crossing of the mid level was taken for drive edges, and a pole-zero form
+    described the pieces at the noise (tau1 6 us, interval tight, for the 9.3 us the whole
+    response gives)."""
     if not other.describes_data:
         return False
     if not first.describes_data:
         return True
     ratio = other.adequacy.misfit_ratio if other.adequacy is not None else 1.0
-    return ratio <= MISFIT_RATIO and ratio < first.adequacy.misfit_ratio
+    if ratio > MISFIT_RATIO:
+        return False
+    return (needed_rarer_form(first) and not needed_rarer_form(other)) or ratio < first.adequacy.misfit_ratio
 
 
-def one_response_note(analysis: StepAnalysis, reading: StepAnalysis, misfit_ratio: float | None) -> str:
+def one_response_note(analysis: StepAnalysis, reading: StepAnalysis, misfit_ratio: float | None,
+                      rarer_form: str = "") -> str:
     """Why the capture was read as one response: the edges set aside and the misfit of the
-    first reading (residual RMS over noise; None when no form could be fitted to it)."""
+    first reading (residual RMS over noise; None when no form could be fitted to it), or the
+    rarer form it needed."""
     at = reading.segments[0].edge_time
     others = [e.time for e in analysis.edges[1:5]]
     where = ", ".join(format_value(t, "s") for t in others)
     outcome = ("no form could be fitted" if misfit_ratio is None
+               else f"only the rarer {rarer_form} form described it" if rarer_form
                else f"the fit left residuals {misfit_ratio:.1f} times the noise")
     return (f"read as one response to the edge at {format_value(at, 's')}: with its window ending at the "
             f"output's next swing{' (at ' + where + ')' if where else ''} taken as a drive edge, {outcome}; "
@@ -117,5 +136,6 @@ def as_one_response(capture: Capture, analysis: StepAnalysis, first: FitResult |
         return None
     if other is None or not (fit_of(other).describes_data if first is None else better_reading(first, fit_of(other))):
         return None
-    note = one_response_note(analysis, reading, None if first is None else first.adequacy.misfit_ratio)
+    note = one_response_note(analysis, reading, None if first is None else first.adequacy.misfit_ratio,
+                             first.model if first is not None and needed_rarer_form(first) else "")
     return dataclasses.replace(other, warnings=(note,) + tuple(other.warnings))

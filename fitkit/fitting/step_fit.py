@@ -19,23 +19,23 @@ from ..conditioning.analysis import BELOW_ONE_CODE
 from ..conditioning.segment import StepSegment
 from ..errors import AverageSmearedError, FitError, FitkitError
 from ..units import format_value
-from ..forms import FORMS, get_form, pulse_response
+from ..forms import get_form, pulse_response
 from ..forms.base import Form
 from ..results import (ChannelRoles, Estimate, FitDetails, FitDiagnostics, FitResult,
                        FittedSegment)
 from .adequacy import STRUCTURE_RATIO, assess, capture_noise, drift_warning
 from .alignment_smear import SMEAR_LIMIT, smear_bias
-from .form_fit import FormFit, fit_form, sample_interval
-from .further_forms import fitted_candidate, rescued, with_dead_time
+from .form_fit import FormFit, fit_form, physical_shape, sample_interval
+from .candidate_forms import fit_candidates
+from .further_forms import rescued, with_dead_time
 from .information import has_measured_input
-from .region_estimates import beyond_range_sigmas
 from .estimates import derived_estimates, level_estimates, shape_estimates
 from .noise_record import NoiseRecord
 from .one_response import as_one_response, worth_reading_again
 from .response_shape import moves_wrong_way, returns_to_baseline
 from .quantised import ROUNDED_GAUSSIAN, quantised_refit
-from .selection import (CRITERION, FALLBACK_CANDIDATES, Candidate, admissibility, choose, default_candidates,
-                        needs_fallback, outfitted_finding)
+from .selection import (CRITERION, Candidate, admissibility, choose, default_candidates,
+                        outfitted_finding)
 
 #: Above this many samples per segment, candidate forms are compared on bins
 #: of at most this many points per segment (see fit_segments).
@@ -44,8 +44,6 @@ SELECTION_POINTS_PER_SEGMENT = 1000
 #: first this-many edges (the evidence of eight edges decides a form as well as
 #: that of hundreds, at a fraction of the cost); the chosen form is fitted to all.
 SELECTION_EDGES = 8
-#: Forms of real poles alone (no zero): their step response rises without overshoot.
-REAL_POLES_ONLY = ("three-real-pole", "four-real-pole", "five-real-pole")
 
 
 def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
@@ -102,8 +100,6 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
     forms = [f if isinstance(f, Form) else get_form(f) for f in candidates] if candidates \
         else default_candidates(returns_to_baseline(segments), moves_wrong_way(segments[:SELECTION_EDGES]),
                                 measured_input if measured_input is not None else has_measured_input(segments))
-    cands: list[Candidate] = []
-    queue = list(forms)
     # candidates compete on coarser bins of a long record, and on the first
     # SELECTION_EDGES edges of a long square wave (the same data for all of them);
     # the chosen form is then refitted at full resolution on every edge
@@ -116,27 +112,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
         # leaves correlated residuals, and refitting it whitened cost seconds per
         # candidate); the chosen form's fit to every edge is whitened as usual
         select_kwargs = dict(select_kwargs, whitened_refit=False)
-    fitted_early: dict[str, Candidate] = {}
-    while queue:
-        f = queue.pop(0)
-        rings = _rings(cands) if f.name in REAL_POLES_ONLY else ""
-        if f.name in fitted_early:
-            cands.append(fitted_early.pop(f.name))
-        elif rings:
-            cands.append(Candidate(f, None, {}, False, rings))
-            continue
-        elif f.name == "two-real-pole" and any(q.name == "underdamped" for q in queue):
-            # the underdamped form first: where it rings clearly, the two-real-pole fit (the same
-            # function of its coordinates) starts at its optimum instead of searching from the grid
-            under = next(q for q in queue if q.name == "underdamped")
-            fitted_early[under.name] = fitted_candidate(under, trial, dt, select_kwargs)
-            cands.append(fitted_candidate(f, trial, dt, select_kwargs, _ringing_start(fitted_early[under.name])))
-        else:
-            cands.append(fitted_candidate(f, trial, dt, select_kwargs))
-        last = cands[-1].fit
-        if not queue and candidates is None and last is not None and last.converged and needs_fallback(cands):
-            tried = {c.form.name for c in cands}
-            queue = [FORMS[n] for n in FALLBACK_CANDIDATES if n in FORMS and n not in tried]
+    cands = fit_candidates(forms, trial, dt, select_kwargs, fallback=candidates is None)
     chosen, scores, reason, sel_warn = choose(cands, dt)
     _refuse_smeared_average(chosen.fit, file)  # before any rescue: the smear is the misfit's cause
     if candidates is None:
@@ -146,7 +122,7 @@ def fit_segments(segments: Sequence[StepSegment], form: str | Form = "auto", *,
                                                    dt, select_kwargs)
     final = chosen.fit
     if coarse:
-        refit = fit_form(segments, chosen.form, shape_start=_physical_shape(chosen.fit), **kwargs)
+        refit = fit_form(segments, chosen.form, shape_start=physical_shape(chosen.fit), **kwargs)
         if refit.converged:
             final = refit
         elif len(trial) < len(segments):
@@ -428,45 +404,6 @@ def _refuse_smeared_average(ff: FormFit, file: str) -> None:
         f"{'' if ff.joint.segments[0].input is not None else ' and the noise on edge times read off the output'}"
         f"): it would bias {name} by {bias[name]:.1f} standard errors", path=file or None,
         hint="fit without --average (every edge jointly)")
-
-
-def _rings(candidates: Sequence[Candidate]) -> str:
-    """Why a form of real poles alone is not tried ('' when it is): the two-real-pole
-    fit lies beyond Q = 1/2 by more than its interval, so the response rings.
-
-    The step response of 1/prod(1 + s tau_i) cannot ring: its impulse response is
-    a convolution of decaying exponentials, each positive, so it is positive and
-    the step response rises monotonically (no overshoot). Fitting such a form to a
-    ringing response costs the most of all the candidates and cannot win."""
-    for c in candidates:
-        if c.form.name == "two-real-pole" and c.fit is not None and c.fit.converged:
-            beyond = beyond_range_sigmas(c.fit)
-            if beyond > c.fit.tq:
-                return (f"not tried: the response rings (the two-real-pole fit lies {beyond:.1f} standard "
-                        "errors above Q = 1/2), and real poles alone give a step response that cannot ring")
-    return ""
-
-
-def _ringing_start(under: Candidate) -> dict[str, float] | None:
-    """The two-real-pole form's start (tau0 = 1/(2 pi f0), Q, the edge delay) at an underdamped
-    fit whose Q interval lies wholly above 1/2, else None (the grid of starts as usual)."""
-    q = under.shape.get("Q") if under.fit is not None else None
-    if q is None or q.ci95 is None or not q.ci95[0] > 0.5:
-        return None
-    start = _physical_shape(under.fit)
-    return {"tau0": 1.0 / (2.0 * math.pi * start.pop("f0")), **start}
-
-
-def _physical_shape(ff: FormFit) -> dict[str, float]:
-    """A fit's shape parameters in physical units by name, and its median edge delay
-    ``t0`` (s) when the edge times were fitted: the start of a refit of the same form."""
-    joint, values = ff.joint, ff.fit.values
-    out = {spec.name: joint.scaling.shape_from_log_scaled(spec, values["log_" + spec.name])
-           for spec in ff.form.shape if "log_" + spec.name in values}
-    delays = [values[k] for k in values if k.startswith("t0_")]
-    if delays:
-        out["t0"] = float(np.median(delays)) * joint.scaling.time_unit
-    return out
 
 
 def _runaway_note(ff: FormFit, dt: float) -> str:

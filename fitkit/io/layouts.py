@@ -229,7 +229,8 @@ def _time_column_factor(shape: TextShape, j: int, t_unit: str, given: bool, head
                                            "--sample-interval 1u), or --time-unit ms if they are milliseconds")
     if _integers(shape, j):
         warnings.append("the time column holds whole numbers with no unit: taken as milliseconds "
-                        "(a logger's millisecond counter); give --time-unit s if they are seconds")
+                        "(a logger's millisecond counter), so every time and frequency is off by 1,000 if they "
+                        "are not; give --time-unit us if they are microseconds, --time-unit s if seconds")
         return 1e-3, False
     if step is not None and step >= PLAUSIBLY_MS_STEP:
         warnings.append(f"the time column has no unit written and steps by {step:.6g}: taken as seconds "
