@@ -75,3 +75,30 @@ def test_fit_and_check_say_which_channel_played_which_role(tmp_path, capsys):
     # second-order with f0 = 1/(2 pi sqrt(LC)) = 1591.5 Hz (Nilsson & Riedel, ch. 8)
     f0_line = next(ln for ln in text.splitlines() if ln.strip().startswith("f0 "))
     assert "1.5" in f0_line.split()[1]
+
+
+def test_roles_whose_fit_does_not_describe_give_way_to_one_that_does():
+    """Two channels, no drive, four edges: a coupling-capacitor node (the drive minus an RC low-pass of
+    tau 100 us: a high-pass that jumps at each edge) and an RC output (tau 20 us), each the
+    textbook RC step response 1 - exp(-t/tau) summed over a square wave's edges. The
+    sharper-edged high-pass node is taken for the drive, and the RC fitted against it leaves
+    residuals far above the noise; with no input, the output's own edges give a first-order fit
+    that describes the capture, tau within its interval, and the warning says which roles were
+    changed and how to choose them."""
+    from support.square_waves import rc_square_wave
+
+    from fitkit.fitting import fit_capture
+
+    t, drive, slow, _ = rc_square_wave(20_000, 4, 1e-7, half_period_in_tau=5.0)
+    _, _, fast, tau = rc_square_wave(20_000, 4, 1e-7, half_period_in_tau=25.0)
+    rng = np.random.default_rng(1)
+    cap = Capture.from_arrays(t, {"A": fast + rng.normal(0.0, 0.003, t.size),
+                                  "C": drive - slow + rng.normal(0.0, 0.003, t.size)})
+    result = fit_capture(cap)
+    assert result.describes_data and result.model == "first-order"
+    assert result.details.channels.input is None and result.details.channels.output == "A"
+    est = result.parameters["tau"]
+    assert est.ci95[0] <= tau <= est.ci95[1]
+    assert result.warnings[0].startswith("channel roles changed: with input 'C' and output 'A'")
+    assert "with no input and output 'A' the fit describes the capture" in result.warnings[0]
+    assert "--input and --output" in result.warnings[0]

@@ -144,6 +144,21 @@ def test_no_runner_up_when_every_other_candidate_was_set_aside():
     assert "underdamped: did not converge" in header
 
 
+def test_a_form_not_tried_is_not_said_to_have_failed_to_converge():
+    """A form of real poles alone passed over because the response rings was never fitted: the
+    header and the table say why, not "did not converge"."""
+    from dataclasses import replace
+    from fitkit.results import CandidateScore
+    base = make_result("underdamped")
+    why = "not tried: the response rings (the two-real-pole fit lies 9.0 standard errors above Q = 1/2)"
+    selection = (CandidateScore("first-order", False, 0, math.nan, math.nan, math.nan, why),
+                 CandidateScore("underdamped", True, 5, -900.0, 0.0, 3.5e-3, "chosen"))
+    text = render_fit_text(replace(base, selection=selection))
+    assert f"first-order: {why}" in text.split("\n\n")[0]
+    assert "did not converge" not in text
+    assert re.search(r"first-order\s+0\s+-\s+not fitted", text)
+
+
 def test_a_better_runner_up_says_why_it_was_not_chosen():
     from dataclasses import replace
     from fitkit.results import CandidateScore

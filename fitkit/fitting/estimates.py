@@ -86,6 +86,10 @@ def level_estimates(ff: FormFit, edge: int = 0) -> dict[str, Estimate]:
 
     def make(name: str, key: str, to_phys_scale: float, offset: float, unit: str) -> None:
         value = offset + fit.values[key] * to_phys_scale
+        if edge in ff.unseen_edges:  # the record does not hold them (.unseen_edges)
+            out[name] = Estimate(name, value, None, None, unit, "not determined: the edge came before the record "
+                                 "began", False)
+            return
         if key not in names:
             out[name] = Estimate(name, value, 0.0, (value, value), unit, "held fixed")
             return

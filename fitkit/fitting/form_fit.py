@@ -39,6 +39,7 @@ from .starts import best_starts, few_edges, projected_levels
 from .uncertainty import Correction, correlated_residual_correction, t_quantile
 from .noise_record import NoiseRecord
 from .odd_edges import edges_unlike_the_others
+from .unseen_edges import unseen_edge_times
 from .whitening import whitened_fit, whitening_applies
 
 #: How many of the best grid starts are refined by the nonlinear fit.
@@ -73,6 +74,9 @@ class FormFit:
     correction: Correction
     tq: float
     notes: tuple[str, ...] = ()
+    #: edges whose time came before their window's first sample under a single exponential: held
+    #: there, their baseline, step and time not determined (:mod:`.unseen_edges`)
+    unseen_edges: tuple[int, ...] = ()
     #: "least squares", or "rounded Gaussian" for the maximum-likelihood refit of
     #: a trace whose noise is below one code (:mod:`.quantised`); the sum of
     #: squares checks (profile likelihood) apply to least squares only
@@ -183,6 +187,26 @@ def fit_form(segments: Sequence[StepSegment], form: Form, *, measured_input: boo
         correction instead of refitting whitened (:mod:`.whitening`) when the
         residuals are correlated; a noise record is used either way.
     """
+    args = dict(measured_input=measured_input, free_t0=free_t0, start=start, correlation=correlation,
+                max_points=max_points, noise_record=noise_record, shape_start=shape_start,
+                whitened_refit=whitened_refit)
+    ff = _fit_form_once(segments, form, fixed=fixed, **args)
+    unseen = unseen_edge_times(ff, fixed or {})
+    if not unseen:
+        return ff
+    # an edge before its window under a single exponential: its time held (.unseen_edges)
+    held = _fit_form_once(segments, form, fixed={**dict(fixed or {}), **unseen}, **args)
+    if not held.converged:
+        return ff
+    return replace(held, unseen_edges=tuple(sorted(int(k[3:]) for k in unseen)))
+
+
+def _fit_form_once(segments: Sequence[StepSegment], form: Form, *, measured_input: bool | None = None,
+                   free_t0: bool | None = None, start: Mapping[str, float] | None = None,
+                   fixed: Mapping[str, float] | None = None, correlation: str = "auto",
+                   max_points: int = MAX_POINTS_PER_SEGMENT, noise_record: NoiseRecord | None = None,
+                   shape_start: Mapping[str, float] | None = None, whitened_refit: bool = True) -> FormFit:
+    """One fit of ``form`` as :func:`fit_form` describes, every edge time free as asked."""
     if not segments:
         raise FitError("no step segments to fit", hint="check that the capture holds at least one edge")
     # the scaled units come from the windows as given: a circuit form is built in the time unit

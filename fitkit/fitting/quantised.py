@@ -311,7 +311,8 @@ def _as_form_fit(ff: FormFit, joint, fit: ModelFit, sigma: float, q: float,
     correction = Correction(cov, scores.widening, ff.correction.lag1, scores.correlation_lags, True, text,
                             scores.variance_ratio, scores.dof)
     dof = scores.dof if scores.applied and scores.dof is not None else max(fit.n - k - 1, 1)
-    return FormFit(ff.form, joint, refit, correction, t_quantile(int(round(dof))), ff.notes, ROUNDED_GAUSSIAN)
+    return FormFit(ff.form, joint, refit, correction, t_quantile(int(round(dof))), ff.notes,
+                   unseen_edges=ff.unseen_edges, objective=ROUNDED_GAUSSIAN)
 
 
 def score_correction(joint, jacobian: np.ndarray, mean: np.ndarray, sigma: float, q: float,

@@ -209,29 +209,46 @@ def fit_capture(capture: Capture, *, model: str = "auto", input: str | None = No
             return alt
     if result.describes_data or (input is not None and output is not None):
         return result
-    tried = []
-    for alt_in, alt_out in analysis.alternatives:
-        if (input is not None and alt_in != input) or (output is not None and alt_out != output):
-            continue
-        try:
-            other = analyse_steps(capture, input=alt_in or "none", output=alt_out, edge_time=edge_time,
-                                  average=average, pulse_width=pulse_width)
-            alt = _fit_analysis(capture, other, **options)
-        except FitkitError:
-            continue
-        roles = f"input {alt_in!r}, output {alt_out!r}" if alt_in else f"no input, output {alt_out!r}"
-        if alt.describes_data:
-            note = (f"channel roles changed: with input {analysis.input_channel!r} and output "
-                    f"{analysis.output_channel!r} the {result.model} fit left residuals "
-                    f"{result.adequacy.misfit_ratio:.1f} times the noise; with {roles} the fit describes the "
-                    "capture (name the channels with --input and --output to decide yourself)")
-            return dataclasses.replace(alt, warnings=(note,) + tuple(alt.warnings))
-        tried.append(f"{roles}: residuals {alt.adequacy.misfit_ratio:.1f} times the noise")
+    other, roles, tried = _other_roles(capture, analysis, input, output, options)
+    if other is not None:
+        note = (f"channel roles changed: with {_roles_words(analysis.input_channel, analysis.output_channel)} "
+                f"the {result.model} fit left residuals {result.adequacy.misfit_ratio:.1f} times the noise; with "
+                f"{roles} the fit describes the capture (name the channels with --input and --output to decide "
+                "yourself)")
+        return dataclasses.replace(other, warnings=(note,) + tuple(other.warnings))
     if tried and result.adequacy is not None:
         finding = result.adequacy.finding + "; other channel roles tried do not describe it either (" + \
             "; ".join(tried) + ")"
         result = dataclasses.replace(result, adequacy=replace(result.adequacy, finding=finding))
     return result
+
+
+def _other_roles(capture: Capture, analysis, input: str | None, output: str | None, options: dict):
+    """The capture fitted with the other channel roles the conditioning offers (those the user's
+    --input / --output allow): (the first fit that describes the capture or None, its roles in
+    words, what each other assignment tried left)."""
+    from ..conditioning import analyse_steps  # written alongside; imported when used
+
+    tried = []
+    for alt_in, alt_out in analysis.alternatives:
+        if (input is not None and alt_in != input) or (output is not None and alt_out != output):
+            continue
+        try:
+            other = analyse_steps(capture, input=alt_in or "none", output=alt_out, edge_time=options["edge_time"],
+                                  average=options["average"], pulse_width=options["pulse_width"])
+            alt = _fit_analysis(capture, other, **options)
+        except FitkitError:
+            continue
+        roles = _roles_words(alt_in, alt_out)
+        if alt.describes_data:
+            return alt, roles, tried
+        tried.append(f"{roles}: residuals {alt.adequacy.misfit_ratio:.1f} times the noise")
+    return None, "", tried
+
+
+def _roles_words(input_channel: str | None, output_channel: str) -> str:
+    return (f"input {input_channel!r} and output {output_channel!r}" if input_channel
+            else f"no input and output {output_channel!r}")
 
 
 def _itself(result: FitResult) -> FitResult:

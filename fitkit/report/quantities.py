@@ -242,7 +242,8 @@ def runner_up_text(result: FitResult) -> str:
 
 def set_aside_lines(result: FitResult) -> list[str]:
     """One line per candidate set aside: "form: why"."""
-    return [f"{c.model}: {c.note if c.converged else 'did not converge'}" for c in set_aside(result)]
+    return [f"{c.model}: {c.note if c.converged or c.note.startswith('not tried') else 'did not converge'}"
+            for c in set_aside(result)]
 
 
 def unique_lines(lines) -> list[str]:

@@ -161,7 +161,8 @@ def _candidates_table(result: FitResult) -> str:
         chosen = " (chosen)" if cand.model == result.model else ""
         delta = (f"{cand.delta:+.1f}" if cand.converged and cand.delta is not None
                  and math.isfinite(cand.delta) else "-")
-        rms = format_quantity(cand.rms_residual, result.output_unit, 3) if cand.converged else "did not converge"
+        rms = (format_quantity(cand.rms_residual, result.output_unit, 3) if cand.converged
+               else "not fitted" if cand.note.startswith("not tried") else "did not converge")
         note = "" if chosen or cand.note == "chosen" else cand.note
         table.append([cand.model + chosen, str(cand.n_parameters), delta, rms, note])
     notes = [f"{_INDENT}{delta_meaning(result)}", f"{_INDENT}{COMPARISON_RMS_MEANING}"]
