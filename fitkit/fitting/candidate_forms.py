@@ -8,8 +8,9 @@ the underdamped form, then the two-real-pole form (the same function, in tau0 an
 past Q = 1/2 so that it measures how clearly the response rings). Where that fit lies beyond
 Q = 1/2 by more than its interval, the forms of three to five real poles are not tried (they
 cost the most of all the candidates and cannot win), nor, when the underdamped form is supported
-by the data, are first order and critically damped. Where the underdamped fit's Q interval lies wholly above 1/2, the two-real-pole fit
-starts at its optimum instead of searching from the grid of starts. The candidates keep their
+by the data, are first order and critically damped. Where the underdamped fit's Q interval lies
+wholly above 1/2, the two-real-pole fit starts at its optimum instead of searching from the grid
+of starts. The candidates keep their
 order in the selection table either way.
 """
 

@@ -16,17 +16,17 @@ first-order rise of tau 4.3 us over the window that the return cut short.
 The second reading is tried when the first does not describe the capture,
 leaves more than STRUCTURE_RATIO times the noise (the misfit that earns a
 warning), or needed one of the rarer forms fitted only when the usual ones
-fail (:func:`needed_rarer_form`). A Q = 0.7 band-pass read as two edges was "described" by a
-first-order form at 9.6 times the noise (tau 7.8 us, its interval tight, its
+fail (:func:`needed_rarer_form`). A Q = 0.7 band-pass read as two edges was
+"described" by a first-order form at 9.6 times the noise (tau 7.8 us, its interval tight, its
 creep warned of): its short baselines left the noise to the sample-to-sample
 estimate and the ceiling at 10. A Q = 2 band-pass, whose first swings were
 found as two jumps, was read as an underdamped low-pass at 1.85 times the
 noise, f0 1 % and Q 4 % off and outside their intervals. The second reading is
-kept only when it describes the capture (at most MISFIT_RATIO times the noise)
-and leaves less misfit than the first or needs no rarer form where the first
-did, and it is said so: the output alone
-cannot tell a drive that fell from a response that came back, and the drive
-recorded on a second channel can.
+kept only when it describes the capture and the first does not, or, when both
+do, it leaves at most MISFIT_RATIO times the noise and less misfit than the
+first or needs no rarer form where the first did; it is said so: the output
+alone cannot tell a drive that fell from a response that came back, and the
+drive recorded on a second channel can.
 """
 
 from __future__ import annotations
@@ -88,13 +88,13 @@ def needed_rarer_form(result: FitResult) -> bool:
 
 
 def better_reading(first: FitResult, other: FitResult) -> bool:
-    """True when ``other`` describes the capture with at most MISFIT_RATIO times the noise and
-    ``first`` does not describe it, needed a rarer form where ``other`` did not, or leaves more
-    misfit. A rarer form (a zero that makes a lead network, a fourth pole) can follow a
-    band-pass response cut into pieces: on a real RL capture with three times its noise, the
-    decay's noisy crossing of the mid level was taken for drive edges, and a pole-zero form
-    described the pieces at the noise (tau1 6 us, interval tight, for the 9.3 us the whole
-    response gives)."""
+    """True when ``other`` describes the capture and ``first`` does not; or, when both do, when
+    ``other`` leaves at most MISFIT_RATIO times the noise and either ``first`` needed a rarer
+    form where ``other`` did not or ``first`` leaves more misfit. A rarer form (a zero that
+    makes a lead network, a fourth pole) can follow a band-pass response cut into pieces: on a
+    real RL capture with three times its noise, the decay's noisy crossing of the mid level was
+    taken for drive edges, and a pole-zero form described the pieces at the noise (tau1 6 us,
+    interval tight, for the 9.3 us the whole response gives)."""
     if not other.describes_data:
         return False
     if not first.describes_data:
