@@ -95,3 +95,25 @@ def test_correlated_noise_correction_is_stated_with_its_factor():
     assert d.ci_widening > 1.5 and "sandwich" in d.correction and f"x{d.ci_widening:.2f}" in d.correction
     assert d.effective_samples < 0.5 * d.n_samples
     assert "widened" in r.parameters["tau"].interval_method
+
+
+def test_correlated_residuals_whose_sandwich_cannot_be_evaluated_are_not_called_white():
+    """Residuals from a first-order autoregressive process (phi = 0.8; Box & Jenkins, 1994,
+    section 3.2, from memory) are correlated; when the sandwich covariance cannot be evaluated
+    (here a plain covariance whose second variance is not positive, as rounding leaves it for a
+    parameter combination the data do not determine) the correction is not applied and says so,
+    instead of calling the residuals white noise."""
+    from fitkit.fitting.uncertainty import NOT_EVALUATED, correlated_residual_correction
+
+    rng = np.random.default_rng(5)
+    e = rng.normal(0.0, 1.0, 600)
+    r = np.zeros_like(e)
+    for k in range(1, e.size):
+        r[k] = 0.8 * r[k - 1] + e[k]
+    t = np.linspace(0.0, 1.0, r.size)
+    jacobian = np.column_stack([np.exp(-t), np.ones_like(t)])
+    covariance = np.array([[1e-3, 0.0], [0.0, -1e-9]])
+    out = correlated_residual_correction(jacobian, [r], [0, r.size], covariance, 1.0)
+    assert not out.applied
+    assert out.description.startswith(NOT_EVALUATED) and "white noise" not in out.description
+    assert out.lag1 > 0.6

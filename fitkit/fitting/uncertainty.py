@@ -326,6 +326,10 @@ def noise_autocovariance(jacobian: np.ndarray, residual_pieces: Sequence[np.ndar
     return NoiseAutocovariance(rho, acov, model_rho, order, gamma)
 
 
+#: How a correction that found the residuals correlated but could not evaluate the sandwich begins.
+NOT_EVALUATED = "none: the residuals are correlated"
+
+
 def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequence[np.ndarray],
                                    jac_pieces_bounds: Sequence[int], covariance: np.ndarray,
                                    s2: float, mode: str = "auto") -> Correction:
@@ -341,6 +345,11 @@ def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequen
     rho = residual_autocorrelation(residual_pieces, max_lag)
     lag1 = float(rho[1]) if rho.size > 1 else 0.0
     none = Correction(covariance, ones, lag1, 0, False, "none (residuals consistent with white noise)")
+    # the residuals are correlated but the sandwich cannot be evaluated (a combination of parameters
+    # the data do not determine leaves the bread without working precision): not "white noise"
+    failed = Correction(covariance, ones, lag1, 0, False,
+                        f"{NOT_EVALUATED} (lag-1 autocorrelation {lag1:.2f}): the sandwich covariance could "
+                        "not be evaluated, so the intervals are not widened for it")
     if mode == "off":
         return Correction(covariance, ones, lag1, 0, False, "none (correction switched off)")
     if p == 0 or not np.all(np.isfinite(covariance)):
@@ -368,13 +377,13 @@ def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequen
         sandwich = bread @ meat @ bread
         ratio = np.diag(sandwich) / np.diag(covariance)
         if not np.all(np.isfinite(ratio)) or np.any(ratio <= 0):
-            return none
+            return failed
         # Never narrow: bring each variance up to at least the plain one.
         lift = np.sqrt(np.maximum(1.0, 1.0 / ratio))
         corrected = sandwich * np.outer(lift, lift)
         widening = np.sqrt(np.diag(corrected) / np.diag(covariance))
     if not np.all(np.isfinite(corrected)):
-        return none
+        return failed
     text = (f"autocorrelation-consistent sandwich covariance (residual autocorrelation from an "
             f"order-{order} autoregressive model, to lag {m_max}; lag-1 autocorrelation {lag1:.2f})")
     return Correction(corrected, widening, lag1, m_max, True, text, variance_ratio, dof)
