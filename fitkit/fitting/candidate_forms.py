@@ -54,12 +54,18 @@ def fit_candidates(forms: Sequence[Form], trial: Sequence[StepSegment], dt: floa
         pair = queue[names.index("two-real-pole")]
         early = {"underdamped": under, "two-real-pole": fitted_candidate(pair, trial, dt, kwargs,
                                                                          _ringing_start(under))}
+    # the second-order evidence, judged once (without it, a two-real-pole fit among the candidates
+    # before a form of more real poles still tells that the response rings)
+    ringing = rings_reason(list(early.values()))
+    underdamped_supported = any(c.form.name == "underdamped" and c.admissible for c in early.values())
     cands: list[Candidate] = []
     while queue:
         f = queue.pop(0)
-        rings = rings_reason(cands + list(early.values())) if f.name in REAL_POLES_ONLY + SIMPLER_REAL_POLES else ""
-        if f.name in SIMPLER_REAL_POLES and not _supported("underdamped", cands + list(early.values())):
-            rings = ""
+        rings = ""
+        if f.name in REAL_POLES_ONLY:
+            rings = ringing or rings_reason(cands)
+        elif f.name in SIMPLER_REAL_POLES and underdamped_supported:
+            rings = ringing
         if f.name in early:
             cands.append(early.pop(f.name))
         elif rings:
@@ -84,11 +90,6 @@ def rings_reason(candidates: Sequence[Candidate]) -> str:
                 return (f"not tried: the response rings (the two-real-pole fit lies {beyond:.1f} standard "
                         "errors above Q = 1/2), and real poles alone give a step response that cannot ring")
     return ""
-
-
-def _supported(name: str, candidates: Sequence[Candidate]) -> bool:
-    """True when the candidate form ``name`` was fitted and is admissible (determined, in range)."""
-    return any(c.form.name == name and c.admissible for c in candidates)
 
 
 def _ringing_start(under: Candidate) -> dict[str, float] | None:

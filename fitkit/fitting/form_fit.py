@@ -36,7 +36,7 @@ from .projection import (ProjectedSearch, can_project, finish_projected, nonline
                          search_projected)
 from .scaling import Scaling, decimated, reference_step
 from .starts import best_starts, few_edges, projected_levels
-from .uncertainty import NOT_EVALUATED, Correction, correlated_residual_correction, t_quantile
+from .uncertainty import Correction, correlated_residual_correction, t_quantile
 from .noise_record import NoiseRecord
 from .odd_edges import edges_unlike_the_others
 from .unseen_edges import unseen_edge_times
@@ -330,7 +330,7 @@ def _finished(joint: JointModel, best: ModelFit, fixed_int: Mapping[str, float],
     correction = correlated_residual_correction(weighted(best.jacobian, w), pieces, list(joint.bounds),
                                                 best.covariance, best.s2, correlation)
     notes: list[str] = []
-    if correction.description.startswith(NOT_EVALUATED):
+    if correction.unevaluated:
         notes.append(f"the residuals are correlated (lag-1 autocorrelation {correction.lag1:.2f}) but the "
                      "correction for it could not be computed (the data leave a combination of parameters "
                      "undetermined): the intervals may be too narrow")

@@ -247,6 +247,7 @@ def _other_roles(capture: Capture, analysis, input: str | None, output: str | No
 
 
 def _roles_words(input_channel: str | None, output_channel: str) -> str:
+    """Channel roles in words: "input 'A' and output 'B'", or "no input and output 'B'"."""
     return (f"input {input_channel!r} and output {output_channel!r}" if input_channel
             else f"no input and output {output_channel!r}")
 

@@ -67,6 +67,8 @@ class Correction:
         1 + 2 sum_k rho(k) (>= 1): the factor n / n_effective.
     dof: effective degrees of freedom n_effective - p for the t quantile
         (None when not applied: use n - p).
+    unevaluated: the residuals were found correlated but the sandwich could
+        not be evaluated, so the plain covariance stands (not applied).
     """
 
     covariance: np.ndarray
@@ -77,6 +79,7 @@ class Correction:
     description: str
     variance_ratio: float = 1.0
     dof: float | None = None
+    unevaluated: bool = False
 
 
 def residual_autocorrelation(pieces: Sequence[np.ndarray], max_lag: int) -> np.ndarray:
@@ -326,7 +329,7 @@ def noise_autocovariance(jacobian: np.ndarray, residual_pieces: Sequence[np.ndar
     return NoiseAutocovariance(rho, acov, model_rho, order, gamma)
 
 
-#: How a correction that found the residuals correlated but could not evaluate the sandwich begins.
+#: How the description of a correction that could not be evaluated (Correction.unevaluated) begins.
 NOT_EVALUATED = "none: the residuals are correlated"
 
 
@@ -349,7 +352,7 @@ def correlated_residual_correction(jacobian: np.ndarray, residual_pieces: Sequen
     # the data do not determine leaves the bread without working precision): not "white noise"
     failed = Correction(covariance, ones, lag1, 0, False,
                         f"{NOT_EVALUATED} (lag-1 autocorrelation {lag1:.2f}): the sandwich covariance could "
-                        "not be evaluated, so the intervals are not widened for it")
+                        "not be evaluated, so the intervals are not widened for it", unevaluated=True)
     if mode == "off":
         return Correction(covariance, ones, lag1, 0, False, "none (correction switched off)")
     if p == 0 or not np.all(np.isfinite(covariance)):

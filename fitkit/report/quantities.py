@@ -240,9 +240,15 @@ def runner_up_text(result: FitResult) -> str:
     return text
 
 
+def not_fitted(candidate) -> bool:
+    """True for a candidate score of a form that was not fitted at all (its note says why:
+    "not tried: ..."), as against one whose fit failed to converge."""
+    return not candidate.converged and candidate.note.startswith("not tried")
+
+
 def set_aside_lines(result: FitResult) -> list[str]:
     """One line per candidate set aside: "form: why"."""
-    return [f"{c.model}: {c.note if c.converged or c.note.startswith('not tried') else 'did not converge'}"
+    return [f"{c.model}: {c.note if c.converged or not_fitted(c) else 'did not converge'}"
             for c in set_aside(result)]
 
 

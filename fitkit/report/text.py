@@ -14,7 +14,7 @@ import math
 from typing import Sequence
 
 from ..results import FitResult
-from .quantities import COMPARISON_RMS, COMPARISON_RMS_MEANING, FINAL_RMS
+from .quantities import COMPARISON_RMS, COMPARISON_RMS_MEANING, FINAL_RMS, not_fitted
 from .quantities import (NOT_DETERMINED, QuantityRow, delta_meaning, delta_name, format_quantity, interval_text,
                          is_reportable, quantity_rows, runner_up_text, set_aside_lines, unique_lines, value_text)
 
@@ -162,7 +162,7 @@ def _candidates_table(result: FitResult) -> str:
         delta = (f"{cand.delta:+.1f}" if cand.converged and cand.delta is not None
                  and math.isfinite(cand.delta) else "-")
         rms = (format_quantity(cand.rms_residual, result.output_unit, 3) if cand.converged
-               else "not fitted" if cand.note.startswith("not tried") else "did not converge")
+               else "not fitted" if not_fitted(cand) else "did not converge")
         note = "" if chosen or cand.note == "chosen" else cand.note
         table.append([cand.model + chosen, str(cand.n_parameters), delta, rms, note])
     notes = [f"{_INDENT}{delta_meaning(result)}", f"{_INDENT}{COMPARISON_RMS_MEANING}"]
